@@ -1,0 +1,1 @@
+"""`skipwise check` (not yet written)."""

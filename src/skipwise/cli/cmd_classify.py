@@ -1,0 +1,1 @@
+"""`skipwise classify` (not yet written)."""

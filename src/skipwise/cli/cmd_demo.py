@@ -1,0 +1,1 @@
+"""`skipwise demo` (not yet written)."""

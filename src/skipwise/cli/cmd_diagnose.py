@@ -1,0 +1,1 @@
+"""`skipwise diagnose` (not yet written)."""

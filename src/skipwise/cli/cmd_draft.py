@@ -1,0 +1,1 @@
+"""`skipwise draft` (not yet written)."""

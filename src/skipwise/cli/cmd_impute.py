@@ -1,0 +1,1 @@
+"""`skipwise impute` (not yet written)."""

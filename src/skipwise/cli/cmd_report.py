@@ -1,0 +1,1 @@
+"""`skipwise report` (not yet written)."""

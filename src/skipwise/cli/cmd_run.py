@@ -1,0 +1,1 @@
+"""`skipwise run` (not yet written)."""

@@ -1,0 +1,1 @@
+"""`skipwise weigh` (not yet written)."""

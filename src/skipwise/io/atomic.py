@@ -1,0 +1,45 @@
+"""Atomic output: write to a temporary name beside the target, then rename."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from pathlib import Path
+from typing import Iterator
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+__all__ = ["atomic_output", "check_writable"]
+
+
+def check_writable(path: str | Path, *, overwrite: bool = True) -> Path:
+    """Refuse to replace an existing output unless ``overwrite`` is set."""
+    path = Path(path)
+    if path.exists() and not overwrite:
+        raise SkipwiseError(Problem(
+            code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
+            message="output file already exists",
+            hint="choose another name or pass --overwrite to replace it",
+        ))
+    return path
+
+
+@contextlib.contextmanager
+def atomic_output(path: str | Path, *, overwrite: bool = True) -> Iterator[Path]:
+    """Yield a temporary path in the target's folder; rename it onto ``path`` on success.
+
+    If the body raises (or the process is interrupted), the temporary file is
+    removed and any existing file at ``path`` is left untouched.
+    """
+    path = check_writable(path, overwrite=overwrite)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.stem}.", suffix=f".part{path.suffix}", dir=path.parent)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, path)
+    finally:
+        if tmp_path.exists():
+            tmp_path.unlink()
