@@ -1,0 +1,281 @@
+"""Read survey files (SPSS, Stata, CSV, Excel, Parquet) keeping special codes as stored.
+
+SPSS user-missing values stay as their codes (never NaN); Stata extended
+missing values ``.a`` ... ``.z`` stay as the strings ``".a"`` ... ``".z"`` in an
+object column that otherwise holds floats (plain system missing ``.`` is NaN);
+value labels are *not* applied.  Labels and missing-value definitions go into
+a :class:`~skipwise.io.meta.SurveyMeta` in ``df.attrs["survey_meta"]``.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+from skipwise.io.meta import SurveyMeta, normalize_value, set_meta
+
+__all__ = ["read_survey", "SUPPORTED_EXTENSIONS", "format_of", "META_KEY", "MIXED_KEY"]
+
+#: File extensions read and written (case-insensitive), mapped to the format name.
+SUPPORTED_EXTENSIONS: dict[str, str] = {
+    ".sav": "sav", ".zsav": "zsav", ".dta": "dta", ".csv": "csv", ".xlsx": "xlsx", ".parquet": "parquet",
+}
+
+#: Parquet schema-metadata key holding :meth:`SurveyMeta.to_json`.
+META_KEY = b"skipwise.meta"
+#: Parquet schema-metadata key listing columns stored as text because they mix numbers and ".a" letters.
+MIXED_KEY = b"skipwise.mixed"
+
+_EXT_MISSING = r"\.[a-z]"
+_ENCODING_HINT = "pass the file's encoding, e.g. encoding='latin-1' or encoding='cp1252'"
+
+
+def format_of(path: str | Path) -> str:
+    """Format name for ``path``'s extension; SkipwiseError FILE_FORMAT if unsupported."""
+    path = Path(path)
+    fmt = SUPPORTED_EXTENSIONS.get(path.suffix.lower())
+    if fmt is None:
+        raise SkipwiseError(Problem(
+            code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(path),
+            message=f"unsupported file type '{path.suffix or '(none)'}'",
+            hint="use one of " + ", ".join(SUPPORTED_EXTENSIONS),
+        ))
+    return fmt
+
+
+def _unreadable(path: Path, message: str, hint: str | None = None) -> SkipwiseError:
+    return SkipwiseError(Problem(code=ProblemCode.FILE_UNREADABLE, category=Category.DATA,
+                                 file=str(path), message=message, hint=hint))
+
+
+def _check_columns(path: Path, wanted: list[str] | None, available: list[str]) -> None:
+    if wanted is None:
+        return
+    problems = [
+        Problem(code=ProblemCode.MISSING_COLUMN, category=Category.USAGE, file=str(path), item=str(c),
+                message=f"column '{c}' is not in the file", hint=did_you_mean(str(c), available))
+        for c in wanted if c not in available
+    ]
+    if problems:
+        raise SkipwiseError(problems)
+
+
+# -- SPSS and Stata (pyreadstat) ----------------------------------------------------------------
+def _blank_text_to_nan(df: pd.DataFrame, string_cols: list[str]) -> None:
+    # SPSS and Stata have no missing value for text: an empty string is the blank.
+    for c in string_cols:
+        df[c] = df[c].mask(df[c].astype(object).isin([""]))
+
+
+def _letters_to_dotted(s: pd.Series) -> tuple[pd.Series, list[str]]:
+    """pyreadstat returns Stata extended missing as "a".."z"; make them ".a".."z"."""
+    num = pd.to_numeric(s, errors="coerce")
+    letters = s.notna() & num.isna()
+    if not letters.any():
+        return num, []
+    out = num.astype(object)
+    out[letters] = "." + s[letters].astype(str)
+    return out, sorted(pd.unique(out[letters]).tolist())
+
+
+def _read_readstat(path: Path, fmt: str, encoding: str | None, columns: list[str] | None) -> pd.DataFrame:
+    import pyreadstat
+
+    reader = pyreadstat.read_dta if fmt == "dta" else pyreadstat.read_sav
+    try:
+        _, head = reader(str(path), metadataonly=True, encoding=encoding)
+        _check_columns(path, columns, list(head.column_names))
+        df, m = reader(str(path), user_missing=True, apply_value_formats=False,
+                       dates_as_pandas_datetime=True, encoding=encoding, usecols=columns)
+    except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, OSError, ValueError, OverflowError) as exc:
+        text = str(exc)
+        if "encod" in text.lower() or isinstance(exc, UnicodeError):
+            raise _unreadable(path, f"text in the file cannot be decoded ({text})", _ENCODING_HINT) from None
+        kind = "Stata" if fmt == "dta" else "SPSS"
+        raise _unreadable(path, f"not a readable {kind} file: it may be truncated or corrupt ({text})",
+                          "check the file was copied completely; re-export it from the source program") from None
+
+    if columns is not None:
+        df = df[list(columns)]
+    types = dict(m.readstat_variable_types)
+    strings = [c for c in df.columns if types.get(c) == "string"]
+    _blank_text_to_nan(df, strings)
+    meta = SurveyMeta(
+        source_format=fmt,
+        file_label=m.file_label or None,
+        encoding=getattr(m, "file_encoding", None) or encoding,
+        column_labels={c: lab for c, lab in m.column_names_to_labels.items() if lab},
+        formats={c: f for c, f in m.original_variable_types.items() if f},
+        measure={c: v for c, v in (getattr(m, "variable_measure", None) or {}).items() if v and v != "unknown"},
+    )
+
+    def label_key(k: object) -> object:
+        # Stata labels on extended missing come back keyed by the bare letter.
+        if fmt == "dta" and isinstance(k, str) and len(k) == 1 and k.isalpha():
+            return "." + k.lower()
+        return normalize_value(k)
+
+    meta.value_labels = {c: {label_key(k): v for k, v in vl.items()}
+                         for c, vl in m.variable_value_labels.items() if c in df.columns}
+    if fmt == "dta":
+        declared = {c: {"." + str(x).lower() for x in v} for c, v in (m.missing_user_values or {}).items()}
+        for c in df.columns:
+            if c in strings or df[c].dtype != object:
+                continue
+            df[c], used = _letters_to_dotted(df[c])
+            declared.setdefault(c, set()).update(used)
+        meta.missing_values = {c: sorted(v) for c, v in declared.items() if v and c in df.columns}
+    else:
+        for c, entries in (m.missing_ranges or {}).items():
+            if c not in df.columns:
+                continue
+            for e in entries:
+                lo, hi = e["lo"], e["hi"]
+                if lo == hi:
+                    meta.missing_values.setdefault(c, []).append(normalize_value(lo))
+                else:
+                    meta.missing_ranges.setdefault(c, []).append((float(lo), float(hi)))
+    return set_meta(df, meta)
+
+
+# -- text and spreadsheets ----------------------------------------------------------------------
+def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | None) -> pd.DataFrame:
+    enc = encoding or "utf-8-sig"  # utf-8, tolerating a byte-order mark
+    opts = dict(encoding=enc, keep_default_na=False, na_values=[""])
+    try:
+        header = list(pd.read_csv(path, nrows=0, **opts).columns)
+        _check_columns(path, columns, header)
+        df = pd.read_csv(path, usecols=columns, **opts)
+    except UnicodeDecodeError as exc:
+        raise _unreadable(path, f"the file is not valid {encoding or 'utf-8'} text ({exc.reason} "
+                                f"at byte value 0x{exc.object[exc.start]:02x})", _ENCODING_HINT) from None
+    except LookupError:
+        raise _unreadable(path, f"unknown text encoding '{encoding}'", "use a Python codec name such as 'cp1252'") from None
+    except pd.errors.EmptyDataError:
+        raise _unreadable(path, "the file is empty (no header row)", "export the data with a header row") from None
+    except (pd.errors.ParserError, ValueError, OSError) as exc:
+        raise _unreadable(path, f"not a readable CSV file ({exc})") from None
+    if columns is not None:
+        df = df[list(columns)]
+    return set_meta(df, SurveyMeta(source_format=fmt, encoding=encoding or "utf-8"))
+
+
+def _read_xlsx(path: Path, fmt: str, encoding: str | None, columns: list[str] | None) -> pd.DataFrame:
+    try:
+        df = pd.read_excel(path, sheet_name=0, engine="openpyxl", keep_default_na=False, na_values=[""])
+    except Exception as exc:  # openpyxl raises zip, XML and key errors for damaged workbooks
+        raise _unreadable(path, f"not a readable Excel workbook ({type(exc).__name__}: {exc})",
+                          "open and re-save it as .xlsx in a spreadsheet program") from None
+    df.columns = [str(c) for c in df.columns]
+    _check_columns(path, columns, list(df.columns))
+    if columns is not None:
+        df = df[list(columns)]
+    return set_meta(df, SurveyMeta(source_format=fmt))
+
+
+def _restore_mixed(df: pd.DataFrame, cols: list[str]) -> None:
+    for c in cols:
+        if c not in df.columns:
+            continue
+        s = df[c].astype(object)
+        letters = s.astype(str).str.fullmatch(_EXT_MISSING).fillna(False).astype(bool) & s.notna()
+        out = pd.to_numeric(s.where(~letters), errors="coerce").astype(object)
+        out[letters] = s[letters]
+        df[c] = out
+
+
+def _read_parquet(path: Path, fmt: str, encoding: str | None, columns: list[str] | None) -> pd.DataFrame:
+    import pyarrow
+    import pyarrow.parquet as pq
+
+    try:
+        schema = pq.read_schema(path)
+        _check_columns(path, columns, list(schema.names))
+        table = pq.read_table(path, columns=columns)
+    except (pyarrow.ArrowException, OSError) as exc:
+        raise _unreadable(path, f"not a readable Parquet file ({exc})",
+                          "check the file was copied completely") from None
+    raw = table.schema.metadata or {}
+    meta = SurveyMeta()
+    if META_KEY in raw:
+        try:
+            meta = SurveyMeta.from_json(raw[META_KEY])
+        except (ValueError, TypeError, KeyError) as exc:
+            raise _unreadable(path, f"the file's skipwise metadata is damaged ({exc})") from None
+    table = table.replace_schema_metadata({k: v for k, v in raw.items() if k == b"pandas"})
+    df = table.to_pandas()
+    df.attrs.clear()
+    if MIXED_KEY in raw:
+        _restore_mixed(df, json.loads(raw[MIXED_KEY]))
+    meta = meta.subset(df.columns)
+    meta.source_format = fmt
+    return set_meta(df, meta)
+
+
+_READERS: dict[str, Callable[[Path, str, str | None, list[str] | None], pd.DataFrame]] = {
+    "sav": _read_readstat, "zsav": _read_readstat, "dta": _read_readstat,
+    "csv": _read_csv, "xlsx": _read_xlsx, "parquet": _read_parquet,
+}
+
+
+def read_survey(path: str | Path, *, encoding: str | None = None,
+                columns: list[str] | None = None) -> pd.DataFrame:
+    """Read a survey data file, keeping special codes as stored values.
+
+    Parameters
+    ----------
+    path
+        A ``.sav``, ``.zsav``, ``.dta``, ``.csv``, ``.xlsx`` or ``.parquet`` file
+        (extension case-insensitive).
+    encoding
+        Text encoding; for SPSS/Stata the file's own declaration is used when
+        None, for CSV utf-8 (a byte-order mark is tolerated).
+    columns
+        Read only these columns (in this order for CSV, Excel and Parquet).
+
+    Returns
+    -------
+    pandas.DataFrame
+        The data, with a :class:`SurveyMeta` in ``df.attrs["survey_meta"]``.
+
+        - SPSS: user-missing codes are kept as values (read with pyreadstat's
+          ``user_missing=True``); discrete definitions go to ``missing_values``
+          and ranges to ``missing_ranges``. Numbers are float64; label keys and
+          missing values that are whole numbers are given as int.
+        - Stata: extended missing ``.a``–``.z`` become the strings ``".a"``–``".z"``
+          in an object column mixing floats and those strings; system missing
+          ``.`` is NaN; the letters used are listed in ``missing_values``.
+        - SPSS/Stata text variables: an empty string is read as NaN (neither
+          format has a missing value for text).
+        - Dates and date-times declared by the file's formats become
+          ``datetime64`` columns.
+        - CSV: only empty fields are missing; texts such as ``"NA"`` or
+          ``"None"`` stay answers; numeric-looking columns become numbers.
+        - Excel: the first sheet; blank cells are NaN.
+        - Parquet: metadata restored from the schema key ``skipwise.meta``.
+
+    Raises
+    ------
+    SkipwiseError
+        FILE_NOT_FOUND, FILE_FORMAT (unknown extension), FILE_UNREADABLE (empty,
+        truncated or corrupt file, wrong encoding), MISSING_COLUMN (``columns``
+        names a column the file lacks).  The input file is never modified.
+    """
+    path = Path(path)
+    if not path.exists():
+        raise SkipwiseError(Problem(
+            code=ProblemCode.FILE_NOT_FOUND, category=Category.USAGE, file=str(path),
+            message="file not found", hint="check the path and the working directory",
+        ))
+    fmt = format_of(path)
+    if path.is_dir():
+        raise _unreadable(path, "is a folder, not a data file")
+    if path.stat().st_size == 0:
+        raise _unreadable(path, "the file is empty (0 bytes)", "re-export the data")
+    cols = None if columns is None else [str(c) for c in columns]
+    return _READERS[fmt](path, fmt, encoding, cols)
