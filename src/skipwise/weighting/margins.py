@@ -1,0 +1,195 @@
+"""Population margins: validation and encoding of the data's categories.
+
+Every calibration method works on the same encoded form: for each margin
+variable, an integer code per case (index into the target categories) and the
+target totals.  Categories are matched by a normalised text label, so a plan
+key ``1`` matches a stored value ``1``, ``1.0`` or ``"1"``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Callable, Mapping
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+__all__ = ["EncodedMargin", "category_label", "encode_margins", "margin_table", "max_margin_error",
+           "Locator", "worst_margins_text"]
+
+#: Gives the plan-file location (``file``, ``line``) of a margin or one of its categories.
+Locator = Callable[[str, object | None], dict]
+
+#: Relative tolerance for "all margins add to the same total".
+TOTAL_RTOL = 1e-6
+
+
+def category_label(value: object) -> str:
+    """Normalised text of a category value (integral floats lose their ``.0``)."""
+    if isinstance(value, (bool, np.bool_)):
+        return str(bool(value))
+    if isinstance(value, (int, np.integer)):
+        return str(int(value))
+    if isinstance(value, (float, np.floating)):
+        f = float(value)
+        return str(int(f)) if f.is_integer() else repr(f)
+    return str(value)
+
+
+@dataclass(frozen=True, kw_only=True)
+class EncodedMargin:
+    """One margin: per-case category codes and the target total of every category."""
+
+    variable: str
+    labels: tuple[str, ...]
+    targets: np.ndarray
+    codes: np.ndarray
+
+    @property
+    def total(self) -> float:
+        return float(self.targets.sum())
+
+    def sums(self, w: np.ndarray) -> np.ndarray:
+        return np.bincount(self.codes, weights=w, minlength=len(self.labels))
+
+
+def _no_location(variable: str, category: object | None) -> dict:
+    return {}
+
+
+def encode_margins(data: pd.DataFrame, margins: Mapping[str, Mapping[object, float]], *,
+                   locate: Locator | None = None) -> list[EncodedMargin]:
+    """Check margins against the data and encode each case's category.
+
+    Parameters
+    ----------
+    data
+        The cases to calibrate (respondents).
+    margins
+        ``{variable: {category: population_total}}``.
+    locate
+        Optional function giving the plan-file location of a margin/category,
+        so problems carry a file and line.
+
+    Raises
+    ------
+    SkipwiseError
+        Collecting every problem: ``missing-column`` (variable not in the data),
+        ``bad-value`` (a non-numeric or negative total, a yes/no key YAML read as
+        true/false, margins adding to different totals), ``bad-data`` (missing
+        values in a margin variable), ``undeclared-value`` (a data category with
+        no target), ``infeasible`` (a target category with no case).
+    """
+    where = locate or _no_location
+    problems: list[Problem] = []
+    out: list[EncodedMargin] = []
+    if not margins:
+        raise SkipwiseError(Problem(code=ProblemCode.MISSING_KEY, message="no margins given",
+                                    hint="give at least one {variable: {category: total}}"))
+    for variable, targets in margins.items():
+        loc = where(str(variable), None)
+        if variable not in data.columns:
+            from skipwise.errors import did_you_mean
+            problems.append(Problem(code=ProblemCode.MISSING_COLUMN, item=str(variable),
+                                    message=f"margin variable '{variable}' is not a column of the data",
+                                    hint=did_you_mean(str(variable), map(str, data.columns)), **loc))
+            continue
+        if not isinstance(targets, Mapping) or not targets:
+            problems.append(Problem(code=ProblemCode.BAD_VALUE, item=str(variable),
+                                    message="margin must map each category to a population total", **loc))
+            continue
+        labels: list[str] = []
+        values: list[float] = []
+        for cat, total in targets.items():
+            cloc = where(str(variable), cat)
+            if isinstance(cat, bool):
+                problems.append(Problem(code=ProblemCode.BAD_VALUE, item=str(variable),
+                                        message=f"category key read as {cat} (YAML reads yes/no/on/off as true/false)",
+                                        hint="quote the key, e.g. \"yes\": 120", **cloc))
+            ok = isinstance(total, (int, float, np.integer, np.floating)) and not isinstance(total, bool)
+            if not ok or not math.isfinite(float(total)) or float(total) < 0:
+                problems.append(Problem(code=ProblemCode.BAD_VALUE, item=str(variable),
+                                        message=f"target of category {cat!r} must be a non-negative number, got {total!r}",
+                                        **cloc))
+                continue
+            label = category_label(cat)
+            if label in labels:
+                problems.append(Problem(code=ProblemCode.DUPLICATE_NAME, item=str(variable),
+                                        message=f"category {cat!r} is given twice", **cloc))
+                continue
+            labels.append(label)
+            values.append(float(total))
+        col = data[variable]
+        missing = col.isna().to_numpy()
+        if missing.any():
+            problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=str(variable),
+                                    message=f"{int(missing.sum())} case(s) have no value of margin variable "
+                                            f"'{variable}' (first: {list(data.index[missing][:5])})",
+                                    hint="impute or recode the variable before calibration", **loc))
+            continue
+        raw_codes, uniques = pd.factorize(col, sort=False)
+        lookup = {lab: i for i, lab in enumerate(labels)}
+        mapped = np.array([lookup.get(category_label(u), -1) for u in uniques], dtype=np.intp)
+        for u, m in zip(uniques, mapped):
+            if m < 0:
+                n_u = int((col == u).sum())
+                problems.append(Problem(code=ProblemCode.UNDECLARED_VALUE, category=Category.DATA,
+                                        item=str(variable),
+                                        message=f"category {category_label(u)!r} of '{variable}' occurs in "
+                                                f"{n_u} case(s) but has no population target",
+                                        hint="add its total to the margin or recode it into a targeted category",
+                                        **loc))
+        if (mapped < 0).any():
+            continue
+        codes = mapped[raw_codes] if len(raw_codes) else np.zeros(0, dtype=np.intp)
+        counts = np.bincount(codes, minlength=len(labels))
+        for lab, cnt, tot in zip(labels, counts, values):
+            if cnt == 0 and tot > 0:
+                problems.append(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA,
+                                        item=str(variable),
+                                        message=f"category {lab!r} of '{variable}' has a target of {tot:g} "
+                                                f"but no respondent",
+                                        hint="collapse it with a neighbouring category in the margins",
+                                        **where(str(variable), lab)))
+        out.append(EncodedMargin(variable=str(variable), labels=tuple(labels),
+                                 targets=np.asarray(values, dtype=float), codes=codes))
+    if len(out) > 1:
+        totals = [m.total for m in out]
+        if max(totals) - min(totals) > TOTAL_RTOL * max(max(totals), 1.0):
+            listing = ", ".join(f"{m.variable}={m.total:,.6g}" for m in out)
+            problems.append(Problem(code=ProblemCode.BAD_VALUE, item=out[0].variable,
+                                    message=f"margins add to different totals ({listing})",
+                                    hint="every margin must describe the same population total",
+                                    **where(out[0].variable, None)))
+    if problems:
+        raise SkipwiseError(problems)
+    return out
+
+
+def margin_table(w: np.ndarray, encoded: list[EncodedMargin], start: np.ndarray | None = None) -> pd.DataFrame:
+    """Achieved vs target totals of every category (and the starting totals if given)."""
+    rows = []
+    for m in encoded:
+        got = m.sums(w)
+        before = m.sums(start) if start is not None else np.full(len(m.labels), np.nan)
+        for lab, tgt, b, a in zip(m.labels, m.targets, before, got):
+            rows.append({"variable": m.variable, "category": lab, "target": float(tgt),
+                         "before": float(b), "achieved": float(a), "difference": float(a - tgt)})
+    return pd.DataFrame(rows, columns=["variable", "category", "target", "before", "achieved", "difference"])
+
+
+def max_margin_error(w: np.ndarray, encoded: list[EncodedMargin]) -> float:
+    """Largest absolute gap between achieved and target totals, as a share of the total."""
+    total = max(encoded[0].total, 1e-300)
+    return max(float(np.max(np.abs(m.sums(w) - m.targets))) for m in encoded) / total
+
+
+def worst_margins_text(w: np.ndarray, encoded: list[EncodedMargin], k: int = 5) -> str:
+    """The k categories furthest from their targets, for error messages."""
+    table = margin_table(w, encoded)
+    table = table.reindex(table["difference"].abs().sort_values(ascending=False).index).head(k)
+    return "; ".join(f"{r.variable}={r.category}: achieved {r.achieved:,.6g} vs target {r.target:,.6g}"
+                     for r in table.itertuples())
