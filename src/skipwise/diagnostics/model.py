@@ -1,0 +1,218 @@
+"""Logistic models of a nonresponse indicator on auxiliaries, and their AUC."""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+import statsmodels.api as sm
+from scipy import stats
+from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparationWarning
+
+from skipwise.diagnostics.compare import prepare_auxiliaries
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+__all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit"]
+
+
+def auc_mann_whitney(scores: np.ndarray | pd.Series, labels: np.ndarray | pd.Series) -> float:
+    """Area under the ROC curve from the Mann–Whitney rank-sum formula.
+
+    AUC = (R₁ − n₁(n₁+1)/2) / (n₁ n₀), R₁ the sum of mid-ranks of the scores of
+    the positive cases: the probability that a random positive case scores
+    higher than a random negative one (ties count one half).  NaN if either
+    class is empty.
+
+    References
+    ----------
+    Hanley, J. A., & McNeil, B. J. (1982). The meaning and use of the area under a
+    receiver operating characteristic (ROC) curve. *Radiology*, 143, 29–36.
+    Mann, H. B., & Whitney, D. R. (1947). On a test of whether one of two random
+    variables is stochastically larger than the other. *Ann. Math. Statist.*, 18, 50–60.
+    """
+    s = np.asarray(scores, dtype=float)
+    y = np.asarray(labels).astype(bool)
+    n1, n0 = int(y.sum()), int((~y).sum())
+    if n1 == 0 or n0 == 0:
+        return float("nan")
+    ranks = stats.rankdata(s)
+    return float((ranks[y].sum() - n1 * (n1 + 1) / 2) / (n1 * n0))
+
+
+def design_matrix(aux: pd.DataFrame, categorical: Sequence[str]) -> tuple[pd.DataFrame, dict[str, str], list[str]]:
+    """Constant, numeric auxiliaries as they are, categorical ones as indicators.
+
+    Each categorical auxiliary's most frequent category is the reference.
+    Returns the matrix, the reference category per variable and the names of
+    columns dropped because they were constant.
+    """
+    parts = [pd.Series(1.0, index=aux.index, name="const")]
+    refs: dict[str, str] = {}
+    dropped: list[str] = []
+    for col in aux.columns:
+        name = str(col)
+        if name in categorical:
+            s = aux[col].astype(str)
+            levels = s.value_counts()
+            ref = str(levels.index[0])
+            refs[name] = ref
+            for lev in sorted(levels.index[1:], key=str):
+                parts.append(pd.Series((s == lev).astype(float), name=f"{name}={lev}"))
+        else:
+            x = aux[col].astype(float)
+            if x.nunique() < 2:
+                dropped.append(name)
+                continue
+            parts.append(x.rename(name))
+    return pd.concat(parts, axis=1), refs, dropped
+
+
+def _collinear_columns(x: np.ndarray, names: list[str]) -> list[str]:
+    _, sv, vt = np.linalg.svd(x / np.maximum(np.abs(x).max(axis=0), 1e-300), full_matrices=False)
+    v = np.abs(vt[-1])
+    return [names[k] for k in np.flatnonzero(v >= 0.25 * v.max())]
+
+
+def fit_logit(y: pd.Series, x: pd.DataFrame, *, weights: pd.Series | None = None):
+    """Fit the logistic regression of ``y`` on ``x``; return (result, notes).
+
+    Unweighted: statsmodels ``Logit``.  Weighted: a binomial GLM with
+    frequency weights rescaled to sum to n, which gives the weighted
+    (pseudo-)maximum-likelihood estimates.
+    """
+    xv = x.to_numpy(float)
+    if np.linalg.matrix_rank(xv) < xv.shape[1]:
+        cols = _collinear_columns(xv, list(x.columns))
+        raise SkipwiseError(Problem(
+            code=ProblemCode.SINGULAR, category=Category.DATA, item=", ".join(cols),
+            message="the auxiliaries of the logistic model are collinear",
+            hint="drop one of these auxiliaries or merge sparse categories",
+        ))
+    notes: list[str] = []
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        try:
+            if weights is None:
+                res = sm.Logit(y.astype(float), x).fit(disp=0, maxiter=200)
+            else:
+                w = weights.to_numpy(float)
+                w = w * len(w) / w.sum()
+                res = sm.GLM(y.astype(float), x, family=sm.families.Binomial(), freq_weights=w).fit(maxiter=200)
+        except (np.linalg.LinAlgError, ValueError) as exc:
+            raise SkipwiseError(Problem(
+                code=ProblemCode.SINGULAR, category=Category.DATA,
+                message=f"the logistic model could not be fitted ({exc})",
+                hint="use fewer auxiliaries or merge sparse categories",
+            )) from None
+    for w in caught:
+        if issubclass(w.category, PerfectSeparationWarning):
+            notes.append("Some auxiliary separates respondents from nonrespondents perfectly; "
+                         "its coefficient and odds ratio are not finite estimates.")
+        elif issubclass(w.category, ConvergenceWarning):
+            notes.append("The logistic model did not converge; read its estimates with care.")
+    return res, sorted(set(notes))
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class LogitResult:
+    """Logistic regression of an item's nonresponse indicator on auxiliaries.
+
+    Attributes
+    ----------
+    item
+        Item name.
+    n, n_nonresponse
+        Cases in the model and nonrespondents among them.
+    table
+        One row per term: ``term``, ``coef``, ``std_err``, ``z``, ``p_value``,
+        ``odds_ratio``, ``or_low``, ``or_high`` (confidence limits).
+    reference
+        Reference category of each categorical auxiliary.
+    auc
+        Area under the ROC curve of the fitted probabilities (0.5 = no discrimination).
+    pseudo_r2
+        McFadden's pseudo R².
+    lr_statistic, lr_df, lr_p_value
+        Likelihood-ratio test of all auxiliaries against the intercept-only model.
+    notes
+        Remarks (dropped cases or constant auxiliaries, separation, convergence).
+    """
+
+    item: str
+    n: int
+    n_nonresponse: int
+    table: pd.DataFrame
+    reference: dict[str, str]
+    auc: float
+    pseudo_r2: float
+    lr_statistic: float
+    lr_df: int
+    lr_p_value: float
+    notes: tuple[str, ...]
+
+
+def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: Sequence[str] | None = None,
+                      item: str | None = None, alpha: float = 0.05) -> LogitResult:
+    """Model P(item nonresponse) from fully observed auxiliaries.
+
+    Parameters
+    ----------
+    indicator
+        True = nonresponse, over the item's in-scope cases.
+    aux
+        Auxiliaries; cases with a missing auxiliary are dropped and counted.
+    categorical
+        Auxiliaries to code as indicators (default: inferred).
+    item
+        Name used in results.
+    alpha
+        1 − confidence level of the odds-ratio limits.
+
+    Returns
+    -------
+    LogitResult
+
+    Raises
+    ------
+    SkipwiseError
+        ``singular`` if the auxiliaries are collinear or the model cannot be
+        fitted; ``bad-data`` if all cases are respondents or all nonrespondents.
+
+    References
+    ----------
+    Hosmer, D. W., Lemeshow, S., & Sturdivant, R. X. (2013). *Applied Logistic
+    Regression* (3rd ed.). Wiley.
+    Rosenbaum, P. R., & Rubin, D. B. (1983). The central role of the propensity
+    score in observational studies for causal effects. *Biometrika*, 70, 41–55.
+    """
+    name = str(item if item is not None else (indicator.name or "item"))
+    ind, sub, cat, n_drop = prepare_auxiliaries(indicator, aux, categorical)
+    n_m = int(ind.sum())
+    if n_m == 0 or n_m == len(ind):
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_DATA, category=Category.DATA, item=name,
+            message="no model: every case is a respondent or every case a nonrespondent",
+        ))
+    x, refs, const = design_matrix(sub, cat)
+    res, notes = fit_logit(ind, x)
+    if n_drop:
+        notes.insert(0, f"{n_drop:,} in-scope cases with a missing auxiliary were left out.")
+    if const:
+        notes.append(f"Constant auxiliaries left out: {', '.join(const)}.")
+    ci = np.asarray(res.conf_int(alpha=alpha))
+    with np.errstate(over="ignore"):
+        table = pd.DataFrame({
+            "term": list(x.columns), "coef": np.asarray(res.params), "std_err": np.asarray(res.bse),
+            "z": np.asarray(res.tvalues), "p_value": np.asarray(res.pvalues),
+            "odds_ratio": np.exp(np.asarray(res.params)), "or_low": np.exp(ci[:, 0]), "or_high": np.exp(ci[:, 1]),
+        })
+    fitted = np.asarray(res.predict(x))
+    return LogitResult(
+        item=name, n=int(len(ind)), n_nonresponse=n_m, table=table, reference=refs,
+        auc=auc_mann_whitney(fitted, ind.to_numpy()), pseudo_r2=float(res.prsquared),
+        lr_statistic=float(res.llr), lr_df=int(res.df_model), lr_p_value=float(res.llr_pvalue),
+        notes=tuple(notes),
+    )

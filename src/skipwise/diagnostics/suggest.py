@@ -1,0 +1,184 @@
+"""Suggestions for handling each item's nonresponse, with the evidence behind them.
+
+These are suggestions for a statistician to weigh, not decisions.  The cut-offs
+are common practice, no source, and every one of them is configurable.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+__all__ = ["CAUTIONS", "ItemEvidence", "Option", "Suggestion", "SuggestionThresholds", "suggest_handling",
+           "ACTIONS"]
+
+#: Shown with every set of suggestions.
+CAUTIONS = (
+    "No test on the observed data proves that data are missing at random (MAR); tests can "
+    "only show evidence against MCAR.",
+    "Whether data are missing not at random (MNAR) needs subject knowledge and a sensitivity "
+    "analysis (see the sensitivity sheet); weights and imputation do not repair MNAR.",
+    "The cut-offs behind these suggestions are common practice, no source; follow your "
+    "organization's methodology standards.",
+)
+
+ACTIONS = ("leave as is", "listwise deletion", "pairwise-available analysis", "drop the variable",
+           "single imputation", "multiple imputation", "nonresponse weighting")
+
+
+@dataclass(frozen=True, kw_only=True)
+class SuggestionThresholds:
+    """Cut-offs (common practice, no source)."""
+
+    low_rate: float = 0.05      #: below this, nonresponse is small
+    high_rate: float = 0.40     #: at or above this, consider dropping or reporting with strong caution
+    alpha: float = 0.05         #: significance level for tests against MCAR
+    auc_weak: float = 0.60      #: AUC from which auxiliaries predict nonresponse noticeably
+    auc_strong: float = 0.70    #: AUC from which they predict it strongly
+    min_nonrespondents: int = 10  #: fewer nonrespondents than this: tests have little power
+
+
+@dataclass(frozen=True, kw_only=True)
+class ItemEvidence:
+    """What is known about one item's nonresponse."""
+
+    item: str
+    n_in_scope: int
+    n_nonresponse: int
+    little_p: float | None = None    #: Little's test over the items it was run on (None: not in it)
+    model_p: float | None = None     #: likelihood-ratio p-value of the nonresponse model
+    auc: float | None = None         #: AUC of the nonresponse model
+    min_compare_p: float | None = None  #: smallest p-value among respondent/nonrespondent comparisons
+
+    @property
+    def rate(self) -> float:
+        return self.n_nonresponse / self.n_in_scope if self.n_in_scope else float("nan")
+
+
+@dataclass(frozen=True, kw_only=True)
+class Option:
+    """One way of handling the item, with a verdict and the reason."""
+
+    action: str
+    verdict: str   #: "suggested", "possible" or "not advised"
+    reason: str
+
+
+@dataclass(frozen=True, kw_only=True)
+class Suggestion:
+    """All options for one item, the evidence summary and the association level."""
+
+    item: str
+    association: str   #: "none", "none detected", "weak", "strong" or "untested"
+    evidence: str
+    options: tuple[Option, ...]
+
+    def suggested(self) -> tuple[str, ...]:
+        return tuple(o.action for o in self.options if o.verdict == "suggested")
+
+
+def _ok(x: float | None) -> bool:
+    return x is not None and not (isinstance(x, float) and math.isnan(x))
+
+
+def _association(ev: ItemEvidence, th: SuggestionThresholds) -> str:
+    if ev.n_nonresponse == 0:
+        return "none"
+    tested = [_ok(ev.model_p), _ok(ev.auc), _ok(ev.little_p), _ok(ev.min_compare_p)]
+    if not any(tested) or ev.n_nonresponse < th.min_nonrespondents:
+        return "untested"
+    sig = any(_ok(p) and p < th.alpha for p in (ev.model_p, ev.little_p))
+    auc = ev.auc if _ok(ev.auc) else 0.5
+    if sig and auc >= th.auc_strong:
+        return "strong"
+    if sig or auc >= th.auc_weak:
+        return "weak"
+    return "none detected"
+
+
+def _evidence_text(ev: ItemEvidence) -> str:
+    parts = [f"nonresponse {ev.n_nonresponse:,} of {ev.n_in_scope:,} in scope ({ev.rate:.1%})"]
+    if _ok(ev.little_p):
+        parts.append(f"Little's test p = {ev.little_p:.3g}")
+    if _ok(ev.model_p):
+        parts.append(f"nonresponse model p = {ev.model_p:.3g}")
+    if _ok(ev.auc):
+        parts.append(f"AUC = {ev.auc:.2f}")
+    if _ok(ev.min_compare_p):
+        parts.append(f"smallest comparison p = {ev.min_compare_p:.3g}")
+    return "; ".join(parts)
+
+
+def suggest_handling(ev: ItemEvidence, thresholds: SuggestionThresholds | None = None) -> Suggestion:
+    """Weigh the handling options for one item against its evidence.
+
+    Parameters
+    ----------
+    ev
+        Nonresponse counts and test results for the item.
+    thresholds
+        Cut-offs (default :class:`SuggestionThresholds`, common practice, no source).
+
+    Returns
+    -------
+    Suggestion
+        One :class:`Option` per action in :data:`ACTIONS`.
+
+    References
+    ----------
+    Little, R. J. A., & Rubin, D. B. (2019). *Statistical Analysis with Missing
+    Data* (3rd ed.). Wiley.
+    Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley.
+    """
+    th = thresholds or SuggestionThresholds()
+    rate = ev.rate
+    assoc = _association(ev, th)
+    low, high = rate < th.low_rate, rate >= th.high_rate
+    related = assoc in ("weak", "strong")
+    small = f"the rate is small ({rate:.1%} < {th.low_rate:.0%})"
+    opts: list[Option] = []
+
+    def add(action: str, verdict: str, reason: str) -> None:
+        opts.append(Option(action=action, verdict=verdict, reason=reason))
+
+    if assoc == "none":
+        add("leave as is", "suggested", "no item nonresponse in scope")
+        for a in ACTIONS[1:]:
+            add(a, "not advised", "nothing to handle")
+        return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev), options=tuple(opts))
+
+    add("leave as is",
+        "suggested" if low and not related else ("possible" if low else "not advised"),
+        small + (" and no association with the auxiliaries was detected" if not related
+                 else ", but nonrespondents differ on the auxiliaries") if low
+        else f"{rate:.1%} nonresponse is too much to ignore in estimates")
+    add("listwise deletion",
+        "not advised" if related or high else ("suggested" if low else "possible"),
+        "nonresponse is related to the auxiliaries, so complete cases are a selective subset"
+        if related else ("loses " + f"{rate:.0%} of the cases" + (" (too many)" if high else
+                         "; unbiased only under MCAR, which the tests did not reject")))
+    add("pairwise-available analysis",
+        "not advised" if related else "possible",
+        "each statistic would rest on a differently selected subset" if related
+        else "uses all available cases per statistic; can give inconsistent (non positive definite) "
+             "covariance matrices")
+    add("drop the variable",
+        "possible" if high else "not advised",
+        f"{rate:.0%} nonresponse: estimates for this item would rest largely on assumptions"
+        if high else f"{rate:.0%} nonresponse does not justify losing the item")
+    add("single imputation",
+        "possible" if low else "not advised",
+        "acceptable for a small rate if imputed values are flagged; understates variance"
+        if low else "understates variance at this rate; prefer multiple imputation")
+    add("multiple imputation",
+        "suggested" if related and not high else "possible",
+        ("the auxiliaries predict nonresponse, so include them in the imputation model "
+         "(assumes MAR given them)") if related
+        else ("gains precision over deletion; include the auxiliaries in the imputation model"
+              + ("; with this much nonresponse results depend heavily on the model" if high else "")))
+    add("nonresponse weighting",
+        "possible" if related else "not advised",
+        "weighting classes or propensities from the auxiliaries that predict nonresponse; best "
+        "when many items share the same nonrespondents" if related
+        else "the auxiliaries do not predict nonresponse, so weighting on them would change little")
+    return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev), options=tuple(opts))
