@@ -79,8 +79,11 @@ def _check_names(df: pd.DataFrame, path: Path, fmt: str) -> list[Problem]:
     return problems
 
 
+_NOTES: list[str] = []  # filled while one write is prepared, emitted by write_survey
+
+
 def _note(message: str) -> None:
-    warnings.warn(message, MetadataWarning, stacklevel=4)
+    _NOTES.append(message)
 
 
 # -- column preparation for pyreadstat -----------------------------------------------------------
@@ -114,7 +117,9 @@ def _prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: l
         if isinstance(s.dtype, pd.CategoricalDtype):
             s = pd.Series(s.to_numpy(dtype=object), dtype=object)
         kind = "other"
-        if pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
+        if pd.api.types.is_timedelta64_dtype(s):  # durations are written as seconds
+            kind, s = "number", s.dt.total_seconds()
+        elif pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
             kind, s = "number", pd.Series(s.to_numpy(dtype=float, na_value=np.nan))
         elif pd.api.types.is_datetime64_any_dtype(s):
             kind = "datetime"
@@ -136,8 +141,9 @@ def _prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: l
                 text = s[rest].astype(str)
                 odd = text[~text.str.fullmatch(_STATA_LETTER.pattern)]
                 if len(odd):
-                    problems.append(_problem(path, f"column mixes numbers and text (e.g. {odd.iloc[0]!r})",
-                                             item=str(col), hint="make the column all numbers or all text"))
+                    problems.append(_problem(path, "column mixes numbers and text, or holds values that are neither "
+                                                   f"numbers, text nor dates (e.g. {odd.iloc[0]!r})", item=str(col),
+                                             hint="make the column all numbers or all text"))
                 elif not ext_missing_ok:
                     problems.append(_problem(path, "column holds Stata extended missing values (.a-.z), "
                                                    "which SPSS cannot store", item=str(col),
@@ -450,7 +456,14 @@ def write_survey(df: pd.DataFrame, path: str | Path, meta: SurveyMeta | None = N
     fmt = format_of(path)
     check_writable(path, overwrite=overwrite)
     meta = (get_meta(df) if meta is None else meta.copy()).subset(str(c) for c in df.columns)
-    job = _PREPARE[fmt](df, meta, path, fmt)
+    _NOTES.clear()
+    try:
+        job = _PREPARE[fmt](df, meta, path, fmt)
+    finally:
+        notes = list(_NOTES)
+        _NOTES.clear()
+    for note in notes:
+        warnings.warn(f"{path}: {note}", MetadataWarning, stacklevel=2)
     try:
         with atomic_output(path, overwrite=overwrite) as tmp:
             job(tmp)
