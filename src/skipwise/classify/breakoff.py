@@ -1,0 +1,73 @@
+"""Finding the point where an interview ended.
+
+Three ways, chosen in the questionnaire's ``breakoff:`` block:
+
+- ``last_item: COLUMN`` — a paradata column naming the last item the case
+  reached.  Blank cells (``item_missing`` / ``gate_unknown``) of items after
+  that one become ``breakoff``.  Cases where the column is blank fall back
+  to the trailing-run rule below.
+- ``disposition: COLUMN`` with ``breakoff_codes: [...]`` — cases whose
+  disposition is one of the codes broke off; every blank applicable cell
+  after their last activity becomes ``breakoff``.  Other cases never do.
+- otherwise (default) the *trailing-run rule*: find the case's last
+  *activity* (an answer, a nonresponse code or an invalid value); if at
+  least ``min_run`` (default 5) cells after it are ``item_missing`` or
+  ``gate_unknown``, the case broke off there and those cells become
+  ``breakoff``.  Earlier blanks stay ``item_missing``.  Skipped cells after
+  the last activity neither count nor break the run.
+
+All of it works on the whole status matrix at once, row-locally.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from skipwise.classify import cells as K
+from skipwise.classify import statuses as S
+from skipwise.questionnaire.model import Questionnaire
+
+__all__ = ["apply_breakoff", "last_activity"]
+
+
+def last_activity(kinds: np.ndarray) -> np.ndarray:
+    """Index of each case's last item with an answer, code of nonresponse or invalid value (-1: none)."""
+    active = kinds >= K.NONRESP  # NONRESP, SUBST, INVALID
+    p = kinds.shape[1]
+    any_active = active.any(axis=1)
+    last = p - 1 - np.argmax(active[:, ::-1], axis=1)
+    return np.where(any_active, last, -1)
+
+
+def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q: Questionnaire,
+                   code_of: dict[str, int]) -> None:
+    """Turn the blank cells after each broken-off interview's end into ``breakoff`` (in place)."""
+    spec = q.breakoff
+    n, p = status.shape
+    if n == 0 or p == 0:
+        return
+    candidate = (status == code_of[S.ITEM_MISSING]) | (status == code_of[S.GATE_UNKNOWN])
+    last = last_activity(kinds)
+    after = np.arange(p)[None, :] > last[:, None]
+    trailing = candidate & after
+    if spec.disposition:
+        broke = data[spec.disposition].isin(list(spec.breakoff_codes)).to_numpy()
+        mask = trailing & broke[:, None]
+    else:
+        broke = trailing.sum(axis=1) >= spec.min_run
+        mask = trailing & broke[:, None]
+        if spec.last_item:
+            reached = _position_of_last_item(data[spec.last_item], q)
+            given = reached >= -1
+            by_paradata = candidate & (np.arange(p)[None, :] > reached[:, None])
+            mask = np.where(given[:, None], by_paradata, mask)
+    status[mask] = code_of[S.BREAKOFF]
+
+
+def _position_of_last_item(column: pd.Series, q: Questionnaire) -> np.ndarray:
+    """Interview position of the item named in a paradata column; -2 where blank or unknown."""
+    pos = {name: j for j, name in enumerate(q.item_names)}
+    pos.update({col: j for j, it in enumerate(q.items) for col in it.columns})
+    names = column.astype("string").str.strip()
+    return names.map(pos).astype("float64").fillna(-2).to_numpy(dtype=np.int64)

@@ -1,0 +1,169 @@
+"""What a stored cell holds, before routing is considered.
+
+Each cell of an item is decoded into one *kind*: blank, a structural code, a
+nonresponse code, a substantive answer (a valid value or a substantive code)
+or an invalid value (neither a declared code nor within the item's values or
+range).  Decoding is vectorized per column.
+
+A check-all-that-apply set is decoded from its option columns into one kind
+per case:
+
+1. any option column holding an invalid value (not selected, not unselected,
+   not a declared code) makes the set ``INVALID``;
+2. otherwise, if any option holds the *selected* or the *unselected* value the
+   set is answered (``SUBST``): the respondent went through the list;
+3. otherwise, the first option column carrying a code gives the set its code
+   (so all options coded -9 make the set ``refused``);
+4. otherwise (every option blank) the set is ``BLANK``.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from skipwise.questionnaire.model import Code, CodeKind, Item, ItemType
+
+__all__ = ["BLANK", "STRUCT", "NONRESP", "SUBST", "INVALID", "Decoded", "decode_item", "column_views"]
+
+BLANK, STRUCT, NONRESP, SUBST, INVALID = 0, 1, 2, 3, 4
+_KIND_OF = {CodeKind.STRUCTURAL: STRUCT, CodeKind.NONRESPONSE: NONRESP, CodeKind.SUBSTANTIVE: SUBST}
+
+
+@dataclass(frozen=True)
+class Decoded:
+    """Decoded cells of one item: kind, matched code (index into ``item.codes``, -1 none), values."""
+
+    kind: np.ndarray       # int8
+    code: np.ndarray       # int8, -1 where no code matched
+    values: np.ndarray     # float64, or object array of str for text-valued items
+
+
+def column_views(series: pd.Series) -> tuple[np.ndarray, np.ndarray | None, np.ndarray]:
+    """Numeric view, text view (None for numeric columns) and blank mask of a column."""
+    if pd.api.types.is_bool_dtype(series.dtype):
+        series = series.astype("float64")
+    if pd.api.types.is_numeric_dtype(series.dtype):
+        num = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        return num, None, np.isnan(num)
+    if pd.api.types.is_datetime64_any_dtype(series.dtype):
+        txt = series.dt.strftime("%Y-%m-%d").to_numpy(dtype=object, na_value=None)
+        blank = series.isna().to_numpy()
+        return np.full(len(series), np.nan), _fill_text(txt, blank), blank
+    obj = series.astype(object)
+    blank = obj.isna().to_numpy()
+    txt = obj.where(~blank, "").astype(str).str.strip().to_numpy(dtype=object)
+    blank |= txt == ""
+    num = pd.to_numeric(pd.Series(txt, index=series.index, dtype=object), errors="coerce").to_numpy(
+        dtype=np.float64, na_value=np.nan)
+    return num, txt, blank
+
+
+def _fill_text(txt: np.ndarray, blank: np.ndarray) -> np.ndarray:
+    out = txt.copy()
+    out[blank] = ""
+    return out
+
+
+def _match_codes(codes: tuple[Code, ...], num: np.ndarray, txt: np.ndarray | None, blank: np.ndarray) -> np.ndarray:
+    idx = np.full(len(num), -1, dtype=np.int8)
+    for i, code in enumerate(codes):
+        if isinstance(code.value, str):
+            hit = (txt == code.value) if txt is not None else np.zeros(len(num), bool)
+        else:
+            hit = num == float(code.value)
+        idx[hit & ~blank & (idx < 0)] = i
+    return idx
+
+
+def _valid(item: Item, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
+    """Cells holding a value the item allows (codes aside)."""
+    t = item.type
+    if t is ItemType.TEXT:
+        return np.ones(len(num), bool)
+    if t is ItemType.DATE:
+        source = txt if txt is not None else num
+        parsed = pd.to_datetime(pd.Series(source, dtype=object), errors="coerce", format="mixed")
+        ok = parsed.notna().to_numpy()
+        if item.range is not None:
+            lo, hi = pd.Timestamp(item.range[0]), pd.Timestamp(item.range[1])
+            ok &= ((parsed >= lo) & (parsed <= hi)).fillna(False).to_numpy(dtype=bool)
+        return ok
+    if t is ItemType.CATEGORICAL and item.values is not None:
+        keys = list(item.values)
+        num_keys = np.array([float(k) for k in keys if not isinstance(k, str)])
+        ok = np.isin(num, num_keys) if num_keys.size else np.zeros(len(num), bool)
+        str_keys = [k for k in keys if isinstance(k, str)]
+        if str_keys and txt is not None:
+            ok |= np.isin(txt.astype(str), np.array(str_keys, dtype=str))
+        return ok
+    ok = ~np.isnan(num)
+    if t is ItemType.INTEGER:
+        with np.errstate(invalid="ignore"):
+            ok &= np.floor(num) == num
+    if item.range is not None:
+        with np.errstate(invalid="ignore"):
+            ok &= (num >= float(item.range[0])) & (num <= float(item.range[1]))
+    return ok
+
+
+def _kinds(item: Item, codes_idx: np.ndarray, valid: np.ndarray, blank: np.ndarray) -> np.ndarray:
+    table = np.array([_KIND_OF[c.kind] for c in item.codes] + [0], dtype=np.int8)
+    kind = np.where(valid, SUBST, INVALID).astype(np.int8)
+    coded = codes_idx >= 0
+    kind[coded] = table[codes_idx[coded]]
+    kind[blank] = BLANK
+    return kind
+
+
+def _text_valued(item: Item) -> bool:
+    if item.type in (ItemType.TEXT, ItemType.DATE):
+        return True
+    return item.type is ItemType.CATEGORICAL and bool(item.values) and all(isinstance(k, str) for k in item.values)
+
+
+def decode_item(item: Item, data: pd.DataFrame) -> Decoded:
+    """Decode the stored cells of one item (all its columns) for every case."""
+    if item.type is ItemType.MULTI:
+        return _decode_multi(item, data)
+    num, txt, blank = column_views(data[item.name])
+    codes_idx = _match_codes(item.codes, num, txt, blank)
+    valid = _valid(item, num, txt)
+    kind = _kinds(item, codes_idx, valid, blank)
+    if _text_valued(item):
+        values = txt if txt is not None else np.where(np.isnan(num), "", num.astype(str)).astype(object)
+    else:
+        values = num
+    return Decoded(kind=kind, code=codes_idx, values=values)
+
+
+def _decode_multi(item: Item, data: pd.DataFrame) -> Decoded:
+    n = len(data)
+    any_invalid = np.zeros(n, bool)
+    any_mark = np.zeros(n, bool)
+    first_code = np.full(n, -1, dtype=np.int8)
+    for col in item.columns:
+        num, txt, blank = column_views(data[col])
+        idx = _match_codes(item.codes, num, txt, blank)
+        sel = _equals(item.selected, num, txt)
+        unsel = _equals(item.unselected, num, txt) if item.unselected is not None else np.zeros(n, bool)
+        mark = (sel | unsel) & ~blank & (idx < 0)
+        any_mark |= mark
+        any_invalid |= ~blank & (idx < 0) & ~mark
+        first_code = np.where((first_code < 0) & (idx >= 0), idx, first_code).astype(np.int8)
+    table = np.array([_KIND_OF[c.kind] for c in item.codes] + [0], dtype=np.int8)
+    kind = np.full(n, BLANK, dtype=np.int8)
+    coded = first_code >= 0
+    kind[coded] = table[first_code[coded]]
+    kind[any_mark] = SUBST
+    kind[any_invalid] = INVALID
+    code = np.where(any_mark | any_invalid, -1, first_code).astype(np.int8)
+    return Decoded(kind=kind, code=code, values=np.full(n, np.nan))
+
+
+def _equals(value: object, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
+    if isinstance(value, str):
+        return (txt == value) if txt is not None else np.zeros(len(num), bool)
+    return num == float(value)  # type: ignore[arg-type]

@@ -1,0 +1,233 @@
+"""The :class:`Classification` result: statuses, counts, per-case summaries, faults.
+
+Statuses are held as a compact int8 code matrix (cases x items) with a fixed
+list of categories; :attr:`Classification.status` presents them as a frame of
+categorical status strings.  Every count is a plain sum over cases, so counts
+of chunks of rows add up to the counts of the whole file.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+
+import numpy as np
+import pandas as pd
+
+from skipwise.classify import cells as K
+from skipwise.classify import statuses as S
+from skipwise.questionnaire.model import ItemType, Questionnaire
+from skipwise.rules import ast
+from skipwise.rules.evaluate import TRUE, UNK
+
+__all__ = ["Classification", "status_categories"]
+
+
+def status_categories(q: Questionnaire) -> tuple[str, ...]:
+    """All statuses a questionnaire can produce, in report order."""
+    return (S.ANSWERED, S.SKIPPED, *q.nonresponse_reasons, S.ITEM_MISSING, S.GATE_UNKNOWN, S.BREAKOFF,
+            S.OFF_ROUTE, S.WRONG_CODE, S.INVALID)
+
+
+@dataclass(frozen=True, eq=False)
+class Classification:
+    """Statuses of every (case, item) and what follows from them.
+
+    Attributes
+    ----------
+    questionnaire
+        The questionnaire classified against.
+    codes
+        int8 matrix (cases x items) of indexes into ``categories``.
+    kinds, universe
+        What each cell stored (:mod:`skipwise.classify.cells`) and the
+        three-valued universe of each cell (0 out, 1 unknown, 2 in).
+    """
+
+    questionnaire: Questionnaire
+    codes: np.ndarray
+    kinds: np.ndarray
+    universe: np.ndarray
+    categories: tuple[str, ...]
+    index: pd.Index
+    case_ids: np.ndarray
+    data: pd.DataFrame
+
+    # -- statuses -----------------------------------------------------------------------------
+    @property
+    def items(self) -> tuple[str, ...]:
+        return self.questionnaire.item_names
+
+    @cached_property
+    def status(self) -> pd.DataFrame:
+        """One column per item, the data's row order and index, categorical status strings."""
+        cols = {name: pd.Categorical.from_codes(self.codes[:, j], categories=list(self.categories))
+                for j, name in enumerate(self.items)}
+        return pd.DataFrame(cols, index=self.index)
+
+    def code(self, status: str) -> int:
+        return self.categories.index(status)
+
+    def _is(self, statuses: tuple[str, ...] | list[str]) -> np.ndarray:
+        wanted = [self.categories.index(s) for s in statuses if s in self.categories]
+        return np.isin(self.codes, wanted)
+
+    def mask(self, *statuses: str) -> pd.DataFrame:
+        """Boolean frame: cells holding any of the given statuses."""
+        return pd.DataFrame(self._is(list(statuses)), index=self.index, columns=list(self.items))
+
+    @property
+    def nonresponse_statuses(self) -> tuple[str, ...]:
+        return (*self.questionnaire.nonresponse_reasons, S.ITEM_MISSING)
+
+    def nonresponse_mask(self) -> pd.DataFrame:
+        """In-universe item nonresponse: a nonresponse reason or ``item_missing``."""
+        return self.mask(*self.nonresponse_statuses)
+
+    @cached_property
+    def _applicable(self) -> np.ndarray:
+        """In universe: the rule held, or it was unknown but the cell shows the item was asked."""
+        asked = (self.kinds == K.SUBST) | (self.kinds == K.NONRESP)
+        return (self.universe == TRUE) | ((self.universe == UNK) & asked) | (self.codes == self.code(S.BREAKOFF))
+
+    def universe_mask(self) -> pd.DataFrame:
+        """Cells in the item's universe (break-offs included; gate unknown excluded)."""
+        return pd.DataFrame(self._applicable, index=self.index, columns=list(self.items))
+
+    # -- counts -------------------------------------------------------------------------------
+    def counts(self, weight: pd.Series | np.ndarray | None = None) -> pd.DataFrame:
+        """Count (or weighted total) of every status for every item: items x statuses."""
+        w = _weights(weight, len(self.index))
+        k = len(self.categories)
+        rows = [np.bincount(self.codes[:, j], weights=w, minlength=k) for j in range(len(self.items))]
+        out = pd.DataFrame(np.array(rows).reshape(len(self.items), k), index=list(self.items),
+                           columns=list(self.categories))
+        return out if w is not None else out.astype(np.int64)
+
+    def item_summary(self, weight: pd.Series | np.ndarray | None = None) -> pd.DataFrame:
+        """Per item: cases, cases in universe, every status count and the nonresponse rates.
+
+        The item nonresponse rate (DESIGN §3) is (nonresponse reasons +
+        ``item_missing``) / (cases in universe, excluding ``breakoff``);
+        ``gate_unknown`` and ``breakoff`` are shown apart and are in neither
+        numerator nor denominator.
+        """
+        w = _weights(weight, len(self.index))
+        counts = self.counts(w)
+        wv = np.ones(len(self.index)) if w is None else w
+        applicable = self._applicable & (self.codes != self.code(S.BREAKOFF))
+        denom = pd.Series(wv @ applicable, index=list(self.items))
+        nonresp = counts[list(self.nonresponse_statuses)].sum(axis=1)
+        q = self.questionnaire
+        out = pd.DataFrame({
+            "section": [q.item(i).section for i in self.items],
+            "item": list(self.items),
+            "label": [q.item(i).label for i in self.items],
+            "rule": [q.item(i).rule_text for i in self.items],
+            "cases": float(wv.sum()) if w is not None else len(self.index),
+            "in_universe": denom if w is not None else denom.astype(np.int64),
+        }, index=list(self.items))
+        out = pd.concat([out, counts], axis=1)
+        out["nonresponse"] = nonresp
+        with np.errstate(invalid="ignore", divide="ignore"):
+            out["nonresponse_rate"] = np.where(denom > 0, nonresp / denom, np.nan)
+            for reason in q.nonresponse_reasons:
+                out[f"{reason}_rate"] = np.where(denom > 0, counts[reason] / denom, np.nan)
+        return out
+
+    @cached_property
+    def cases(self) -> pd.DataFrame:
+        """Per case: items applicable, answered, nonresponse, break-off, faults and share answered."""
+        applicable = self._applicable.sum(axis=1)
+        answered = (self.codes == self.code(S.ANSWERED)).sum(axis=1)
+        nonresp = self._is(self.nonresponse_statuses).sum(axis=1)
+        broke = (self.codes == self.code(S.BREAKOFF)).sum(axis=1)
+        faults = self._is(S.FAULT_STATUSES).sum(axis=1)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            share = np.where(applicable > 0, answered / np.maximum(applicable, 1), np.nan)
+        return pd.DataFrame({
+            "case_id": self.case_ids, "applicable": applicable, "answered": answered,
+            "nonresponse": nonresp, "breakoff_items": broke, "broke_off": broke > 0,
+            "faults": faults, "share_answered": share,
+        }, index=self.index)
+
+    # -- routing faults -----------------------------------------------------------------------
+    @cached_property
+    def faults(self) -> pd.DataFrame:
+        """One row per ``off_route``, ``wrong_code`` or ``invalid`` cell, with the rule and its inputs."""
+        frames = []
+        fault_codes = [self.code(s) for s in S.FAULT_STATUSES]
+        for j, name in enumerate(self.items):
+            rows = np.flatnonzero(np.isin(self.codes[:, j], fault_codes))
+            if rows.size == 0:
+                continue
+            item = self.questionnaire.item(name)
+            frames.append(pd.DataFrame({
+                "case_id": self.case_ids[rows],
+                "item": name,
+                "status": np.asarray(self.categories, dtype=object)[self.codes[rows, j]],
+                "value": _stored_text(self.data, item.columns, rows, multi=item.type is ItemType.MULTI),
+                "rule": item.rule_text,
+                "inputs": _inputs_text(self.data, item.rule, rows),
+            }))
+        cols = ["case_id", "item", "status", "value", "rule", "inputs"]
+        if not frames:
+            return pd.DataFrame({c: pd.Series(dtype=object) for c in cols})
+        return pd.concat(frames, ignore_index=True)[cols]
+
+    # -- analysis views -----------------------------------------------------------------------
+    def analysis_values(self, data: pd.DataFrame | None = None) -> pd.DataFrame:
+        """Numeric stored values where the item is answered, NaN elsewhere (multi sets: option columns)."""
+        data = self.data if data is None else data
+        out = {}
+        answered = self.codes == self.code(S.ANSWERED)
+        for j, name in enumerate(self.items):
+            item = self.questionnaire.item(name)
+            for col in item.columns:
+                num, _, _ = K.column_views(data[col])
+                out[col] = np.where(answered[:, j], num, np.nan)
+        return pd.DataFrame(out, index=self.index)
+
+
+def _weights(weight: pd.Series | np.ndarray | None, n: int) -> np.ndarray | None:
+    if weight is None:
+        return None
+    w = np.asarray(weight, dtype=np.float64)
+    if w.shape != (n,):
+        raise ValueError(f"weight has {w.shape[0] if w.ndim else 0} values for {n} cases")
+    return np.where(np.isnan(w), 0.0, w)
+
+
+def _cell_text(series: pd.Series) -> pd.Series:
+    """Stored cells as text; whole numbers without a trailing '.0'."""
+    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
+        x = series.to_numpy(dtype=np.float64, na_value=np.nan)
+        whole = np.isfinite(x) & (np.floor(x) == x)
+        text = np.where(whole, np.char.mod("%d", np.where(whole, x, 0).astype(np.int64)), x.astype(str))
+        return pd.Series(np.where(np.isnan(x), "", text), index=series.index, dtype=object)
+    return series.astype(object).where(series.notna(), "").astype(str)
+
+
+def _stored_text(data: pd.DataFrame, columns: tuple[str, ...], rows: np.ndarray, *, multi: bool) -> np.ndarray:
+    part = data.iloc[rows]
+    if not multi:
+        return _cell_text(part[columns[0]]).to_numpy(dtype=object)
+    joined = None
+    for col in columns:
+        piece = col + "=" + _cell_text(part[col])
+        joined = piece if joined is None else joined + "; " + piece
+    return joined.to_numpy(dtype=object)
+
+
+def _inputs_text(data: pd.DataFrame, rule: ast.BoolNode | None, rows: np.ndarray) -> np.ndarray:
+    if rule is None:
+        return np.full(rows.size, "", dtype=object)
+    names = list(dict.fromkeys(n for n, _ in ast.names(rule)))
+    part = data.iloc[rows]
+    joined = None
+    for name in names:
+        cols = [name] if name in data.columns else [c for c in data.columns if str(c).startswith(name + "_")]
+        for col in cols:
+            piece = col + "=" + _cell_text(part[col])
+            joined = piece if joined is None else joined + "; " + piece
+    return (joined if joined is not None else pd.Series("", index=part.index)).to_numpy(dtype=object)
