@@ -1,0 +1,429 @@
+"""The weighting plan file (YAML): loading, validation with line numbers, typed specs.
+
+The keys are documented in ``docs/weighting.md``.  Every problem found is
+reported together, each with the file and line, and an unknown key with the
+nearest valid key.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Mapping
+
+import yaml
+
+from skipwise.errors import Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
+from skipwise.weighting.outcomes import OUTCOME_CATEGORIES
+
+__all__ = ["WeightingPlan", "DispositionSpec", "SplitSpec", "NonresponseSpec", "CalibrationSpec",
+           "TrimSpec", "ReplicateSpec", "EstimateSpec", "load_plan", "parse_plan"]
+
+PLAN_FORMAT = 1
+
+
+@dataclass(frozen=True, kw_only=True)
+class SplitSpec:
+    """Complete / partial / break-off from the share of applicable items answered."""
+
+    applies_to: tuple[str, ...] = ("I", "P")
+    breakoff_below: float = 0.5
+    complete_above: float = 0.8
+    breakoff_to: str = "R"
+
+
+@dataclass(frozen=True, kw_only=True)
+class DispositionSpec:
+    column: str
+    codes: Mapping[str, str]  # normalised disposition label -> outcome category
+    split: SplitSpec | None = None
+    partials_respond: bool = True
+
+
+@dataclass(frozen=True, kw_only=True)
+class NonresponseSpec:
+    method: str = "classes"
+    classes: tuple[str, ...] = ()
+    min_respondents: int = 20
+    max_factor: float = 2.0
+    covariates: tuple[str, ...] = ()
+    categorical: tuple[str, ...] = ()
+    propensity_use: str = "inverse"
+    propensity_classes: int = 5
+
+
+@dataclass(frozen=True, kw_only=True)
+class CalibrationSpec:
+    method: str = "rake"
+    margins: Mapping[str, Mapping[Any, float]] = field(default_factory=dict)
+    totals: Mapping[str, float] = field(default_factory=dict)
+    bounds: tuple[float, float] = (0.5, 2.0)
+    tolerance: float = 1e-10
+    max_iterations: int = 1000
+
+
+@dataclass(frozen=True, kw_only=True)
+class TrimSpec:
+    median_multiple: float | None = None
+    percentile: float | None = None
+    tolerance: float = 1e-6
+    max_iterations: int = 50
+
+
+@dataclass(frozen=True, kw_only=True)
+class ReplicateSpec:
+    method: str = "jackknife"
+    psu: str | None = None
+    strata: str | None = None
+    count: int = 200
+    seed: int = 12345
+
+
+@dataclass(frozen=True, kw_only=True)
+class EstimateSpec:
+    means: tuple[str, ...] = ()
+    proportions: tuple[str, ...] = ()
+    exclude_values: tuple[Any, ...] = ()
+
+
+@dataclass(frozen=True, kw_only=True)
+class WeightingPlan:
+    """A validated weighting plan; ``lines`` maps key paths to plan-file lines."""
+
+    file: str | None
+    dispositions: DispositionSpec
+    case_id: str | None = None
+    e: float | None = None
+    base_probability: str | None = None
+    base_weight: str | None = None
+    eligibility_classes: tuple[str, ...] | None = None
+    nonresponse: NonresponseSpec | None = None
+    calibration: CalibrationSpec | None = None
+    trimming: TrimSpec | None = None
+    replicates: ReplicateSpec | None = None
+    estimates: EstimateSpec | None = None
+    workbook: str | None = None
+    prefix: str = "wt_"
+    lines: Mapping[tuple, int] = field(default_factory=dict)
+
+    def line(self, *path: object) -> int | None:
+        """Plan-file line of a key path, or of its nearest known parent."""
+        p = tuple(path)
+        while p:
+            if p in self.lines:
+                return self.lines[p]
+            p = p[:-1]
+        return None
+
+    def locate(self, variable: str, category: object | None) -> dict:
+        """Location of a calibration margin (or one of its categories) for problem records."""
+        from skipwise.weighting.margins import category_label
+
+        line = None
+        if category is not None:
+            for key, ln in self.lines.items():
+                if key[:3] == ("calibration", "margins", variable) and len(key) == 4 \
+                        and category_label(key[3]) == category_label(category):
+                    line = ln
+        return {"file": self.file, "line": line or self.line("calibration", "margins", variable)}
+
+
+# --- YAML with line numbers -----------------------------------------------------------------
+
+def _compose(text: str, file: str | None) -> tuple[Any, dict[tuple, int]]:
+    loader = yaml.SafeLoader(text)
+    try:
+        node = loader.get_single_node()
+        if node is None:
+            return None, {}
+        lines: dict[tuple, int] = {}
+
+        def walk(n: yaml.Node, path: tuple) -> None:
+            if isinstance(n, yaml.MappingNode):
+                for k, v in n.value:
+                    key = loader.construct_object(k, deep=True)
+                    lines[path + (key,)] = k.start_mark.line + 1
+                    walk(v, path + (key,))
+            elif isinstance(n, yaml.SequenceNode):
+                for i, v in enumerate(n.value):
+                    lines[path + (i,)] = v.start_mark.line + 1
+                    walk(v, path + (i,))
+
+        walk(node, ())
+        data = loader.construct_document(node)
+        return data, lines
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        raise SkipwiseError(Problem(code=ProblemCode.YAML_SYNTAX, file=file,
+                                    line=mark.line + 1 if mark else None,
+                                    column=mark.column + 1 if mark else None,
+                                    message=f"not valid YAML: {getattr(exc, 'problem', exc)}",
+                                    hint="check indentation, colons and quotes")) from None
+    finally:
+        loader.dispose()
+
+
+class _Checker:
+    def __init__(self, file: str | None, lines: dict[tuple, int]):
+        self.problems = ProblemList(file=file)
+        self.lines = lines
+
+    def line(self, path: tuple) -> int | None:
+        while path:
+            if path in self.lines:
+                return self.lines[path]
+            path = path[:-1]
+        return None
+
+    def add(self, code: ProblemCode, path: tuple, message: str, hint: str | None = None) -> None:
+        self.problems.add(code, message, line=self.line(path), item=".".join(map(str, path)) or None, hint=hint)
+
+    def mapping(self, value: Any, path: tuple, allowed: tuple[str, ...], required: tuple[str, ...] = ()) -> dict:
+        if value is None:
+            value = {}
+        if not isinstance(value, dict):
+            self.add(ProblemCode.BAD_VALUE, path, f"'{'.'.join(map(str, path))}' must be a mapping of keys")
+            return {}
+        for key in value:
+            if key not in allowed:
+                self.add(ProblemCode.UNKNOWN_KEY, path + (key,), f"unknown key '{key}'",
+                         did_you_mean(str(key), allowed) or f"valid keys: {', '.join(allowed)}")
+        for key in required:
+            if key not in value:
+                self.add(ProblemCode.MISSING_KEY, path, f"key '{key}' is required")
+        return value
+
+    def number(self, m: dict, key: str, path: tuple, default: float | None, *, low: float | None = None,
+               high: float | None = None, integer: bool = False) -> float | None:
+        if key not in m:
+            return default
+        v = m[key]
+        ok = isinstance(v, (int, float)) and not isinstance(v, bool) and math.isfinite(v)
+        if ok and integer and not float(v).is_integer():
+            ok = False
+        if ok and ((low is not None and v < low) or (high is not None and v > high)):
+            ok = False
+        if not ok:
+            rng = f" between {low:g} and {high:g}" if low is not None and high is not None else (
+                f" of at least {low:g}" if low is not None else "")
+            self.add(ProblemCode.BAD_VALUE, path + (key,),
+                     f"'{key}' must be {'a whole number' if integer else 'a number'}{rng}, got {v!r}")
+            return default
+        return int(v) if integer else float(v)
+
+    def name(self, m: dict, key: str, path: tuple) -> str | None:
+        v = m.get(key)
+        if v is None:
+            return None
+        if not isinstance(v, str) or not v:
+            self.add(ProblemCode.BAD_VALUE, path + (key,), f"'{key}' must be a column name, got {v!r}")
+            return None
+        return v
+
+    def names(self, m: dict, key: str, path: tuple) -> tuple[str, ...]:
+        v = m.get(key, [])
+        if isinstance(v, str):
+            v = [v]
+        if not isinstance(v, list) or not all(isinstance(x, str) for x in v):
+            self.add(ProblemCode.BAD_VALUE, path + (key,), f"'{key}' must be a list of column names")
+            return ()
+        return tuple(v)
+
+    def choice(self, m: dict, key: str, path: tuple, choices: tuple[str, ...], default: str) -> str:
+        v = m.get(key, default)
+        if v not in choices:
+            self.add(ProblemCode.BAD_VALUE, path + (key,), f"'{key}' must be one of {', '.join(choices)}, got {v!r}",
+                     did_you_mean(str(v), choices))
+            return default
+        return v
+
+
+TOP_KEYS = ("format", "case_id", "dispositions", "e", "base", "eligibility", "nonresponse",
+            "calibration", "trimming", "replicates", "estimates", "output")
+
+
+def _dispositions(c: _Checker, raw: Any) -> DispositionSpec:
+    from skipwise.weighting.margins import category_label
+
+    p = ("dispositions",)
+    m = c.mapping(raw, p, ("column", "categories", "interview_split", "partials_count_as_respondents"),
+                  required=("column", "categories"))
+    cats = c.mapping(m.get("categories"), p + ("categories",), OUTCOME_CATEGORIES)
+    codes: dict[str, str] = {}
+    for cat, values in cats.items():
+        vals = values if isinstance(values, list) else [values]
+        for i, v in enumerate(vals):
+            if v is None or isinstance(v, (dict, list)):
+                c.add(ProblemCode.BAD_VALUE, p + ("categories", cat), f"disposition code {v!r} must be a value")
+                continue
+            lab = category_label(v)
+            if lab in codes and codes[lab] != cat:
+                c.add(ProblemCode.CODE_COLLISION, p + ("categories", cat, i),
+                      f"disposition code {v!r} is mapped to both {codes[lab]} and {cat}")
+            codes[lab] = cat
+    if "I" not in cats and "categories" in m:
+        c.add(ProblemCode.MISSING_KEY, p + ("categories",), "no disposition is mapped to complete interviews (I)")
+    split = None
+    if m.get("interview_split") is not None:
+        sp = p + ("interview_split",)
+        s = c.mapping(m["interview_split"], sp, ("applies_to", "breakoff_below", "complete_above", "breakoff_to"))
+        applies = c.names(s, "applies_to", sp) or ("I", "P")
+        for a in applies:
+            if a not in OUTCOME_CATEGORIES:
+                c.add(ProblemCode.BAD_VALUE, sp + ("applies_to",), f"'{a}' is not an outcome category",
+                      did_you_mean(a, OUTCOME_CATEGORIES))
+        lo = c.number(s, "breakoff_below", sp, 0.5, low=0, high=1)
+        hi = c.number(s, "complete_above", sp, 0.8, low=0, high=1)
+        if lo is not None and hi is not None and lo > hi:
+            c.add(ProblemCode.BAD_VALUE, sp, f"breakoff_below ({lo}) must not exceed complete_above ({hi})")
+        split = SplitSpec(applies_to=applies, breakoff_below=lo, complete_above=hi,
+                          breakoff_to=c.choice(s, "breakoff_to", sp, ("R", "P", "O"), "R"))
+    partials = m.get("partials_count_as_respondents", True)
+    if not isinstance(partials, bool):
+        c.add(ProblemCode.BAD_VALUE, p + ("partials_count_as_respondents",), "must be true or false")
+        partials = True
+    return DispositionSpec(column=c.name(m, "column", p) or "", codes=codes, split=split, partials_respond=partials)
+
+
+def _margins(c: _Checker, raw: Any, path: tuple) -> dict:
+    if raw is None:
+        return {}
+    if not isinstance(raw, dict):
+        c.add(ProblemCode.BAD_VALUE, path, "margins must map each variable to {category: total}")
+        return {}
+    out = {}
+    for var, cats in raw.items():
+        if not isinstance(cats, dict) or not cats:
+            c.add(ProblemCode.BAD_VALUE, path + (var,), f"margin '{var}' must map categories to population totals")
+            continue
+        for cat, tot in cats.items():
+            if isinstance(cat, bool):
+                c.add(ProblemCode.BAD_VALUE, path + (var, cat), f"category key read as {cat}",
+                      "YAML reads yes/no/on/off as true/false: quote the key, e.g. \"yes\": 120")
+            if isinstance(tot, bool) or not isinstance(tot, (int, float)) or tot < 0:
+                c.add(ProblemCode.BAD_VALUE, path + (var, cat), f"target of {var}={cat} must be a non-negative number")
+        out[str(var)] = cats
+    totals = {v: sum(float(t) for t in cs.values() if isinstance(t, (int, float)) and not isinstance(t, bool))
+              for v, cs in out.items()}
+    if len(totals) > 1 and max(totals.values()) - min(totals.values()) > 1e-6 * max(max(totals.values()), 1.0):
+        listing = ", ".join(f"{v}={t:,.6g}" for v, t in totals.items())
+        c.add(ProblemCode.BAD_VALUE, path, f"margins add to different totals ({listing})",
+              "every margin must describe the same population total")
+    return out
+
+
+def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | None = None) -> WeightingPlan:
+    """Validate a plan already read from YAML (``raw``) and build a :class:`WeightingPlan`."""
+    c = _Checker(file, lines or {})
+    top = c.mapping(raw, (), TOP_KEYS, required=("format", "dispositions"))
+    if "format" in top and top["format"] != PLAN_FORMAT:
+        c.add(ProblemCode.FORMAT_VERSION, ("format",), f"plan format {top['format']!r} is not supported",
+              f"write format: {PLAN_FORMAT}")
+    disp = _dispositions(c, top.get("dispositions")) if "dispositions" in top else DispositionSpec(column="", codes={})
+    e = None
+    if top.get("e", "estimate") != "estimate":
+        e = c.number(top, "e", (), None, low=0, high=1)
+    base = c.mapping(top.get("base"), ("base",), ("probability", "weight"))
+    if "probability" in base and "weight" in base:
+        c.add(ProblemCode.BAD_VALUE, ("base",), "give either 'probability' or 'weight', not both")
+    elig = None
+    if "eligibility" in top:
+        em = c.mapping(top["eligibility"], ("eligibility",), ("classes",))
+        elig = c.names(em, "classes", ("eligibility",))
+    nr = None
+    if "nonresponse" in top:
+        p = ("nonresponse",)
+        m = c.mapping(top["nonresponse"], p, ("method", "classes", "min_respondents", "max_factor", "covariates",
+                                               "categorical", "propensity_use", "propensity_classes"))
+        method = c.choice(m, "method", p, ("classes", "propensity"), "classes")
+        nr = NonresponseSpec(
+            method=method, classes=c.names(m, "classes", p),
+            min_respondents=c.number(m, "min_respondents", p, 20, low=1, integer=True),
+            max_factor=c.number(m, "max_factor", p, 2.0, low=1),
+            covariates=c.names(m, "covariates", p), categorical=c.names(m, "categorical", p),
+            propensity_use=c.choice(m, "propensity_use", p, ("inverse", "classes"), "inverse"),
+            propensity_classes=c.number(m, "propensity_classes", p, 5, low=1, integer=True))
+        if method == "propensity" and not nr.covariates:
+            c.add(ProblemCode.MISSING_KEY, p, "the propensity method needs 'covariates'")
+    cal = None
+    if "calibration" in top:
+        p = ("calibration",)
+        m = c.mapping(top["calibration"], p, ("method", "margins", "totals", "bounds", "tolerance", "max_iterations"))
+        method = c.choice(m, "method", p, ("poststratify", "rake", "linear", "logit"), "rake")
+        margins = _margins(c, m.get("margins"), p + ("margins",))
+        totals = m.get("totals") or {}
+        if not isinstance(totals, dict) or not all(isinstance(v, (int, float)) and not isinstance(v, bool)
+                                                   for v in totals.values()):
+            c.add(ProblemCode.BAD_VALUE, p + ("totals",), "totals must map numeric variables to population totals")
+            totals = {}
+        if totals and method not in ("linear", "logit"):
+            c.add(ProblemCode.BAD_VALUE, p + ("totals",), f"numeric totals need method linear or logit, not {method}")
+        if not margins and not totals:
+            c.add(ProblemCode.MISSING_KEY, p, "calibration needs 'margins' (or 'totals')")
+        if method == "poststratify" and len(margins) != 1:
+            c.add(ProblemCode.BAD_VALUE, p + ("margins",),
+                  "post-stratification takes exactly one margin (cross the variables into one column first)")
+        bounds = m.get("bounds", [0.5, 2.0])
+        if not (isinstance(bounds, list) and len(bounds) == 2 and all(isinstance(b, (int, float)) for b in bounds)
+                and 0 <= bounds[0] < 1 < bounds[1]):
+            c.add(ProblemCode.BAD_VALUE, p + ("bounds",), f"bounds must be [L, U] with 0 <= L < 1 < U, got {bounds!r}")
+            bounds = [0.5, 2.0]
+        cal = CalibrationSpec(method=method, margins=margins, totals=totals, bounds=(float(bounds[0]), float(bounds[1])),
+                              tolerance=c.number(m, "tolerance", p, 1e-10, low=0),
+                              max_iterations=c.number(m, "max_iterations", p, 1000, low=1, integer=True))
+    trim = None
+    if "trimming" in top:
+        p = ("trimming",)
+        m = c.mapping(top["trimming"], p, ("median_multiple", "percentile", "tolerance", "max_iterations"))
+        if ("median_multiple" in m) == ("percentile" in m):
+            c.add(ProblemCode.BAD_VALUE, p, "give exactly one of 'median_multiple' and 'percentile'")
+        trim = TrimSpec(median_multiple=c.number(m, "median_multiple", p, None, low=1),
+                        percentile=c.number(m, "percentile", p, None, low=0, high=100),
+                        tolerance=c.number(m, "tolerance", p, 1e-6, low=0),
+                        max_iterations=c.number(m, "max_iterations", p, 50, low=1, integer=True))
+    rep = None
+    if "replicates" in top:
+        p = ("replicates",)
+        m = c.mapping(top["replicates"], p, ("method", "psu", "strata", "count", "seed"))
+        rep = ReplicateSpec(method=c.choice(m, "method", p, ("jackknife", "bootstrap"), "jackknife"),
+                            psu=c.name(m, "psu", p), strata=c.name(m, "strata", p),
+                            count=c.number(m, "count", p, 200, low=2, integer=True),
+                            seed=c.number(m, "seed", p, 12345, low=0, integer=True))
+    est = None
+    if "estimates" in top:
+        p = ("estimates",)
+        m = c.mapping(top["estimates"], p, ("means", "proportions", "exclude_values"))
+        excl = m.get("exclude_values", [])
+        est = EstimateSpec(means=c.names(m, "means", p), proportions=c.names(m, "proportions", p),
+                           exclude_values=tuple(excl if isinstance(excl, list) else [excl]))
+    out = c.mapping(top.get("output"), ("output",), ("workbook", "prefix"))
+    c.problems.raise_if_any(headline=f"{len(c.problems)} problem(s) in weighting plan {file or ''}".strip())
+    return WeightingPlan(
+        file=file, dispositions=disp, case_id=c.name(top, "case_id", ()), e=e,
+        base_probability=base.get("probability"), base_weight=base.get("weight"), eligibility_classes=elig,
+        nonresponse=nr, calibration=cal, trimming=trim, replicates=rep, estimates=est,
+        workbook=out.get("workbook"), prefix=str(out.get("prefix", "wt_")), lines=dict(lines or {}))
+
+
+def load_plan(path: str | Path | None = None, *, text: str | None = None) -> WeightingPlan:
+    """Read and validate a weighting plan from ``path`` or from ``text``.
+
+    Raises
+    ------
+    SkipwiseError
+        ``file-not-found``, ``yaml-syntax``, or every plan problem at once
+        (unknown keys with the nearest valid key, missing keys, bad values),
+        each with its line.
+    """
+    file = None if path is None else str(path)
+    if text is None:
+        if path is None:
+            raise SkipwiseError("give a plan path or text")
+        try:
+            text = Path(path).read_text(encoding="utf-8")
+        except FileNotFoundError:
+            raise SkipwiseError(Problem(code=ProblemCode.FILE_NOT_FOUND, file=file,
+                                        message="weighting plan file not found")) from None
+    raw, lines = _compose(text, file)
+    return parse_plan(raw, file=file, lines=lines)

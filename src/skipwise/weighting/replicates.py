@@ -1,0 +1,235 @@
+"""Replicate weights (jackknife, Rao–Wu bootstrap) and replicate standard errors.
+
+Each replicate multiplies the base weights by its factors and re-runs the whole
+weighting chain (:func:`skipwise.weighting.pipeline.run_chain`), so the
+variance reflects every adjustment and calibration step.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+from skipwise.weighting.margins import category_label
+from skipwise.weighting.pipeline import Prepared, Structure, run_chain
+
+__all__ = ["ReplicateDesign", "jackknife_design", "bootstrap_design", "replicate_variance",
+           "run_replicates", "weighted_estimates", "replicate_standard_errors", "MAX_REPLICATES"]
+
+#: Largest number of replicates built (memory: cases × replicates floats).
+MAX_REPLICATES = 5000
+
+
+@dataclass(frozen=True, kw_only=True)
+class ReplicateDesign:
+    """Base-weight factors of every replicate and the variance formula's coefficients.
+
+    ``factors`` has one row per case and one column per replicate; the variance
+    is ``Σ_r coef_r (θ_r − θ̄_{group_r})²`` where θ̄ is the mean of the
+    replicates in the same ``group`` (the stratum for JKn, all for JK1 and the
+    bootstrap).
+    """
+
+    method: str
+    factors: np.ndarray
+    coef: np.ndarray
+    group: np.ndarray
+
+    @property
+    def count(self) -> int:
+        return self.factors.shape[1]
+
+
+def _units(frame: pd.DataFrame, psu: str | None, strata: str | None) -> tuple[np.ndarray, np.ndarray]:
+    problems = []
+    for col, what in ((psu, "PSU"), (strata, "stratum")):
+        if col is not None and col not in frame.columns:
+            problems.append(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=col,
+                                    message=f"{what} column '{col}' is not in the data",
+                                    hint=did_you_mean(col, map(str, frame.columns))))
+        elif col is not None and frame[col].isna().any():
+            problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=col,
+                                    message=f"{int(frame[col].isna().sum())} case(s) have no {what}"))
+    if problems:
+        raise SkipwiseError(problems)
+    n = len(frame)
+    stratum = np.zeros(n, dtype=np.intp) if strata is None else pd.factorize(frame[strata], sort=True)[0]
+    if psu is None:
+        unit = np.arange(n)
+    else:
+        # PSU labels are nested in strata: the same label in two strata is two PSUs
+        unit = pd.MultiIndex.from_arrays([stratum, frame[psu].to_numpy()]).factorize()[0] if strata \
+            else pd.factorize(frame[psu], sort=True)[0]
+    return unit.astype(np.intp), stratum.astype(np.intp)
+
+
+def _psu_strata(unit: np.ndarray, stratum: np.ndarray) -> np.ndarray:
+    n_units = int(unit.max()) + 1
+    of_unit = np.zeros(n_units, dtype=np.intp)
+    of_unit[unit] = stratum
+    return of_unit
+
+
+def _check_count(r: int) -> None:
+    if r > MAX_REPLICATES:
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, item="replicates",
+                                    message=f"{r:,} replicates requested (more than {MAX_REPLICATES:,})",
+                                    hint="name a PSU column that groups cases, or use the bootstrap"))
+
+
+def jackknife_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None) -> ReplicateDesign:
+    """Delete-one-PSU jackknife: JK1 without strata, JKn with strata.
+
+    Replicate (h, j) sets the weights of PSU j to 0 and multiplies the other PSUs
+    of stratum h by ``n_h/(n_h−1)``.  Without a PSU column each case is its own PSU.
+
+    References
+    ----------
+    Quenouille, M. H. (1956). Notes on bias in estimation. *Biometrika* 43, 353–360.
+    Wolter, K. M. (2007). *Introduction to Variance Estimation*, 2nd ed., ch. 4. Springer.
+    """
+    unit, stratum = _units(frame, psu, strata)
+    of_unit = _psu_strata(unit, stratum)
+    n_units = len(of_unit)
+    _check_count(n_units)
+    n_h = np.bincount(of_unit)
+    if (n_h < 2).any():
+        bad = np.flatnonzero(n_h < 2)
+        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=strata or psu,
+                                    message=f"{len(bad)} stratum(s) have a single PSU; the jackknife needs two",
+                                    hint="collapse single-PSU strata with a neighbouring stratum"))
+    # unit-by-replicate factor matrix: replicate r deletes unit r
+    same = of_unit[:, None] == of_unit[None, :]
+    f_units = np.where(same, (n_h / (n_h - 1.0))[of_unit][None, :], 1.0)
+    np.fill_diagonal(f_units, 0.0)
+    stratified = strata is not None
+    coef = ((n_h - 1.0) / n_h)[of_unit]
+    return ReplicateDesign(method="JKn" if stratified else "JK1", factors=f_units[unit], coef=coef,
+                           group=of_unit if stratified else np.zeros(n_units, dtype=np.intp))
+
+
+def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None, *,
+                     count: int = 200, seed: int = 12345) -> ReplicateDesign:
+    """Rao–Wu rescaling bootstrap with ``m_h = n_h − 1`` PSUs drawn per stratum.
+
+    Replicate factor of PSU i in stratum h: ``(n_h/(n_h−1)) · m*_hi``, with
+    m*_hi the times PSU i was drawn.
+
+    References
+    ----------
+    Rao, J. N. K. & Wu, C. F. J. (1988). Resampling inference with complex survey
+    data. *JASA* 83(401), 231–241.
+    Rao, J. N. K., Wu, C. F. J. & Yue, K. (1992). Some recent work on resampling
+    methods for complex surveys. *Survey Methodology* 18(2), 209–217.
+    """
+    _check_count(count)
+    unit, stratum = _units(frame, psu, strata)
+    of_unit = _psu_strata(unit, stratum)
+    n_h = np.bincount(of_unit)
+    if (n_h < 2).any():
+        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=strata or psu,
+                                    message="a stratum has a single PSU; the bootstrap needs two",
+                                    hint="collapse single-PSU strata with a neighbouring stratum"))
+    rng = np.random.default_rng(seed)
+    f_units = np.zeros((len(of_unit), count))
+    for h, nh in enumerate(n_h):  # loop over strata, not cases
+        members = np.flatnonzero(of_unit == h)
+        draws = rng.integers(0, nh, size=(count, nh - 1))
+        counts = np.zeros((count, nh))
+        np.add.at(counts, (np.repeat(np.arange(count), nh - 1), draws.ravel()), 1.0)
+        f_units[members] = (counts * (nh / (nh - 1.0))).T
+    return ReplicateDesign(method="bootstrap", factors=f_units[unit], coef=np.full(count, 1.0 / count),
+                           group=np.zeros(count, dtype=np.intp))
+
+
+def replicate_variance(theta_r: np.ndarray, design: ReplicateDesign) -> np.ndarray:
+    """Replicate variance of each column of ``theta_r`` (replicates × estimates)."""
+    theta = np.asarray(theta_r, dtype=float)
+    flat = theta.reshape(theta.shape[0], -1)
+    var = np.zeros(flat.shape[1])
+    for g in np.unique(design.group):  # loop over strata (JKn) or once
+        sel = design.group == g
+        dev = flat[sel] - flat[sel].mean(axis=0)
+        var += np.sum(design.coef[sel][:, None] * dev * dev, axis=0)
+    return var.reshape(theta.shape[1:])
+
+
+def run_replicates(prep: Prepared, design: ReplicateDesign, structure: Structure | None = None,
+                   progress: Callable[[int], None] | None = None) -> np.ndarray:
+    """Final weights of every replicate (cases × replicates), re-running the whole chain."""
+    out = np.empty(design.factors.shape)
+    for r in range(design.count):
+        try:
+            out[:, r] = run_chain(prep, prep.base * design.factors[:, r], structure=structure, detail=False).final
+        except SkipwiseError as err:
+            raise SkipwiseError(err.problems, headline=f"replicate {r + 1} of {design.count} ({design.method}) "
+                                                       f"failed; collapse classes or categories") from None
+        if progress is not None:
+            progress(r + 1)
+    return out
+
+
+def _estimate_columns(frame: pd.DataFrame, respondent: np.ndarray, means: tuple[str, ...],
+                      proportions: tuple[str, ...], exclude: tuple) -> tuple[list[dict], np.ndarray, np.ndarray]:
+    excl = {category_label(v) for v in exclude}
+    rows, ys, valids = [], [], []
+    problems = []
+    for name in (*means, *proportions):
+        if name not in frame.columns:
+            problems.append(Problem(code=ProblemCode.MISSING_COLUMN, item=name,
+                                    message=f"estimate variable '{name}' is not in the data",
+                                    hint=did_you_mean(name, map(str, frame.columns))))
+    if problems:
+        raise SkipwiseError(problems)
+    for name in means:
+        col = pd.to_numeric(frame[name], errors="coerce")
+        labels = col.map(category_label, na_action="ignore")
+        valid = respondent & col.notna().to_numpy() & ~labels.isin(excl).to_numpy()
+        rows.append({"variable": name, "category": "", "kind": "mean"})
+        ys.append(np.where(valid, col.fillna(0).to_numpy(dtype=float), 0.0))
+        valids.append(valid)
+    for name in proportions:
+        col = frame[name]
+        labels = col.map(category_label, na_action="ignore")
+        valid = respondent & col.notna().to_numpy() & ~labels.isin(excl).to_numpy()
+        for cat in sorted(labels[valid].unique(), key=str):
+            rows.append({"variable": name, "category": cat, "kind": "proportion"})
+            ys.append((valid & (labels == cat).to_numpy()).astype(float))
+            valids.append(valid)
+    return rows, np.column_stack(ys) if ys else np.zeros((len(frame), 0)), \
+        np.column_stack(valids) if valids else np.zeros((len(frame), 0), dtype=bool)
+
+
+def weighted_estimates(y: np.ndarray, valid: np.ndarray, w: np.ndarray) -> np.ndarray:
+    """Weighted means ``Σ w y / Σ w`` over valid cases; w may be a (cases × replicates) matrix."""
+    v = valid.astype(float)
+    if w.ndim == 1:
+        return (w @ (y * v)) / (w @ v)
+    return ((y * v).T @ w / (v.T @ w)).T
+
+
+def replicate_standard_errors(frame: pd.DataFrame, respondent: np.ndarray, final: np.ndarray,
+                              replicates: np.ndarray, design: ReplicateDesign, *, means: tuple[str, ...] = (),
+                              proportions: tuple[str, ...] = (), exclude_values: tuple = ()) -> pd.DataFrame:
+    """Weighted means and proportions with replicate standard errors.
+
+    Cases with a missing value or a value in ``exclude_values`` (special codes)
+    are left out of each item's estimate.
+    """
+    rows, y, valid = _estimate_columns(frame, respondent, means, proportions, exclude_values)
+    if not rows:
+        return pd.DataFrame(columns=["variable", "category", "kind", "n", "estimate", "se", "replicates", "method"])
+    est = weighted_estimates(y, valid, final)
+    theta = weighted_estimates(y, valid, replicates)
+    se = np.sqrt(replicate_variance(theta, design))
+    table = pd.DataFrame(rows)
+    table["n"] = (valid & (final > 0)[:, None]).sum(axis=0)
+    table["estimate"] = est
+    table["se"] = se
+    table["replicates"] = design.count
+    table["method"] = design.method
+    return table
