@@ -71,7 +71,9 @@ def ols_fit(y: np.ndarray, x: np.ndarray) -> LinearFit:
         return LinearFit(params=beta, scale=float(resid @ resid) / df, df_resid=df,
                          normalized_cov_params=inv, resid=resid)
     except np.linalg.LinAlgError:
-        res = sm.OLS(y, x).fit()
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")  # rank deficiency is expected here; pinv handles it
+            res = sm.OLS(y, x).fit()
         return LinearFit(params=np.asarray(res.params), scale=float(res.scale), df_resid=float(res.df_resid),
                          normalized_cov_params=np.asarray(res.normalized_cov_params),
                          resid=np.asarray(res.resid))
