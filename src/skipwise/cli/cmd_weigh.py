@@ -1,1 +1,112 @@
-"""`skipwise weigh` (not yet written)."""
+"""`skipwise weigh`: outcome rates and nonresponse-adjusted, calibrated weights from a plan file."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import typer
+
+from skipwise.cli.app import app, fail
+from skipwise.errors import SkipwiseError
+
+HELP = (
+    "Weight a survey file by a weighting plan (YAML): map dispositions to outcome categories and "
+    "compute outcome rates; then base weights, unknown-eligibility and nonresponse adjustment, "
+    "calibration (post-stratification, raking, linear or bounded logit), trimming and replicate "
+    "weights, each step optional. Writes the data with weight columns in OUT's format and as "
+    "Parquet beside it, plus a diagnostics workbook (*_weights.xlsx).\n\n"
+    "Caution: nonresponse weighting does not repair data missing not at random (MNAR). The output "
+    "holds respondents' data — follow your organization's data protection rules and methodology "
+    "standards."
+)
+
+
+@app.command("weigh", help=HELP)
+def weigh_command(
+    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
+    plan: Annotated[Path, typer.Option("--plan", "-p", help="Weighting plan file (YAML); see docs/weighting.md.")],
+    out: Annotated[Path, typer.Option("--out", "-o", help="Weighted data file to write; its extension sets the format.")],
+    questionnaire: Annotated[Optional[Path], typer.Option(
+        "--questionnaire", "-q",
+        help="Questionnaire file; needed when the plan splits interviews by the share of items answered.")] = None,
+    workbook: Annotated[Optional[Path], typer.Option(
+        "--workbook", help="Diagnostics workbook path (default: the plan's output.workbook, else OUT_weights.xlsx).")] = None,
+    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+) -> None:
+    try:
+        from skipwise.io import read_survey, write_survey
+        from skipwise.io.atomic import check_writable
+        from skipwise.weighting.plan import load_plan
+        from skipwise.weighting.weigh import CAUTIONS, weigh
+        from skipwise.weighting.workbook import summary_rows, write_workbook
+
+        spec = load_plan(plan)
+        parquet = out.with_suffix(".parquet")
+        book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.stem + "_weights.xlsx"))
+        targets = [out] + ([parquet] if parquet != out else []) + [book]
+        for path in targets:
+            check_writable(path, overwrite=overwrite)
+        frame = read_survey(data)
+        share = None
+        if questionnaire is not None:
+            from skipwise.classify import classify
+            from skipwise.questionnaire import load_questionnaire
+
+            share = classify(frame, load_questionnaire(questionnaire)).cases["share_answered"]
+        bar: dict[str, object] = {}
+
+        def on_design(count: int) -> None:
+            bar["cm"] = typer.progressbar(length=count, label="replicates", file=None)
+            bar["bar"] = bar["cm"].__enter__()
+
+        def progress(done: int) -> None:
+            bar["bar"].update(1)
+
+        try:
+            res = weigh(frame, spec, share_answered=share, progress=progress, on_design=on_design)
+        finally:
+            if "cm" in bar:
+                bar["cm"].__exit__(None, None, None)
+        meta = _meta_with_weights(res)
+        write_survey(res.data, out, meta, overwrite=overwrite)
+        if parquet != out:
+            write_survey(res.data, parquet, meta, overwrite=overwrite)
+        write_workbook(res, book, overwrite=overwrite)
+    except SkipwiseError as err:
+        fail(err)
+        return
+    for name, value in summary_rows(res):
+        shown = f"{value:,.4f}" if isinstance(value, float) else str(value)
+        typer.echo(f"{name:>34}: {shown}")
+    for note in res.chain.notes:
+        typer.echo(f"note: {note}")
+    for c in res.chain.collapses:
+        typer.echo(f"collapsed ({c.step}): {c.merged} into {c.into} — {c.reason}")
+    if not res.estimates.empty:
+        typer.echo("estimates (replicate standard errors):")
+        for r in res.estimates.itertuples():
+            what = r.variable + (f"={r.category}" if r.category else "")
+            typer.echo(f"  {what:<30} {r.estimate:12.4f}  se {r.se:.4f}  n {r.n}")
+    typer.echo(f"wrote {out}" + (f", {parquet}" if parquet != out else "") + f" and {book}")
+    for text in CAUTIONS[:2]:
+        typer.echo(f"caution: {text}")
+
+
+def _meta_with_weights(res):
+    from skipwise.io import get_meta
+
+    meta = get_meta(res.data)
+    p = res.plan.prefix
+    labels = {
+        f"{p}outcome": "Outcome category (I, P, R, NC, O, UH, UO, NE)",
+        f"{p}base": "Base weight (inverse selection probability or given weight)",
+        f"{p}eligibility": "Weight after unknown-eligibility adjustment",
+        f"{p}nonresponse": "Weight after nonresponse adjustment",
+        f"{p}calibrated": "Weight after calibration",
+        f"{p}final": "Final weight (after trimming)",
+    }
+    for col in res.weight_columns:
+        label = labels.get(col, f"Replicate weight {col[len(p) + 3:]}")
+        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
+    return meta

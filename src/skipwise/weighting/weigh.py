@@ -1,0 +1,130 @@
+"""One call for the whole job: chain, replicates, outcome rates, estimates, output columns."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Problem, ProblemCode, SkipwiseError
+from skipwise.weighting.diagnostics import weight_summary
+from skipwise.weighting.outcomes import count_outcomes, outcome_rates
+from skipwise.weighting.pipeline import STAGES, ChainResult, Prepared, prepare, run_chain
+from skipwise.weighting.plan import WeightingPlan
+from skipwise.weighting.replicates import (
+    ReplicateDesign, bootstrap_design, jackknife_design, replicate_standard_errors, run_replicates,
+)
+
+__all__ = ["WeighResult", "weigh", "CAUTIONS"]
+
+#: Shown in reports, the workbook and the command's help.
+CAUTIONS: tuple[str, ...] = (
+    "Nonresponse weighting and calibration correct only for differences explained by the weighting "
+    "variables; they do not repair data missing not at random (MNAR).",
+    "The output files hold respondents' data: store, share and delete them under your organization's "
+    "data protection rules.",
+    "Defer to your organization's methodology standards for thresholds such as minimum class sizes, "
+    "maximum adjustment factors and trimming caps; the defaults here are common practice, not a standard.",
+)
+
+
+@dataclass(frozen=True, kw_only=True)
+class WeighResult:
+    """Everything ``skipwise weigh`` reports and writes."""
+
+    plan: WeightingPlan
+    prepared: Prepared
+    chain: ChainResult
+    counts: dict[str, float]
+    counts_weighted: dict[str, float]
+    rates: dict[str, object]
+    rates_weighted: dict[str, object]
+    stage_summary: pd.DataFrame
+    design: ReplicateDesign | None
+    replicates: np.ndarray | None
+    estimates: pd.DataFrame
+    data: pd.DataFrame
+    weight_columns: tuple[str, ...]
+
+    @property
+    def final(self) -> np.ndarray:
+        return self.chain.final
+
+
+def _stage_summary(chain: ChainResult) -> pd.DataFrame:
+    rows = []
+    for stage in STAGES:
+        if stage in chain.stages and (chain.stages[stage] > 0).any():
+            rows.append({"stage": stage, **weight_summary(chain.stages[stage])})
+    return pd.DataFrame(rows)
+
+
+def _design(frame: pd.DataFrame, plan: WeightingPlan) -> ReplicateDesign | None:
+    spec = plan.replicates
+    if spec is None:
+        return None
+    if spec.method == "jackknife":
+        return jackknife_design(frame, spec.psu, spec.strata)
+    return bootstrap_design(frame, spec.psu, spec.strata, count=spec.count, seed=spec.seed)
+
+
+def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series | None = None,
+          progress: Callable[[int], None] | None = None, on_design: Callable[[int], None] | None = None
+          ) -> WeighResult:
+    """Run the plan on ``frame``: weights of every stage, replicates, rates and estimates.
+
+    Parameters
+    ----------
+    share_answered
+        Per-case share of applicable items answered, needed when the plan
+        splits interviews into complete / partial / break-off.
+    progress
+        Called with the number of replicates done.
+    on_design
+        Called once with the number of replicates before they run.
+    """
+    prep = prepare(frame, plan, share_answered=share_answered)
+    chain = run_chain(prep, prep.base)
+    counts = count_outcomes(prep.outcome)
+    counts_w = count_outcomes(prep.outcome, prep.base)
+    design = _design(frame, plan)
+    reps = None
+    estimates = pd.DataFrame()
+    if design is not None:
+        if on_design is not None:
+            on_design(design.count)
+        reps = run_replicates(prep, design, structure=chain.structure, progress=progress)
+        est = plan.estimates
+        if est is not None:
+            estimates = replicate_standard_errors(frame, prep.respondent, chain.final, reps, design,
+                                                  means=est.means, proportions=est.proportions,
+                                                  exclude_values=est.exclude_values)
+    data, cols = _output_frame(frame, plan, prep, chain, reps)
+    return WeighResult(plan=plan, prepared=prep, chain=chain, counts=counts, counts_weighted=counts_w,
+                       rates=outcome_rates(counts, e=plan.e), rates_weighted=outcome_rates(counts_w, e=plan.e),
+                       stage_summary=_stage_summary(chain), design=design, replicates=reps, estimates=estimates,
+                       data=data, weight_columns=cols)
+
+
+def _output_frame(frame: pd.DataFrame, plan: WeightingPlan, prep: Prepared, chain: ChainResult,
+                  reps: np.ndarray | None) -> tuple[pd.DataFrame, tuple[str, ...]]:
+    p = plan.prefix
+    new: dict[str, object] = {f"{p}outcome": prep.outcome.astype(str).to_numpy()}
+    for stage in STAGES:
+        new[f"{p}{stage}"] = chain.stages[stage]
+    if reps is not None:
+        width = max(3, len(str(reps.shape[1])))
+        for r in range(reps.shape[1]):
+            new[f"{p}rep{r + 1:0{width}d}"] = reps[:, r]
+    clash = [c for c in new if c in frame.columns]
+    if clash:
+        raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_NAME, item=clash[0], file=plan.file,
+                                    line=plan.line("output", "prefix"),
+                                    message=f"output column(s) {clash[:5]} already exist in the data",
+                                    hint="set output.prefix in the plan to another prefix"))
+    added = pd.DataFrame(new, index=frame.index)
+    out = pd.concat([frame, added], axis=1)
+    out.attrs = dict(frame.attrs)
+    return out, tuple(new)
