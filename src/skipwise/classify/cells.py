@@ -53,7 +53,7 @@ def column_views(series: pd.Series) -> tuple[np.ndarray, np.ndarray | None, np.n
         blank = series.isna().to_numpy()
         return np.full(len(series), np.nan), _fill_text(txt, blank), blank
     obj = series.astype(object)
-    blank = obj.isna().to_numpy()
+    blank = obj.isna().to_numpy().copy()
     txt = obj.where(~blank, "").astype(str).str.strip().to_numpy(dtype=object)
     blank |= txt == ""
     num = pd.to_numeric(pd.Series(txt, index=series.index, dtype=object), errors="coerce").to_numpy(

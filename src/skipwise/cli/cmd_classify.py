@@ -1,1 +1,70 @@
-"""`skipwise classify` (not yet written)."""
+"""``skipwise classify``: one status per cell, written beside the data, plus the routing faults."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from skipwise.cli.app import app, fail
+from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs, sibling
+from skipwise.errors import SkipwiseError
+
+OUT_FORMATS = (".sav", ".dta", ".parquet", ".csv")
+
+
+@app.command("classify")
+def classify_command(
+    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet).")],
+    questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
+    out: Annotated[Path, typer.Option("-o", "--out", help="Output file: .sav, .dta, .parquet or .csv.")],
+    form: Annotated[str, typer.Option(
+        "--form", help="'columns': add one labelled status column per item; 'recoded': replace every "
+                       "non-answer cell by a special code per status (user-missing in .sav, extended "
+                       "missing in .dta).")] = "columns",
+    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+) -> None:
+    """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
+    breakoff, off_route, wrong_code or invalid.
+
+    Writes OUT with every original column and label kept, and OUT_faults.csv listing each routing
+    fault with its case id — that listing holds respondents' data: share it only under your
+    organization's data protection rules.
+    """
+    from skipwise.classify.export import ExportForm, recoded_copy, with_status_columns
+    from skipwise.io import get_meta, write_survey
+    from skipwise.io.atomic import atomic_output, check_writable
+
+    try:
+        if out.suffix.lower() not in OUT_FORMATS:
+            raise SkipwiseError(f"output {out} must end in one of {', '.join(OUT_FORMATS)}")
+        try:
+            chosen = ExportForm(form)
+        except ValueError:
+            raise SkipwiseError(f"--form must be 'columns' or 'recoded', not {form!r}") from None
+        faults_path = sibling(out, "_faults", ".csv")
+        check_writable(out, overwrite=overwrite)
+        check_writable(faults_path, overwrite=overwrite)
+        frame, q = load_inputs(data, questionnaire)
+        cl = classify_with_progress(frame, q)
+        meta = get_meta(frame)
+        fmt = out.suffix.lower().lstrip(".")
+        if chosen is ExportForm.COLUMNS:
+            result, meta = with_status_columns(frame, cl, meta)
+        else:
+            result, meta = recoded_copy(frame, cl, fmt, meta)
+        with echo_warnings():
+            write_survey(result, out, meta, overwrite=overwrite)
+        with atomic_output(faults_path, overwrite=overwrite) as tmp:
+            cl.faults.to_csv(tmp, index=False)
+    except SkipwiseError as err:
+        fail(err)
+    shares = cl.counts().sum(axis=0)
+    total = max(int(shares.sum()), 1)
+    typer.echo(f"classified {len(frame):,} cases x {len(q.items)} items")
+    for status, count in shares.items():
+        if count:
+            typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
+    typer.echo(f"wrote {out}")
+    typer.echo(f"wrote {faults_path} ({len(cl.faults):,} routing faults; it lists case ids)")

@@ -280,9 +280,10 @@ class _Builder:
             return None
         from skipwise.questionnaire.values import check_item_values
         values, rng, options = check_item_values(self, d, itype, name)
-        codes = self.merge_codes(global_codes, self.codes(d["codes"], d.key_line("codes"), name) if "codes" in d else ())
+        own = self.codes(d["codes"], d.key_line("codes"), name) if "codes" in d else ()
+        codes = self.merge_codes(global_codes, own)
         from skipwise.questionnaire.values import check_collisions
-        check_collisions(self, d, name, itype, values, rng, codes)
+        check_collisions(self, d, name, itype, values, rng, codes, own)
         return {"d": d, "name": name, "type": itype, "values": values, "range": rng,
                 "options": options, "codes": codes}
 

@@ -201,7 +201,7 @@ def n_is_equality(n: ast.Compare | ast.InList) -> bool:
 
 def _lit(node: ast.Node) -> float | str | None:
     if isinstance(node, ast.Number):
-        return node.value
+        return int(node.value) if float(node.value).is_integer() else node.value
     if isinstance(node, ast.String):
         return node.value
     return None

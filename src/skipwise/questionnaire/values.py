@@ -77,10 +77,14 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
 
 
 def check_collisions(b: "_Builder", d: LineDict, name: str, itype: ItemType, values: dict | None,
-                     rng: tuple | None, codes: tuple[Code, ...]) -> None:
-    """A special code must never be a valid answer: not a category, not inside the range."""
+                     rng: tuple | None, codes: tuple[Code, ...], own: tuple[Code, ...] = ()) -> None:
+    """A special code must never be a valid answer: not a category, not inside the range.
+
+    A clash with a global code is reported on the item's line, one with the item's own code on
+    that code's line.
+    """
     for code in codes:
-        line = code.line or d.line
+        line = (code.line if code in own else None) or d.line
         if values is not None and any(_same(code.value, k) for k in values):
             b.add(ProblemCode.CODE_COLLISION, f"code {code.value!r} ({code.reason}) is also a category of '{name}'",
                   line, name, "give the code a value outside the categories")

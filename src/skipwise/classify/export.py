@@ -1,0 +1,161 @@
+"""Status-coded exports of a classified file.
+
+Two forms, chosen by the user:
+
+``columns``
+    All original columns unchanged, plus one integer status column per item
+    (``<item>_status``) whose value labels name the status.
+``recoded``
+    All original columns, but in every numeric item column each cell that is
+    not an answer carries a distinct special code per status.  In ``.sav`` the
+    codes are numbers (``STATUS_CODES``) declared as user-missing values with
+    labels; in ``.dta`` they are extended missing values (``STATUS_LETTERS``)
+    with labels; in ``.parquet`` and ``.csv`` they are the numbers.  An analyst
+    in any package then sees why each cell is empty.  Text and date items keep
+    their cells (those formats have no missing codes for text) and get a status
+    column instead.
+
+The numbering is fixed so files of different waves line up.
+"""
+
+from __future__ import annotations
+
+from enum import Enum
+
+import numpy as np
+import pandas as pd
+
+from skipwise.classify import statuses as S
+from skipwise.classify.result import Classification
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.io import SurveyMeta, get_meta
+from skipwise.questionnaire.model import ItemType
+
+__all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy",
+           "STATUS_SUFFIX"]
+
+STATUS_SUFFIX = "_status"
+_FIXED_NUMBERS = {S.ANSWERED: 1, S.SKIPPED: 2, S.ITEM_MISSING: 3, S.GATE_UNKNOWN: 4, S.BREAKOFF: 5,
+                  S.OFF_ROUTE: 6, S.WRONG_CODE: 7, S.INVALID: 8}
+#: Special code of each fixed status in the recoded form (reasons follow from -911 on).
+_FIXED_CODES = {S.SKIPPED: -901, S.ITEM_MISSING: -902, S.GATE_UNKNOWN: -903, S.BREAKOFF: -904,
+                S.OFF_ROUTE: -905, S.WRONG_CODE: -906, S.INVALID: -907}
+_FIXED_LETTERS = {S.SKIPPED: ".a", S.ITEM_MISSING: ".b", S.GATE_UNKNOWN: ".c", S.BREAKOFF: ".d",
+                  S.OFF_ROUTE: ".e", S.WRONG_CODE: ".f", S.INVALID: ".g"}
+
+
+class ExportForm(str, Enum):
+    COLUMNS = "columns"
+    RECODED = "recoded"
+
+
+def status_numbers(cl: Classification) -> dict[str, int]:
+    """Integer code of every status in status columns: fixed ones 1-8, reasons from 11."""
+    out = dict(_FIXED_NUMBERS)
+    for i, reason in enumerate(cl.questionnaire.nonresponse_reasons):
+        out[reason] = 11 + i
+    return out
+
+
+def status_codes(cl: Classification) -> dict[str, int]:
+    out = dict(_FIXED_CODES)
+    for i, reason in enumerate(cl.questionnaire.nonresponse_reasons):
+        out[reason] = -911 - i
+    return out
+
+
+def status_letters(cl: Classification) -> dict[str, str]:
+    out = dict(_FIXED_LETTERS)
+    letters = "hijklmnopqrstuvwxyz"
+    reasons = cl.questionnaire.nonresponse_reasons
+    if len(reasons) > len(letters):
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, message=f"{len(reasons)} nonresponse reasons "
+                                    "do not fit Stata's extended missing letters", hint="use the 'columns' form"))
+    for letter, reason in zip(letters, reasons):
+        out[reason] = f".{letter}"
+    return out
+
+
+def _by_code(cl: Classification, mapping: dict[str, object], fill: object) -> np.ndarray:
+    """Lookup array from the classification's category codes to ``mapping``'s values."""
+    return np.array([mapping.get(c, fill) for c in cl.categories], dtype=object)
+
+
+def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta | None = None,
+                        items: list[str] | None = None) -> tuple[pd.DataFrame, SurveyMeta]:
+    """The data plus one labelled integer status column per item."""
+    meta = (meta or get_meta(data)).copy()
+    numbers = status_numbers(cl)
+    lookup = np.array([numbers[c] for c in cl.categories], dtype=np.int16)
+    labels = {v: k for k, v in numbers.items()}
+    new = {}
+    for j, name in enumerate(cl.items):
+        if items is not None and name not in items:
+            continue
+        col = name + STATUS_SUFFIX
+        if col in data.columns:
+            raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_NAME, category=Category.DATA, item=name,
+                                        message=f"the data already has a column '{col}'",
+                                        hint="rename it before exporting statuses"))
+        new[col] = lookup[cl.codes[:, j]]
+        meta.column_labels[col] = f"skipwise status of {name}"
+        meta.value_labels[col] = dict(labels)
+        meta.measure[col] = "nominal"
+    out = pd.concat([data, pd.DataFrame(new, index=data.index)], axis=1)
+    out.attrs = {}
+    return out, meta
+
+
+def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyMeta | None = None
+                 ) -> tuple[pd.DataFrame, SurveyMeta]:
+    """The data with every non-answer cell of numeric items replaced by its status's special code."""
+    meta = (meta or get_meta(data)).copy()
+    stata = fmt == "dta"
+    mapping = status_letters(cl) if stata else status_codes(cl)
+    lookup = _by_code(cl, mapping, None)
+    labels = {v: k for k, v in mapping.items()}
+    out = data.copy()
+    text_items = []
+    answered = cl.code(S.ANSWERED)
+    for j, name in enumerate(cl.items):
+        item = cl.questionnaire.item(name)
+        if item.type in (ItemType.TEXT, ItemType.DATE):
+            text_items.append(name)
+            continue
+        codes = cl.codes[:, j]
+        replace = codes != answered
+        for col in item.columns:
+            _check_no_collision(data[col], mapping, col, stata)
+            values = out[col].to_numpy(dtype=object, na_value=np.nan).copy()
+            values[replace] = lookup[codes[replace]]
+            out[col] = values if stata else pd.to_numeric(pd.Series(values, index=out.index), errors="coerce")
+            # Keep the file's own labels for real answers; drop those of the old codes.
+            kept = {k: v for k, v in meta.value_labels.get(col, {}).items()
+                    if not any(_same(k, c.value) for c in item.codes if c.kind.value != "substantive")}
+            kept.update(labels)
+            meta.value_labels[col] = kept
+            meta.missing_values[col] = sorted(set(mapping.values()), key=str)
+            meta.missing_ranges.pop(col, None)
+    if text_items:
+        out, meta = with_status_columns(out, cl, meta, items=text_items)
+    out.attrs = {}
+    return out, meta
+
+
+def _same(a: object, b: object) -> bool:
+    try:
+        return float(a) == float(b)  # type: ignore[arg-type]
+    except (TypeError, ValueError):
+        return a == b
+
+
+def _check_no_collision(series: pd.Series, mapping: dict[str, object], col: str, stata: bool) -> None:
+    if stata:
+        return
+    codes = np.array([v for v in mapping.values()], dtype=np.float64)
+    num = pd.to_numeric(series, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    if np.isin(num, codes).any():
+        raise SkipwiseError(Problem(
+            code=ProblemCode.CODE_COLLISION, category=Category.DATA, item=col,
+            message=f"column '{col}' already holds one of skipwise's status codes ({int(codes.max())} to "
+                    f"{int(codes.min())})", hint="use the 'columns' export form for this file"))
