@@ -86,3 +86,14 @@ def test_infer_categorical():
     df = pd.DataFrame({"code": [1, 2, 3, 1], "x": [0.5, 1.2, 3.3, 4.1], "s": ["a", "b", "a", "b"]})
     # common practice, no source: few integer levels read as categories
     assert infer_categorical(df) == ("code", "s")
+
+
+def test_redundant_auxiliary_dropped_with_note():
+    # a selection probability fixed within region duplicates the region indicators
+    miss, aux = _data()
+    aux = aux.assign(sel=aux.region.map({"north": 0.1, "south": 0.2, "east": 0.4}))
+    res = nonresponse_logit(miss, aux, categorical=["region"])
+    ref = nonresponse_logit(miss, aux.drop(columns="sel"), categorical=["region"])
+    assert "sel" not in set(res.table.term)
+    assert any("sel" in n for n in res.notes)
+    assert_allclose(res.auc, ref.auc, rtol=1e-10)

@@ -1,1 +1,219 @@
-"""`skipwise diagnose` (not yet written)."""
+"""`skipwise diagnose`: missingness-mechanism diagnostics as an Excel workbook."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Optional
+
+import numpy as np
+import pandas as pd
+import typer
+
+from skipwise.cli.app import app, fail
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+
+_CAUTION = ("Caution: no test on the observed data can tell data missing at random from data missing "
+            "not at random (MNAR); weights and imputation do not repair MNAR. Files hold respondents' "
+            "answers: follow your organization's methodology standards and data protection rules.")
+
+
+def _names(values: list[str] | None) -> list[str] | None:
+    """Accept repeated options and comma-separated lists alike."""
+    if not values:
+        return None
+    return [n.strip() for v in values for n in str(v).split(",") if n.strip()]
+
+
+def _numeric_column(data: pd.DataFrame, col: str, what: str) -> pd.Series:
+    if col not in data.columns:
+        raise SkipwiseError(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.USAGE, item=col,
+                                    message=f"{what} column not in the data",
+                                    hint=did_you_mean(col, map(str, data.columns))))
+    s = pd.to_numeric(data[col], errors="coerce")
+    if s.isna().all():
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=col,
+                                    message=f"{what} column holds no numbers"))
+    return s.astype(float)
+
+
+def default_auxiliaries(data: pd.DataFrame, context: list[str], *, max_levels: int = 10) -> tuple[list[str], list[str]]:
+    """Context columns fit to be auxiliaries, and those left out (with the reason).
+
+    Kept: fully observed columns with 2..``max_levels`` values, and numeric
+    columns with fractional values.  Left out, with the reason: columns with
+    blanks, a single value, many whole-number codes (identifiers such as PSU
+    numbers, or code lists) or many text values.  The cut-off is common
+    practice, no source; ``--aux`` overrides the choice.
+    """
+    keep, left = [], []
+    for col in context:
+        s = data[col]
+        levels = s.nunique(dropna=True)
+        whole = pd.api.types.is_numeric_dtype(s) and bool(np.all(np.mod(s.dropna().to_numpy(float), 1) == 0))
+        if s.isna().any():
+            left.append(f"{col} (has blanks)")
+        elif levels < 2:
+            left.append(f"{col} (constant)")
+        elif levels <= max_levels or (pd.api.types.is_numeric_dtype(s) and not whole):
+            keep.append(col)
+        elif whole:
+            left.append(f"{col} ({levels} whole-number codes: an identifier or a code list?)")
+        else:
+            left.append(f"{col} ({levels} text values: too many categories)")
+    return keep, left
+
+
+@app.command("diagnose")
+def diagnose(
+    data_path: Annotated[Path, typer.Argument(metavar="DATA", help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
+    questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
+    output: Annotated[Path, typer.Option("-o", "--output", help="Workbook to write (.xlsx).")] = Path("diagnostics.xlsx"),
+    items: Annotated[Optional[list[str]], typer.Option("--items", help="Items to diagnose (repeat or comma-separate; default: all).")] = None,
+    aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns). An item may be named: its answers are used.")] = None,
+    categorical: Annotated[Optional[list[str]], typer.Option("--categorical", help="Auxiliaries to treat as categorical (default: text columns and whole-number columns with at most 10 values).")] = None,
+    little_items: Annotated[Optional[list[str]], typer.Option("--little-items", help="Variables of Little's test (default: numeric items with nonresponse whose common scope keeps at least half the cases).")] = None,
+    weight: Annotated[Optional[str], typer.Option("--weight", help="Design-weight column for the R-indicators and the sensitivity analysis.")] = None,
+    response: Annotated[Optional[str], typer.Option("--response", help="Column telling unit respondents from nonrespondents; adds a unit-level R-indicator and restricts item diagnostics to respondents.")] = None,
+    responded: Annotated[Optional[list[str]], typer.Option("--responded", help="Values of --response that mean 'responded' (default: 1).")] = None,
+    sensitivity: Annotated[Optional[str], typer.Option("--sensitivity", help="Item whose mean gets a delta-adjustment sensitivity analysis.")] = None,
+    threshold: Annotated[Optional[float], typer.Option("--threshold", help="Conclusion to test in the sensitivity analysis: is the mean above or below this value?")] = None,
+    delta: Annotated[Optional[list[float]], typer.Option("--delta", help="Shift(s) δ to try (repeat; default: a grid around the tipping point).")] = None,
+    low_rate: Annotated[float, typer.Option(help="Nonresponse rate below which an item counts as little affected (common practice, no source).")] = 0.05,
+    high_rate: Annotated[float, typer.Option(help="Rate from which dropping the variable is worth considering (common practice, no source).")] = 0.40,
+    alpha: Annotated[float, typer.Option(help="Significance level for evidence against MCAR.")] = 0.05,
+    auc_weak: Annotated[float, typer.Option(help="AUC from which the auxiliaries noticeably predict nonresponse.")] = 0.60,
+    auc_strong: Annotated[float, typer.Option(help="AUC from which they predict it strongly.")] = 0.70,
+    overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace the output file if it exists.")] = False,
+) -> None:
+    """Diagnose the missingness mechanism of every item, over in-scope cells only.
+
+    Legitimate skips never count as missing. The workbook holds Little's MCAR test,
+    respondent/nonrespondent comparisons and logistic models on the auxiliaries (odds
+    ratios, AUC), R-indicators with partial indicators, an optional delta-adjustment
+    sensitivity analysis and handling suggestions with their evidence.
+
+    Caution: no test proves data missing at random, and weights and imputation do not
+    repair data missing not at random; follow your organization's methodology standards
+    and data protection rules.
+    """
+    try:
+        from skipwise.classify import classify
+        from skipwise.classify import statuses as S
+        from skipwise.diagnostics import SuggestionThresholds, missingness_frame
+        from skipwise.diagnostics.report import DiagnoseOptions, choose_little_items, run_diagnostics
+        from skipwise.diagnostics.workbook import write_diagnostics_workbook
+        from skipwise.io import read_survey
+        from skipwise.io.atomic import check_writable
+        from skipwise.questionnaire import ItemType, load_questionnaire
+
+        check_writable(output, overwrite=overwrite)
+        if threshold is not None and sensitivity is None:
+            raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
+                                        message="--threshold needs --sensitivity ITEM",
+                                        hint="name the item whose mean the threshold is about"))
+        q = load_questionnaire(questionnaire)
+        named = [*(_names(items) or []), *(_names(little_items) or []), *([sensitivity] if sensitivity else [])]
+        unknown = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=n,
+                           message="not an item of the questionnaire", file=str(questionnaire),
+                           hint=did_you_mean(n, q.item_names)) for n in named if n not in q.item_names]
+        if unknown:
+            raise SkipwiseError(unknown)
+        data = read_survey(data_path)
+        typer.echo(f"Classifying {len(data):,} cases against {len(q.item_names)} items ...", err=True)
+        cls = classify(data, q)
+        answered = cls.mask(S.ANSWERED)
+        values = pd.DataFrame(np.nan, index=data.index, columns=list(q.item_names))
+        av = cls.analysis_values(data)
+        for name in q.item_names:
+            item = q.item(name)
+            if item.type is not ItemType.MULTI and len(item.columns) == 1:
+                values[name] = av[item.columns[0]]
+
+        rows = pd.Series(True, index=data.index)
+        resp_ind = None
+        if response is not None:
+            if response not in data.columns:
+                raise SkipwiseError(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.USAGE, item=response,
+                                            message="response column not in the data",
+                                            hint=did_you_mean(response, map(str, data.columns))))
+            wanted = responded or ["1"]
+            col = data[response]
+            as_text = col.astype(str).str.strip()
+            nums = pd.to_numeric(col, errors="coerce")
+            resp_ind = as_text.isin(wanted) | nums.isin(pd.to_numeric(pd.Series(wanted), errors="coerce").dropna())
+            rows = resp_ind
+            typer.echo(f"Unit respondents: {int(rows.sum()):,} of {len(rows):,}", err=True)
+
+        mf = missingness_frame(values.loc[rows], cls.universe_mask().loc[rows], cls.nonresponse_mask().loc[rows],
+                               answered_mask=answered.loc[rows])
+
+        context = [c for c in q.context if c in data.columns and c not in (q.case_id, weight, response)]
+        aux_names = _names(aux)
+        if aux_names is None:
+            aux_names, left = default_auxiliaries(data, context)
+            if left:
+                typer.echo("Context columns not used as auxiliaries: " + ", ".join(left)
+                           + " (name them with --aux to use them).", err=True)
+        bad = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=a,
+                       message="auxiliary is neither a data column nor an item",
+                       hint=did_you_mean(a, [*map(str, data.columns), *q.item_names]))
+               for a in aux_names if a not in data.columns and a not in q.item_names]
+        if bad:
+            raise SkipwiseError(bad)
+        if not aux_names:
+            raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
+                                        message="no auxiliary variables to compare respondents with",
+                                        hint="name fully observed columns with --aux"))
+        aux_frame = pd.DataFrame({a: (values[a] if a in q.item_names else data[a]) for a in aux_names},
+                                 index=data.index)
+        aux_frame = aux_frame.apply(lambda s: s if pd.api.types.is_numeric_dtype(s) else s.astype(str).where(s.notna()))
+        w = _numeric_column(data, weight, "weight") if weight else None
+
+        chosen = _names(items)
+        if little_items:
+            l_items = _names(little_items)
+        else:
+            numeric_items = [n for n in (chosen or q.item_names)
+                             if q.item(n).type in (ItemType.INTEGER, ItemType.NUMBER)]
+            l_items = choose_little_items(mf, [n for n in numeric_items if n in mf.items]) if numeric_items else []
+        opts = DiagnoseOptions(
+            items=tuple(chosen) if chosen else None, little_items=tuple(l_items),
+            categorical=tuple(_names(categorical)) if categorical else None,
+            sensitivity_item=sensitivity, threshold=threshold, deltas=tuple(delta) if delta else None,
+            alpha=alpha, thresholds=SuggestionThresholds(low_rate=low_rate, high_rate=high_rate, alpha=alpha,
+                                                         auc_weak=auc_weak, auc_strong=auc_strong),
+        )
+        todo = list(chosen or mf.items)
+        with typer.progressbar(length=len(todo) + 2, label="Diagnosing", file=None) as bar:
+            # auxiliaries, weights and the response indicator cover every sampled case (the unit
+            # R-indicator needs the nonrespondents); item analyses use only the rows of ``mf``
+            rep = run_diagnostics(mf, aux_frame, options=opts, weights=w, response=resp_ind,
+                                  progress=lambda _label: bar.update(1))
+        write_diagnostics_workbook(rep, output, overwrite=overwrite)
+    except SkipwiseError as err:
+        fail(err)
+        return
+    _print_summary(rep, output)
+
+
+def _print_summary(rep, output: Path) -> None:
+    lr = rep.little
+    if lr is not None:
+        p = "n/a" if np.isnan(lr.p_value) else f"{lr.p_value:.4g}"
+        typer.echo(f"Little's MCAR test: d² = {lr.statistic:.2f}, df = {lr.df}, p = {p} "
+                   f"({lr.n_cases:,} cases, {lr.n_patterns} patterns, {lr.n_variables} variables)")
+    else:
+        typer.echo("Little's MCAR test: not run (see the workbook's notes)")
+    s = rep.summary.sort_values("nonresponse_rate", ascending=False).head(10)
+    typer.echo("Highest item nonresponse (in-scope cells):")
+    for r in s.itertuples():
+        auc = "" if pd.isna(r.auc) else f", AUC {r.auc:.2f}"
+        typer.echo(f"  {r.item:<20} {r.nonresponse_rate:6.1%} of {r.in_scope:,}{auc}; {r.suggested}")
+    if rep.sensitivity is not None and rep.sensitivity.tipping_point is not None:
+        sv = rep.sensitivity
+        typer.echo(f"Sensitivity of {sv.item}: the mean is {sv.conclusion} {sv.threshold:g} unless nonrespondents "
+                   f"differ by δ* = {sv.tipping_point:.4g} ({sv.tipping_point_sd:.2f} SD)")
+    if rep.notes:
+        typer.echo(f"{len(rep.notes)} note(s) in the workbook's 'Read me' sheet.")
+    typer.echo(f"Wrote {output}")
+    typer.echo(_CAUTION)

@@ -47,7 +47,8 @@ def design_matrix(aux: pd.DataFrame, categorical: Sequence[str]) -> tuple[pd.Dat
 
     Each categorical auxiliary's most frequent category is the reference.
     Returns the matrix, the reference category per variable and the names of
-    columns dropped because they were constant.
+    columns dropped because they were constant or linear combinations of
+    earlier columns (e.g. a selection probability fixed within strata).
     """
     parts = [pd.Series(1.0, index=aux.index, name="const")]
     refs: dict[str, str] = {}
@@ -67,7 +68,27 @@ def design_matrix(aux: pd.DataFrame, categorical: Sequence[str]) -> tuple[pd.Dat
                 dropped.append(name)
                 continue
             parts.append(x.rename(name))
-    return pd.concat(parts, axis=1), refs, dropped
+    x = pd.concat(parts, axis=1)
+    redundant = _redundant_columns(x)
+    return x.drop(columns=redundant), refs, dropped + redundant
+
+
+def _redundant_columns(x: pd.DataFrame) -> list[str]:
+    """Columns that are linear combinations of earlier ones (greedy, on the scaled Gram matrix)."""
+    xv = x.to_numpy(float)
+    xv = xv / np.maximum(np.sqrt((xv ** 2).mean(axis=0)), 1e-300)
+    gram = xv.T @ xv / len(xv)
+    if np.linalg.matrix_rank(gram, tol=1e-9) == gram.shape[0]:
+        return []
+    keep: list[int] = []
+    out: list[str] = []
+    for k in range(gram.shape[0]):
+        trial = keep + [k]
+        if np.linalg.matrix_rank(gram[np.ix_(trial, trial)], tol=1e-9) == len(trial):
+            keep = trial
+        else:
+            out.append(str(x.columns[k]))
+    return out
 
 
 def _collinear_columns(x: np.ndarray, names: list[str]) -> list[str]:
@@ -201,7 +222,7 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
     if n_drop:
         notes.insert(0, f"{n_drop:,} in-scope cases with a missing auxiliary were left out.")
     if const:
-        notes.append(f"Constant auxiliaries left out: {', '.join(const)}.")
+        notes.append(f"Constant or redundant (collinear) terms left out: {', '.join(const)}.")
     ci = np.asarray(res.conf_int(alpha=alpha))
     with np.errstate(over="ignore"):
         table = pd.DataFrame({

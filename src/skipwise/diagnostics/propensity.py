@@ -149,7 +149,7 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         ))
     x, refs, const = design_matrix(sub, cat)
     if const:
-        notes.append(f"Constant variables left out: {', '.join(const)}.")
+        notes.append(f"Constant or redundant (collinear) terms left out: {', '.join(const)}.")
     res, fit_notes = fit_logit(ind, x, weights=None if weights is None else d)
     notes.extend(fit_notes)
     rho = pd.Series(np.asarray(res.predict(x)), index=ind.index, name="propensity")

@@ -76,6 +76,13 @@ class Suggestion:
     def suggested(self) -> tuple[str, ...]:
         return tuple(o.action for o in self.options if o.verdict == "suggested")
 
+    def headline(self) -> str:
+        """The suggested actions, or the possible ones if none is suggested."""
+        top = self.suggested()
+        if top:
+            return "; ".join(top)
+        return "possible: " + "; ".join(o.action for o in self.options if o.verdict == "possible")
+
 
 def _ok(x: float | None) -> bool:
     return x is not None and not (isinstance(x, float) and math.isnan(x))
@@ -87,7 +94,10 @@ def _association(ev: ItemEvidence, th: SuggestionThresholds) -> str:
     tested = [_ok(ev.model_p), _ok(ev.auc), _ok(ev.little_p), _ok(ev.min_compare_p)]
     if not any(tested) or ev.n_nonresponse < th.min_nonrespondents:
         return "untested"
-    sig = any(_ok(p) and p < th.alpha for p in (ev.model_p, ev.little_p))
+    # Little's test is joint over several items: it speaks for one item only when the item's own
+    # model is missing
+    own = ev.model_p if _ok(ev.model_p) else ev.little_p
+    sig = _ok(own) and own < th.alpha
     auc = ev.auc if _ok(ev.auc) else 0.5
     if sig and auc >= th.auc_strong:
         return "strong"

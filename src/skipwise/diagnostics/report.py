@@ -1,0 +1,250 @@
+"""Run every diagnostic over a :class:`MissingnessFrame` and collect the results."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Callable, Sequence
+
+import numpy as np
+import pandas as pd
+
+from skipwise.diagnostics.compare import ItemComparison, compare_item, infer_categorical
+from skipwise.diagnostics.frame import MissingnessFrame
+from skipwise.diagnostics.little import LittleResult, little_mcar_test
+from skipwise.diagnostics.model import LogitResult, nonresponse_logit
+from skipwise.diagnostics.propensity import RIndicatorResult, r_indicator
+from skipwise.diagnostics.sensitivity import DeltaResult, delta_adjustment
+from skipwise.diagnostics.suggest import ItemEvidence, Suggestion, SuggestionThresholds, suggest_handling
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+
+__all__ = ["DiagnoseOptions", "DiagnosticsReport", "run_diagnostics", "choose_little_items", "MIN_SCOPE_SHARE"]
+
+#: Greedy choice of Little's variables keeps the common scope at least this share of the
+#: largest item's scope (common practice, no source).
+MIN_SCOPE_SHARE = 0.5
+
+
+@dataclass(frozen=True, kw_only=True)
+class DiagnoseOptions:
+    """What to diagnose and how.
+
+    Attributes
+    ----------
+    items
+        Items to diagnose (default: every item with numeric or indicator data in scope).
+    little_items
+        Variables of Little's test (default: :func:`choose_little_items`).
+    little_with_aux
+        Add the numeric auxiliaries to Little's test (they are complete, and add power).
+    categorical
+        Auxiliaries to treat as categorical (default: inferred).
+    sensitivity_item, threshold, deltas
+        Delta adjustment of one item's mean against a stated threshold.
+    alpha
+        Significance level used in the suggestions and the summary.
+    thresholds
+        Cut-offs of the handling suggestions.
+    """
+
+    items: tuple[str, ...] | None = None
+    little_items: tuple[str, ...] | None = None
+    little_with_aux: bool = True
+    categorical: tuple[str, ...] | None = None
+    sensitivity_item: str | None = None
+    threshold: float | None = None
+    deltas: tuple[float, ...] | None = None
+    alpha: float = 0.05
+    thresholds: SuggestionThresholds = field(default_factory=SuggestionThresholds)
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class DiagnosticsReport:
+    """Everything :func:`run_diagnostics` found, ready for a workbook or for tests."""
+
+    counts: pd.DataFrame
+    auxiliaries: tuple[str, ...]
+    categorical: tuple[str, ...]
+    little: LittleResult | None
+    little_scope: str
+    comparisons: dict[str, ItemComparison]
+    models: dict[str, LogitResult]
+    r_indicators: tuple[RIndicatorResult, ...]
+    sensitivity: DeltaResult | None
+    suggestions: tuple[Suggestion, ...]
+    summary: pd.DataFrame
+    notes: tuple[tuple[str, str, str], ...]  # (part, item, message)
+
+
+def choose_little_items(mframe: MissingnessFrame, candidates: Sequence[str]) -> list[str]:
+    """Pick variables for one Little's test without routing shrinking the cases too far.
+
+    Candidates with item nonresponse are taken in order of their in-scope
+    counts; each is added if the common scope stays at least
+    :data:`MIN_SCOPE_SHARE` of the first one's scope.  Candidates without
+    nonresponse that are answered (and vary) in all the chosen cases are added
+    too: complete variables add power without losing cases.
+    """
+    counts = mframe.counts.loc[list(candidates)]
+    c = counts[(counts["nonresponse"] > 0) & (counts["numeric_answers"] >= 2)]
+    c = c.sort_values("in_scope", ascending=False, kind="stable")
+    chosen: list[str] = []
+    scope = None
+    for item in c.index:
+        new = mframe.in_scope[item] if scope is None else scope & mframe.in_scope[item]
+        if scope is None or new.sum() >= MIN_SCOPE_SHARE * c["in_scope"].iloc[0]:
+            chosen.append(str(item))
+            scope = new
+    if scope is None:
+        return chosen
+    # complete items answered by every chosen case add power at no cost in cases
+    for item in counts.index:
+        if (item not in chosen and counts.loc[item, "nonresponse"] == 0
+                and bool(mframe.values.loc[scope, item].notna().all())
+                and mframe.values.loc[scope, item].nunique() > 1):
+            chosen.append(str(item))
+    return chosen
+
+
+def _unknown(names: Sequence[str], valid: Sequence[str], what: str) -> list[Problem]:
+    return [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=n,
+                    message=f"not a known {what}", hint=did_you_mean(n, valid)) for n in names if n not in valid]
+
+
+def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: DiagnoseOptions | None = None,
+                    weights: pd.Series | None = None, response: pd.Series | None = None,
+                    progress: Callable[[str], None] | None = None) -> DiagnosticsReport:
+    """Little's test, per-item comparisons and models, R-indicators, sensitivity, suggestions.
+
+    Parameters
+    ----------
+    mframe
+        In-scope values and indicators (:func:`missingness_frame`).
+    aux
+        Fully observed auxiliaries, indexed like ``mframe`` (cases with a
+        missing auxiliary are dropped per analysis and counted).
+    options
+        :class:`DiagnoseOptions`.
+    weights
+        Design weights for the R-indicators and the delta adjustment.
+    response
+        Unit response indicator over all sampled cases (True = responded); if
+        given, a unit-level R-indicator is computed on ``aux``.
+    progress
+        Called with a short label before each step.
+
+    Returns
+    -------
+    DiagnosticsReport
+        Failures of single analyses (singular models, too few cases) are
+        recorded in ``notes``; they do not stop the others.
+    """
+    opt = options or DiagnoseOptions()
+    tell = progress or (lambda _label: None)
+    items = list(opt.items) if opt.items is not None else list(mframe.items)
+    problems = _unknown(items, mframe.items, "item")
+    problems += _unknown(list(opt.little_items or ()), mframe.items, "item")
+    if opt.sensitivity_item is not None:
+        problems += _unknown([opt.sensitivity_item], mframe.items, "item")
+    if problems:
+        raise SkipwiseError(problems)
+    cat = tuple(opt.categorical) if opt.categorical is not None else infer_categorical(aux)
+    problems = _unknown([c for c in cat if c not in aux.columns], list(map(str, aux.columns)), "auxiliary")
+    if problems:
+        raise SkipwiseError(problems)
+    notes: list[tuple[str, str, str]] = []
+
+    # Little's test over the common scope of its variables
+    tell("Little's test")
+    little, scope = None, "not run"
+    l_items = list(opt.little_items) if opt.little_items is not None else choose_little_items(mframe, items)
+    if len(l_items) >= 1:
+        joint = mframe.joint(l_items)
+        frame = joint.frame
+        if opt.little_with_aux:
+            num_aux = [c for c in aux.columns if str(c) not in cat and str(c) not in frame.columns]
+            if num_aux:
+                frame = frame.join(aux.loc[frame.index, num_aux].astype(float))
+                before = len(frame)
+                frame = frame[frame[num_aux].notna().all(axis=1)]
+                if len(frame) < before:
+                    notes.append(("Little's test", "", f"{before - len(frame):,} cases with a missing "
+                                  "auxiliary were left out."))
+        scope = joint.description + (f"; with the numeric auxiliaries {', '.join(map(str, frame.columns[len(l_items):]))}"
+                                     if frame.shape[1] > len(l_items) else "")
+        try:
+            little = little_mcar_test(frame)
+        except SkipwiseError as err:
+            notes.append(("Little's test", ", ".join(l_items), err.render()))
+    else:
+        notes.append(("Little's test", "", "no numeric item with item nonresponse to test"))
+
+    comparisons: dict[str, ItemComparison] = {}
+    models: dict[str, LogitResult] = {}
+    rinds: list[RIndicatorResult] = []
+    if response is not None:
+        tell("unit R-indicator")
+        try:
+            rinds.append(r_indicator(response, aux, weights=weights, categorical=cat, target="unit response"))
+        except SkipwiseError as err:
+            notes.append(("R-indicator", "unit response", err.render()))
+    summary_rows, suggestions = [], []
+    little_vars = set(little.mean.index) if little is not None else set()
+    for item in items:
+        tell(item)
+        ind = mframe.indicator(item)
+        own_aux = aux.drop(columns=[c for c in aux.columns if str(c) == item])
+        item_cat = tuple(c for c in cat if c in own_aux.columns)
+        n_m = int(ind.sum())
+        row = {"item": item, "in_scope": int(len(ind)), "nonresponse": n_m,
+               "nonresponse_rate": n_m / len(ind) if len(ind) else np.nan,
+               "little_p": little.p_value if item in little_vars else np.nan,
+               "model_p": np.nan, "auc": np.nan, "min_compare_p": np.nan}
+        if n_m > 0 and n_m < len(ind) and own_aux.shape[1]:
+            for part, fn in (("comparison", compare_item), ("model", nonresponse_logit)):
+                try:
+                    res = fn(ind, own_aux, categorical=item_cat, item=item)
+                except SkipwiseError as err:
+                    notes.append((part, item, err.render()))
+                    continue
+                if part == "comparison":
+                    comparisons[item] = res
+                    row["min_compare_p"] = float(res.table["p_value"].min()) if res.table["p_value"].notna().any() else np.nan
+                else:
+                    models[item] = res
+                    row["model_p"], row["auc"] = res.lr_p_value, res.auc
+            try:
+                rinds.append(r_indicator(~ind, own_aux, weights=None if weights is None else weights.loc[ind.index],
+                                         categorical=item_cat, target=f"response to {item}"))
+            except SkipwiseError as err:
+                notes.append(("R-indicator", item, err.render()))
+        ev = ItemEvidence(item=item, n_in_scope=row["in_scope"], n_nonresponse=n_m,
+                          little_p=None if np.isnan(row["little_p"]) else row["little_p"],
+                          model_p=None if np.isnan(row["model_p"]) else row["model_p"],
+                          auc=None if np.isnan(row["auc"]) else row["auc"],
+                          min_compare_p=None if np.isnan(row["min_compare_p"]) else row["min_compare_p"])
+        sug = suggest_handling(ev, opt.thresholds)
+        suggestions.append(sug)
+        row["association"] = sug.association
+        row["suggested"] = sug.headline()
+        summary_rows.append(row)
+    summary = pd.DataFrame(summary_rows, columns=["item", "in_scope", "nonresponse", "nonresponse_rate",
+                                                  "little_p", "model_p", "auc", "min_compare_p",
+                                                  "association", "suggested"])
+    with np.errstate(divide="ignore"):
+        summary.insert(6, "neg_log10_model_p", -np.log10(summary["model_p"].clip(lower=1e-300)))
+
+    sens = None
+    if opt.sensitivity_item is not None:
+        tell("sensitivity")
+        vals = mframe.item_values(opt.sensitivity_item)
+        try:
+            sens = delta_adjustment(vals, deltas=opt.deltas, threshold=opt.threshold, item=opt.sensitivity_item,
+                                    weights=None if weights is None else weights.loc[vals.index])
+        except SkipwiseError as err:
+            notes.append(("sensitivity", opt.sensitivity_item, err.render()))
+    return DiagnosticsReport(
+        counts=mframe.counts.loc[items], auxiliaries=tuple(map(str, aux.columns)), categorical=cat,
+        little=little, little_scope=scope, comparisons=comparisons, models=models,
+        r_indicators=tuple(rinds), sensitivity=sens, suggestions=tuple(suggestions), summary=summary,
+        notes=tuple(notes),
+    )
