@@ -65,3 +65,26 @@ def test_weigh_plan_error_exit_1_with_line(files):
 def test_weigh_help_mentions_caution():
     result = runner.invoke(app, ["weigh", "--help"])
     assert result.exit_code == 0 and "missing not at random" in result.output
+
+
+def test_weigh_with_questionnaire_share_answered(tmp_path):
+    # Interview split needs the classifier's share of applicable items answered.
+    pytest.importorskip("skipwise.classify")
+    q = tmp_path / "q.yaml"
+    q.write_text(
+        "format: 1\nsurvey: {name: t, title: T, case_id: rid}\ncontext: [dispo]\n"
+        "codes:\n  - {value: -9, reason: refused, kind: nonresponse}\n"
+        "sections:\n  - name: s\n    items:\n"
+        + "".join(f"      - {{name: q{i}, type: integer, range: [0, 9]}}\n" for i in range(1, 6)))
+    rows = [[1, 110, 1, 2, 3, 4, 5], [2, 110, 1, 2, 3, -9, -9], [3, 110, 1, -9, -9, -9, -9], [4, 220] + [None] * 5]
+    df = pd.DataFrame(rows, columns=["rid", "dispo", "q1", "q2", "q3", "q4", "q5"])
+    data = tmp_path / "d.csv"
+    df.to_csv(data, index=False)
+    plan = tmp_path / "p.yaml"
+    plan.write_text("format: 1\ndispositions:\n  column: dispo\n  categories: {I: [110], NC: [220]}\n"
+                    "  interview_split: {breakoff_below: 0.5, complete_above: 0.8}\n")
+    out = tmp_path / "o.csv"
+    result = runner.invoke(app, ["weigh", str(data), "--plan", str(plan), "-o", str(out), "-q", str(q)])
+    assert result.exit_code == 0, result.output
+    # shares 1.0, 0.6, 0.2 -> complete, partial, break-off (counted as R) [AAPOR example cut-points, memory]
+    assert pd.read_csv(out)["wt_outcome"].tolist() == ["I", "P", "R", "NC"]

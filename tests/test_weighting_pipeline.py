@@ -181,3 +181,86 @@ def test_bad_weights_message_names_cases():
     with pytest.raises(SkipwiseError) as info:
         prepare(df, load_plan(text=PLAN))
     assert "2 case(s)" in str(info.value) and "[4, 9]" in str(info.value)
+
+
+def _replace_section(text: str, start: str, new: str) -> str:
+    head, rest = text.split(start, 1)
+    tail = rest.split("\n", 1)[1]
+    # drop the old section's indented lines
+    lines = tail.splitlines(keepends=True)
+    while lines and lines[0].startswith("  "):
+        lines.pop(0)
+    return head + new + "".join(lines)
+
+
+@pytest.mark.parametrize("use", ["inverse", "classes"], ids=["inverse-propensity", "propensity-classes"])
+def test_propensity_nonresponse_step(use):
+    import statsmodels.api as sm
+
+    df = make_frame(800)
+    text = _replace_section(PLAN, "nonresponse:", f"nonresponse:\n  method: propensity\n  covariates: [region, agegrp]\n"
+                                                  f"  propensity_use: {use}\n  min_respondents: 10\n")
+    text = text.split("calibration:")[0]
+    prep = prepare(df, load_plan(text=text))
+    res = run_chain(prep, prep.base)
+    elig = prep.eligible
+    # Reference: statsmodels Logit called directly on the eligible cases
+    x = pd.get_dummies(df.loc[elig, ["region", "agegrp"]], drop_first=True, dtype=float)
+    direct = sm.Logit(prep.respondent[elig].astype(float), sm.add_constant(x)).fit(disp=0)
+    assert_allclose(np.sort(res.propensity.params.to_numpy()), np.sort(direct.params.to_numpy()), rtol=1e-8)
+    w = res.stages["nonresponse"]
+    if use == "inverse":
+        p = direct.predict()
+        expect = np.where(prep.respondent[elig], res.stages["eligibility"][elig] / p, 0.0)
+        assert_allclose(w[elig], expect, rtol=1e-8)
+    else:
+        # weighting-class adjustment within propensity classes keeps the eligible total
+        assert_allclose(w.sum(), res.stages["eligibility"].sum(), rtol=1e-10)
+        assert res.class_tables[-1]["class"].str.startswith("propensity").all()
+
+
+@pytest.mark.parametrize("method", ["linear", "logit"])
+def test_linear_and_logit_calibration_in_chain(method):
+    df = make_frame(800)
+    text = PLAN.replace("  method: rake", f"  method: {method}\n  bounds: [0.3, 3.0]").split("trimming:")[0]
+    prep = prepare(df, load_plan(text=text))
+    res = run_chain(prep, prep.base)
+    assert_allclose(res.margins["achieved"], res.margins["target"], rtol=1e-8)
+    if method == "logit":
+        g = res.stages["calibrated"][prep.respondent] / res.stages["nonresponse"][prep.respondent]
+        assert g.min() > 0.3 and g.max() < 3.0
+
+
+def test_bootstrap_plan_runs_whole_chain():
+    from skipwise.weighting.weigh import weigh
+
+    df = make_frame(500)
+    text = PLAN.replace("  method: jackknife", "  method: bootstrap\n  count: 30\n  seed: 7")
+    res = weigh(df, load_plan(text=text))
+    assert res.design.method == "bootstrap" and res.replicates.shape == (500, 30)
+    # every replicate was re-raked: region margins hold in each
+    sums = pd.DataFrame(res.replicates).groupby(df["region"].to_numpy()).sum()
+    assert_allclose(sums.loc["north"].to_numpy(), 6000, rtol=1e-6)
+    assert set(res.estimates["variable"]) == {"score", "owns_car"}
+    assert (res.estimates["se"] > 0).all()
+
+
+def test_propensity_replicates_refit_with_resampling_factors():
+    from skipwise.weighting.replicates import jackknife_design, run_replicates
+
+    df = make_frame(300)
+    text = _replace_section(PLAN, "nonresponse:", "nonresponse:\n  method: propensity\n  covariates: [region]\n")
+    prep = prepare(df, load_plan(text=text.split("calibration:")[0]))
+    full = run_chain(prep, prep.base)
+    design = jackknife_design(df, "psu", "stratum")
+    reps = run_replicates(prep, design, structure=full.structure)
+    # a saturated (region-only) logit fitted with frequency weights f gives, in each region, the
+    # f-weighted response share: p = Σ_resp f / Σ_elig f (closed form of the logit ML equations)
+    f = design.factors[:, 0]
+    rep0 = run_chain(prep, prep.base * f, structure=full.structure)
+    elig = prep.eligible
+    by = pd.DataFrame({"r": df["region"][elig], "f": f[elig], "fr": f[elig] * prep.respondent[elig]})
+    share = by.groupby("r")["fr"].transform("sum") / by.groupby("r")["f"].transform("sum")
+    assert_allclose(rep0.propensity.propensity, share.to_numpy(), rtol=1e-6)
+    assert not np.allclose(rep0.propensity.propensity, full.propensity.propensity)
+    assert_allclose(reps[:, 0], rep0.final)

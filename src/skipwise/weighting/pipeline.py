@@ -212,9 +212,8 @@ def run_chain(prep: Prepared, base: np.ndarray, *, structure: Structure | None =
         tables.append(adj.table)
         collapses.extend(adj.collapses)
     else:
-        we = w[prep.eligible]
-        full = stages["base"][prep.eligible]
-        fw = None if structure is None else np.divide(we, np.where(full > 0, full, 1.0))
+        # a replicate refits the model with its resampling factors (replicate base / full-sample base)
+        fw = None if structure is None else stages["base"][prep.eligible] / prep.base[prep.eligible]
         fit = fit_propensity(prep.prop_x, prep.respondent[prep.eligible], fit_weights=fw)
         p = np.zeros(len(w))
         p[prep.eligible] = fit.propensity
