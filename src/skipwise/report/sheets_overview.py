@@ -1,0 +1,102 @@
+"""The "Overview" sheet: what was read, when, by which version, the rates' definitions and the cautions."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import pandas as pd
+
+from skipwise.report import styles as st
+
+__all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS"]
+
+DEFINITIONS: tuple[tuple[str, str], ...] = (
+    ("Item nonresponse rate",
+     "(cells with a nonresponse reason + item_missing cells) / (cases in the item's universe, excluding "
+     "breakoff). With a weight: the same ratio of weighted totals, Σw·[nonresponse] / Σw·[in universe, "
+     "not breakoff]."),
+    ("Reason rate (e.g. dont_know rate, refused rate)",
+     "cells carrying that nonresponse reason / the same denominator as the item nonresponse rate."),
+    ("item_missing rate", "blank in-universe cells with no code / the same denominator."),
+    ("gate_unknown", "the item's universe could not be decided because an input of its rule is unknown, "
+                     "and the cell is blank or structurally coded. Counted apart: in neither numerator "
+                     "nor denominator of any rate."),
+    ("breakoff", "blank cells after the point where the interview ended. Counted apart: in neither "
+                 "numerator nor denominator of any rate."),
+    ("Routing faults", "off_route (an answer or code where the routing says not asked), wrong_code (a "
+                       "not-asked code where the item was asked) and invalid (a value outside the item's "
+                       "values or range that is no declared code)."),
+    ("Share of applicable items answered (per case)",
+     "answered items / items in the case's universe (breakoff cells included in the denominator)."),
+)
+
+CAUTIONS: tuple[str, ...] = (
+    "Nonresponse adjustments (weighting, imputation) do not repair data missing not at random (MNAR): "
+    "when whether a value is missing depends on the value itself, no rate in this workbook shows it. "
+    "Judge the mechanism with subject knowledge and follow your organization's methodology standards.",
+    "The Routing faults sheet lists case ids (unless the workbook was written with --no-case-ids). Survey "
+    "files hold respondents' answers: share this workbook only under your organization's data "
+    "protection rules.",
+)
+
+
+@dataclass(frozen=True, kw_only=True)
+class OverviewInfo:
+    """Facts shown on the Overview sheet."""
+
+    survey_name: str
+    survey_title: str
+    input_file: str | None
+    input_sha256: str | None
+    written_utc: str
+    version: str
+    cases: int
+    items: int
+    weight: str | None
+    total_weight: float | None
+    by: tuple[str, ...]
+    case_ids: bool
+    faults_total: int
+    faults_shown: int
+
+
+def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, title: str = "Overview") -> None:
+    ws = wb.create_sheet(title)
+    st.set_widths(ws, [44, 16, 16, 16, 60])
+    ws.append(st.title_row(ws, f"Item nonresponse report: {info.survey_title or info.survey_name}"))
+    ws.append([])
+    facts: list[tuple[str, object, str | None]] = [
+        ("Survey name", info.survey_name, None),
+        ("Survey title", info.survey_title, None),
+        ("Input file", info.input_file or "(not given: data passed in memory)", None),
+        ("Input file SHA-256", info.input_sha256 or "(not computed)", None),
+        ("Written (UTC)", info.written_utc, None),
+        ("skipwise version", info.version, None),
+        ("Cases", info.cases, st.INT),
+        ("Items", info.items, st.INT),
+        ("Weight column", info.weight or "(none: unweighted)", None),
+    ]
+    if info.total_weight is not None:
+        facts.append(("Sum of weights", info.total_weight, st.DEC))
+    facts += [
+        ("Subgroup columns", ", ".join(info.by) if info.by else "(none)", None),
+        ("Case ids in workbook", "yes (Routing faults sheet)" if info.case_ids else "no (--no-case-ids)", None),
+        ("Routing faults (listed / total)", f"{info.faults_shown:,} / {info.faults_total:,}", None),
+    ]
+    for label, value, fmt in facts:
+        ws.append([st.text_cell(ws, label, font=None), st.value_cell(ws, value, fmt)])
+    ws.append([])
+    ws.append(st.title_row(ws, "Share of all cells by status", sub=True))
+    cols = ["Status", "Cells", "Share of cells"] + (["Weighted share"] if "weighted share" in shares.columns else [])
+    ws.append(st.header_row(ws, cols))
+    for row in st.frame_rows(ws, shares, {"cells": st.INT, "share": st.PCT, "weighted share": st.PCT}):
+        ws.append(row)
+    ws.append([])
+    ws.append(st.title_row(ws, "Definitions", sub=True))
+    for term, text in DEFINITIONS:
+        ws.append([st.text_cell(ws, term), st.text_cell(ws, text)])
+    ws.append([])
+    ws.append(st.title_row(ws, "Cautions", sub=True))
+    for text in CAUTIONS:
+        ws.append([st.text_cell(ws, text, wrap=False)])

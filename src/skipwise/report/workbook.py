@@ -1,0 +1,194 @@
+"""Write the item-nonresponse workbook (.xlsx): the one public entry point of this package."""
+
+from __future__ import annotations
+
+import datetime as dt
+import hashlib
+from pathlib import Path
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+from openpyxl import Workbook
+
+import skipwise
+from skipwise.classify import classify as run_classify
+from skipwise.classify.result import Classification
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+from skipwise.io.atomic import atomic_output, check_writable
+from skipwise.questionnaire.model import Questionnaire
+from skipwise.report import tables as T
+from skipwise.report.patterns import nonresponse_patterns, pick_items
+from skipwise.report.sheets_completeness import write_charts_sheet, write_completeness_sheet
+from skipwise.report.sheets_faults import FAULTS_HEADER_ROW, write_faults_sheet
+from skipwise.report.sheets_items import write_items_sheet, write_subgroups_sheet
+from skipwise.report.sheets_overview import OverviewInfo, write_overview_sheet
+from skipwise.report.sheets_patterns import write_patterns_sheet
+from skipwise.report.styles import EXCEL_MAX_ROWS
+
+__all__ = ["write_item_report", "SHEETS", "DEFAULT_FAULT_ROWS", "MAX_GROUPS"]
+
+#: Sheet names, in workbook order.
+SHEETS: tuple[str, ...] = ("Overview", "Items", "Routing faults", "Patterns", "Subgroups", "Completeness", "Charts")
+#: Fault rows listed by default; the per-item counts always cover every fault.
+DEFAULT_FAULT_ROWS = 100_000
+#: Most distinct values a ``by`` column may have (one sheet column each).
+MAX_GROUPS = 200
+
+
+def _check_options(data: pd.DataFrame, weight: str | None, by: tuple[str, ...], top_items: int,
+                   top_patterns: int, fault_rows: int, file: str | None) -> np.ndarray | None:
+    """Collect every problem with the options, then raise them together; return the weights."""
+    problems: list[Problem] = []
+    cols = [str(c) for c in data.columns]
+    for name, what in [(weight, "weight")] + [(b, "grouping") for b in by]:
+        if name is not None and name not in data.columns:
+            problems.append(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.USAGE, file=file, item=name,
+                                    message=f"{what} column '{name}' is not in the data",
+                                    hint=did_you_mean(name, cols) or "name a column of the data file"))
+    for name, value in (("top_items", top_items), ("top_patterns", top_patterns)):
+        if value < 1:
+            problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item=name,
+                                    message=f"{name} must be at least 1, got {value}", hint="pass a positive number"))
+    if fault_rows < 0:
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="fault_rows",
+                                message=f"fault_rows must be 0 or more, got {fault_rows}", hint="pass 0 or more"))
+    for b in by:
+        if b in data.columns and data[b].nunique(dropna=False) > MAX_GROUPS:
+            problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=file, item=b,
+                                    message=f"grouping column '{b}' has {data[b].nunique(dropna=False):,} distinct "
+                                            f"values (at most {MAX_GROUPS} fit the Subgroups sheet)",
+                                    hint="group the values into fewer classes first"))
+    w = None
+    if weight is not None and weight in data.columns:
+        w, problem = _weights(data[weight], weight, file)
+        if problem is not None:
+            problems.append(problem)
+    if problems:
+        raise SkipwiseError(problems, headline=f"{len(problems)} problem(s) with the report options")
+    return w
+
+
+def _weights(series: pd.Series, name: str, file: str | None) -> tuple[np.ndarray | None, Problem | None]:
+    w = pd.to_numeric(series, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    bad = ~np.isfinite(w) | (w < 0)
+    if bad.any():
+        return None, Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA, file=file, item=name,
+                             message=f"weight column '{name}' has {int(bad.sum()):,} missing, non-numeric, "
+                                     "infinite or negative value(s)",
+                             hint="give every case a finite weight of 0 or more")
+    return w, None
+
+
+def _sha256(path: Path) -> str:
+    h = hashlib.sha256()
+    with open(path, "rb") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
+
+
+def write_item_report(
+    data: pd.DataFrame,
+    questionnaire: Questionnaire,
+    path: str | Path,
+    *,
+    classification: Classification | None = None,
+    weight: str | None = None,
+    by: Sequence[str] = (),
+    case_ids: bool = True,
+    top_items: int = 12,
+    top_patterns: int = 20,
+    fault_rows: int = DEFAULT_FAULT_ROWS,
+    input_path: str | Path | None = None,
+    overwrite: bool = True,
+) -> Path:
+    """Write the item-level nonresponse workbook.
+
+    Sheets: Overview, Items, Routing faults, Patterns, Subgroups,
+    Completeness, Charts (see ``docs/report.md``).
+
+    Parameters
+    ----------
+    data
+        The survey data (special codes as stored values).
+    questionnaire
+        The loaded questionnaire.
+    path
+        The ``.xlsx`` file to write (atomically: a temporary name, then a rename).
+    classification
+        The result of ``classify(data, questionnaire)`` if already at hand.
+    weight
+        Column of case weights; weighted rates are added beside unweighted ones.
+    by
+        Columns whose groups the Subgroups sheet compares.
+    case_ids
+        False leaves every case id out of the workbook.
+    top_items, top_patterns
+        Items in the pattern grid (those with the highest rates) and patterns shown.
+    fault_rows
+        Most fault rows listed (never more than a worksheet holds); counts cover all faults.
+    input_path
+        The data file read, named with its SHA-256 on the Overview sheet.
+    overwrite
+        Replace an existing file at ``path``.
+
+    Returns
+    -------
+    pathlib.Path
+        The file written.
+
+    Raises
+    ------
+    SkipwiseError
+        Unknown weight or grouping column, bad weights, bad counts, or an
+        existing output without ``overwrite``.
+
+    References
+    ----------
+    Groves, R. M. et al. (2009). *Survey Methodology*, 2nd ed., ch. 6.
+    Little, R. J. A. and Rubin, D. B. (2019). *Statistical Analysis with Missing Data*, 3rd ed.
+    """
+    path = check_writable(path, overwrite=overwrite)
+    by = tuple(by)
+    w = _check_options(data, weight, by, top_items, top_patterns, fault_rows,
+                       str(input_path) if input_path else None)
+    c = classification if classification is not None else run_classify(data, questionnaire)
+    q = questionnaire
+
+    items = T.items_table(c, w)
+    limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
+    faults, n_faults = T.fault_rows(c, limit)
+    rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
+    chosen = pick_items(rates, top_items)
+    idx = [c.items.index(name) for name in chosen]
+    nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
+    mask = np.isin(c.codes[:, idx], nr_codes) if idx else np.zeros((len(c.index), 0), dtype=bool)
+    patterns = nonresponse_patterns(mask, chosen, top=top_patterns, weight=w)
+    subgroups = T.subgroup_rates(c, data, by, w) if by else None
+    info = OverviewInfo(
+        survey_name=q.name, survey_title=q.title,
+        input_file=str(input_path) if input_path else None,
+        input_sha256=_sha256(Path(input_path)) if input_path and Path(input_path).is_file() else None,
+        written_utc=dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat(),
+        version=skipwise.__version__, cases=len(c.index), items=len(c.items), weight=weight,
+        total_weight=float(w.sum()) if w is not None else None, by=by, case_ids=case_ids,
+        faults_total=n_faults, faults_shown=len(faults),
+    )
+
+    wb = Workbook(write_only=True)
+    write_overview_sheet(wb, info, T.status_shares(c, w), title=SHEETS[0])
+    items_layout = write_items_sheet(wb, items, title=SHEETS[1])
+    items_ws = wb[SHEETS[1]]
+    write_faults_sheet(wb, faults, n_faults, T.fault_counts(c), case_ids=case_ids, title=SHEETS[2])
+    write_patterns_sheet(wb, patterns, rates, title=SHEETS[3])
+    write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
+    comp_layout = write_completeness_sheet(wb, T.completeness_table(c, w), T.completeness_summary(c, w),
+                                           title=SHEETS[5])
+    write_charts_sheet(wb, items_layout, comp_layout, items_ws, wb[SHEETS[5]], weighted=w is not None,
+                       title=SHEETS[6])
+    wb.properties.title = f"Item nonresponse report: {q.title or q.name}"
+    wb.properties.creator = f"skipwise {skipwise.__version__}"
+    with atomic_output(path, overwrite=overwrite) as tmp:
+        wb.save(tmp)
+    return path
