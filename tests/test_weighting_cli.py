@@ -88,3 +88,19 @@ def test_weigh_with_questionnaire_share_answered(tmp_path):
     assert result.exit_code == 0, result.output
     # shares 1.0, 0.6, 0.2 -> complete, partial, break-off (counted as R) [AAPOR example cut-points, memory]
     assert pd.read_csv(out)["wt_outcome"].tolist() == ["I", "P", "R", "NC"]
+
+
+def test_weigh_subprocess_smoke(files):
+    import subprocess
+    import sys
+
+    tmp, data, plan = files
+    out = tmp / "sub.parquet"
+    proc = subprocess.run([sys.executable, "-c", "from skipwise.cli import main; main()", "weigh", str(data),
+                           "--plan", str(plan), "-o", str(out)], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 0, proc.stderr
+    assert out.exists() and (tmp / "sub_weights.xlsx").exists()
+    bad = subprocess.run([sys.executable, "-c", "from skipwise.cli import main; main()", "weigh", str(data),
+                          "--plan", str(tmp / "nope.yaml"), "-o", str(tmp / "x.csv")],
+                         capture_output=True, text=True, timeout=60)
+    assert bad.returncode == 1 and "not found" in bad.stderr and "Traceback" not in bad.stderr
