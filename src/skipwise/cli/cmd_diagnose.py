@@ -63,7 +63,18 @@ def default_auxiliaries(data: pd.DataFrame, context: list[str], *, max_levels: i
     return keep, left
 
 
-@app.command("diagnose")
+_HELP = (
+    "Diagnose the missingness mechanism of every item, over in-scope cells only.\n\n"
+    "Legitimate skips never count as missing. The workbook holds Little's MCAR test, "
+    "respondent/nonrespondent comparisons and logistic models on the auxiliaries (odds ratios, AUC), "
+    "R-indicators with partial indicators, an optional delta-adjustment sensitivity analysis and "
+    "handling suggestions with their evidence.\n\n"
+    "Caution: no test proves data missing at random, and weights and imputation do not repair data "
+    "missing not at random; follow your organization's methodology standards and data protection rules."
+)
+
+
+@app.command("diagnose", help=_HELP)
 def diagnose(
     data_path: Annotated[Path, typer.Argument(metavar="DATA", help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
@@ -85,17 +96,7 @@ def diagnose(
     auc_strong: Annotated[float, typer.Option(help="AUC from which they predict it strongly.")] = 0.70,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace the output file if it exists.")] = False,
 ) -> None:
-    """Diagnose the missingness mechanism of every item, over in-scope cells only.
-
-    Legitimate skips never count as missing. The workbook holds Little's MCAR test,
-    respondent/nonrespondent comparisons and logistic models on the auxiliaries (odds
-    ratios, AUC), R-indicators with partial indicators, an optional delta-adjustment
-    sensitivity analysis and handling suggestions with their evidence.
-
-    Caution: no test proves data missing at random, and weights and imputation do not
-    repair data missing not at random; follow your organization's methodology standards
-    and data protection rules.
-    """
+    """Diagnose the missingness mechanism (help text: ``_HELP``)."""
     try:
         from skipwise.classify import classify
         from skipwise.classify import statuses as S

@@ -15,15 +15,17 @@ from skipwise.diagnostics.frame import JointFrame, MissingnessFrame, missingness
 from skipwise.diagnostics.little import LittleResult, little_mcar_test
 from skipwise.diagnostics.model import LogitResult, auc_mann_whitney, nonresponse_logit
 from skipwise.diagnostics.propensity import RIndicatorResult, r_indicator
+from skipwise.diagnostics.report import DiagnoseOptions, DiagnosticsReport, run_diagnostics
 from skipwise.diagnostics.sensitivity import DeltaResult, delta_adjustment
 from skipwise.diagnostics.suggest import (
     CAUTIONS, ItemEvidence, Option, Suggestion, SuggestionThresholds, suggest_handling,
 )
+from skipwise.diagnostics.workbook import write_diagnostics_workbook
 
 __all__ = [
-    "CAUTIONS", "DeltaResult", "ItemComparison", "ItemEvidence", "JointFrame", "LittleResult",
+    "CAUTIONS", "DeltaResult", "DiagnoseOptions", "DiagnosticsReport", "ItemComparison", "ItemEvidence", "JointFrame", "LittleResult",
     "LogitResult", "MissingnessFrame", "Option", "RIndicatorResult", "Suggestion",
     "SuggestionThresholds", "auc_mann_whitney", "compare_item", "delta_adjustment",
     "infer_categorical", "little_mcar_test", "missingness_frame", "nonresponse_logit",
-    "r_indicator", "suggest_handling",
+    "r_indicator", "run_diagnostics", "suggest_handling", "write_diagnostics_workbook",
 ]
