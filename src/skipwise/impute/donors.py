@@ -28,13 +28,20 @@ Draw = Callable[[np.ndarray, np.ndarray], np.ndarray]
 
 
 def group_codes(columns: list[np.ndarray], n: int) -> np.ndarray:
-    """Dense integer codes of the combinations of ``columns`` (missing values form their own code)."""
+    """Dense integer codes of the combinations of ``columns`` (missing values form their own code).
+
+    Each column is factorized on its own, so columns mixing numbers and text work.
+    """
     if not columns:
         return np.zeros(n, dtype=np.int64)
     import pandas as pd
 
-    frame = pd.DataFrame({i: c for i, c in enumerate(columns)})
-    return frame.groupby(list(frame.columns), dropna=False, sort=True).ngroup().to_numpy(np.int64)
+    codes = [pd.factorize(pd.Series(c, dtype=object) if np.asarray(c).dtype == object else c,
+                          sort=True, use_na_sentinel=False)[0] for c in columns]
+    if len(codes) == 1:
+        return codes[0].astype(np.int64)
+    frame = pd.DataFrame({i: c for i, c in enumerate(codes)})
+    return frame.groupby(list(frame.columns), sort=True).ngroup().to_numpy(np.int64)
 
 
 def draw_random(rec_codes: np.ndarray, pool: np.ndarray, codes: np.ndarray,
