@@ -25,6 +25,7 @@ import numpy as np
 import pandas as pd
 
 from skipwise.questionnaire.model import Code, CodeKind, Item, ItemType
+from skipwise.rules.evaluate import isin_small
 
 __all__ = ["BLANK", "STRUCT", "NONRESP", "SUBST", "INVALID", "Decoded", "decode_item", "column_views"]
 
@@ -93,8 +94,7 @@ def _valid(item: Item, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
         return ok
     if t is ItemType.CATEGORICAL and item.values is not None:
         keys = list(item.values)
-        num_keys = np.array([float(k) for k in keys if not isinstance(k, str)])
-        ok = np.isin(num, num_keys) if num_keys.size else np.zeros(len(num), bool)
+        ok = isin_small(num, [float(k) for k in keys if not isinstance(k, str)])
         str_keys = [k for k in keys if isinstance(k, str)]
         if str_keys and txt is not None:
             ok |= np.isin(txt.astype(str), np.array(str_keys, dtype=str))
@@ -110,11 +110,12 @@ def _valid(item: Item, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
 
 
 def _kinds(item: Item, codes_idx: np.ndarray, valid: np.ndarray, blank: np.ndarray) -> np.ndarray:
-    table = np.array([_KIND_OF[c.kind] for c in item.codes] + [0], dtype=np.int8)
-    kind = np.where(valid, SUBST, INVALID).astype(np.int8)
-    coded = codes_idx >= 0
-    kind[coded] = table[codes_idx[coded]]
-    kind[blank] = BLANK
+    # INVALID - 1 == SUBST: one subtraction on the bool-as-int8 view gives both.
+    kind = np.int8(INVALID) - valid.view(np.int8)
+    if item.codes:
+        table = np.array([_KIND_OF[c.kind] for c in item.codes] + [0], dtype=np.int8)
+        np.copyto(kind, np.take(table, codes_idx), where=codes_idx >= 0)
+    np.copyto(kind, np.int8(BLANK), where=blank)
     return kind
 
 

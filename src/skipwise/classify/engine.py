@@ -41,7 +41,7 @@ from skipwise.classify.breakoff import apply_breakoff
 from skipwise.classify.result import Classification, status_categories
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.questionnaire.model import Item, ItemType, Questionnaire
-from skipwise.rules.evaluate import ABSENT, KNOWN, TRUE, UNK, UNKNOWN, Operand, evaluate
+from skipwise.rules.evaluate import ABSENT, KNOWN, TRUE, UNK, UNKNOWN, Operand, evaluate, isin_small
 
 __all__ = ["classify", "check_columns"]
 
@@ -88,14 +88,11 @@ class _Env:
 
     def has_code(self, name: str, reason: str) -> np.ndarray:
         item, code = self._codes[name]
-        wanted = [i for i, c in enumerate(item.codes) if c.reason == reason]
-        return np.isin(code, wanted)
+        return isin_small(code, [i for i, c in enumerate(item.codes) if c.reason == reason])
 
-    def add(self, item: Item, dec: K.Decoded, status: np.ndarray, absent_codes: np.ndarray,
-            answered_code: int) -> None:
-        state = np.full(self.n, UNKNOWN, dtype=np.int8)
-        state[status == answered_code] = KNOWN
-        state[np.isin(status, absent_codes)] = ABSENT
+    def add(self, item: Item, dec: K.Decoded, status: np.ndarray, state_of: np.ndarray) -> None:
+        """Record an item's rule values: its state is looked up from its status codes."""
+        state = np.take(state_of, status)
         answered = dec.kind == K.SUBST
         self._codes[item.name] = (item, dec.code)
         self._answered[item.name] = answered
@@ -140,18 +137,20 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
     kinds = np.empty((n, p), dtype=np.int8, order="F")
     universe = np.empty((n, p), dtype=np.int8, order="F")
     env = _Env(data, q)
-    absent = np.array([code_of[S.SKIPPED], code_of[S.OFF_ROUTE]], dtype=np.int8)
-    base = _status_table(code_of)
+    # Rule value of each status: answered is known, skipped and off_route absent, the rest unknown.
+    state_of = np.array([KNOWN if c == S.ANSWERED else ABSENT if c in S.OUT_OF_UNIVERSE else UNKNOWN
+                         for c in cats], dtype=np.int8)
+    base = _status_table(code_of).ravel()
     for j, item in enumerate(q.items):
         dec = K.decode_item(item, data)
         u = evaluate(item.rule, env) if item.rule is not None else np.full(n, TRUE, dtype=np.int8)
-        st = base[dec.kind, u]
+        st = np.take(base, dec.kind * np.int8(3) + u)
         nonresp = st < 0
         if nonresp.any():
             reason_code = np.array([code_of.get(c.reason, -1) for c in item.codes] + [-1], dtype=np.int8)
             st[nonresp] = reason_code[dec.code[nonresp]]
         status[:, j], kinds[:, j], universe[:, j] = st, dec.kind, u
-        env.add(item, dec, st, absent, code_of[S.ANSWERED])
+        env.add(item, dec, st, state_of)
         if progress is not None:
             progress(j + 1, p)
     apply_breakoff(status, kinds, data, q, code_of)
