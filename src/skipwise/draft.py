@@ -325,14 +325,15 @@ def draft_questionnaire(data: pd.DataFrame, meta: SurveyMeta | None = None, *, c
 
 # -- YAML text ----------------------------------------------------------------------------------
 _PLAIN = re.compile(r"[A-Za-z_][A-Za-z0-9_ .,()/'&+-]*")
+# Characters PyYAML refuses in a stream, plus those it reads as line breaks or a byte-order mark.
+_UNSAFE = re.compile(f"{yaml.reader.Reader.NON_PRINTABLE.pattern}|[\x85\u2028\u2029\ufeff]")
 _YAML_WORDS = {"y", "n", "yes", "no", "on", "off", "true", "false", "null", "~"}
 
 
 def _quote(text: str) -> str:
     out = json.dumps(text, ensure_ascii=False)
     # YAML forbids some characters JSON leaves raw, and reads U+0085/U+2028/U+2029 as line breaks.
-    return re.sub("[\u0080-\u009f\u2028\u2029\ufeff\ufffe\uffff\ud800-\udfff]",
-                  lambda m: f"\\u{ord(m.group()):04x}", out)
+    return _UNSAFE.sub(lambda m: f"\\u{ord(m.group()):04x}", out)
 
 
 def scalar(value: object, *, flow: bool = False) -> str:
