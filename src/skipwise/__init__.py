@@ -1,18 +1,57 @@
 """skipwise: decode every gap of a survey file against its questionnaire's routing.
 
-Public entry points (see README and DEVELOPERS.md):
+Public entry points (DESIGN §4; see README and DEVELOPERS.md):
 
 - :func:`load_questionnaire` — read and validate a questionnaire file
 - :func:`read_survey` / :func:`write_survey` — survey files with labels and missing-value metadata
-- :func:`classify` — one status per (case, item)
+- :func:`classify` — one status per (case, item), as a :class:`Classification`
 - :func:`outcome_rates`, :func:`rake`, :func:`kish_deff` — unit outcome rates and weighting
 - :func:`little_mcar_test` — Little's (1988) test of MCAR
+
+Heavier entry points are imported on first use, so ``import skipwise`` stays quick.
 """
 
 from __future__ import annotations
 
+from importlib import import_module
+from typing import Any
+
 __version__ = "0.1.0"
 
-from skipwise.errors import Problem, ProblemCode, SkipwiseError
+from skipwise.errors import Problem, ProblemCode, SkipwiseError  # noqa: E402
 
-__all__ = ["__version__", "Problem", "ProblemCode", "SkipwiseError"]
+_LAZY = {
+    "load_questionnaire": "skipwise.questionnaire",
+    "loads_questionnaire": "skipwise.questionnaire",
+    "Questionnaire": "skipwise.questionnaire",
+    "read_survey": "skipwise.io",
+    "write_survey": "skipwise.io",
+    "SurveyMeta": "skipwise.io",
+    "get_meta": "skipwise.io",
+    "set_meta": "skipwise.io",
+    "classify": "skipwise.classify",
+    "Classification": "skipwise.classify",
+    "outcome_rates": "skipwise.weighting",
+    "rake": "skipwise.weighting",
+    "poststratify": "skipwise.weighting",
+    "calibrate_linear": "skipwise.weighting",
+    "calibrate_logit": "skipwise.weighting",
+    "kish_deff": "skipwise.weighting",
+    "weigh": "skipwise.weighting",
+    "little_mcar_test": "skipwise.diagnostics",
+    "run_diagnostics": "skipwise.diagnostics",
+}
+
+__all__ = ["__version__", "Problem", "ProblemCode", "SkipwiseError", *_LAZY]
+
+
+def __getattr__(name: str) -> Any:
+    if name in _LAZY:
+        value = getattr(import_module(_LAZY[name]), name)
+        globals()[name] = value
+        return value
+    raise AttributeError(f"module 'skipwise' has no attribute {name!r}")
+
+
+def __dir__() -> list[str]:
+    return sorted(__all__)

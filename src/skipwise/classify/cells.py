@@ -46,6 +46,9 @@ def column_views(series: pd.Series) -> tuple[np.ndarray, np.ndarray | None, np.n
     """Numeric view, text view (None for numeric columns) and blank mask of a column."""
     if pd.api.types.is_bool_dtype(series.dtype):
         series = series.astype("float64")
+    if series.dtype == np.float64:
+        num = series.to_numpy()  # no copy; never written to
+        return num, None, np.isnan(num)
     if pd.api.types.is_numeric_dtype(series.dtype):
         num = series.to_numpy(dtype=np.float64, na_value=np.nan)
         return num, None, np.isnan(num)
@@ -69,13 +72,20 @@ def _fill_text(txt: np.ndarray, blank: np.ndarray) -> np.ndarray:
 
 
 def _match_codes(codes: tuple[Code, ...], num: np.ndarray, txt: np.ndarray | None, blank: np.ndarray) -> np.ndarray:
+    """Index of the code each cell carries, -1 for none.
+
+    Code values are distinct and never blank (a blank is NaN or empty text), so at most one
+    code matches a cell and the index is a plain sum of (i + 1) * hit_i, minus one.
+    """
     idx = np.full(len(num), -1, dtype=np.int8)
     for i, code in enumerate(codes):
         if isinstance(code.value, str):
-            hit = (txt == code.value) if txt is not None else np.zeros(len(num), bool)
+            if txt is None:
+                continue
+            hit = txt == code.value
         else:
             hit = num == float(code.value)
-        idx[hit & ~blank & (idx < 0)] = i
+        idx += hit.view(np.int8) * np.int8(i + 1)
     return idx
 
 

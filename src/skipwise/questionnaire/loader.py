@@ -182,7 +182,8 @@ class _Builder:
                          did_you_mean(str(kind), [k.value for k in CodeKind]))
                 ok = False
             if ok:
-                if any(c.value == value for c in out):
+                # -9 and "-9" would both match a text cell holding "-9": treat them as one value.
+                if any(c.value == value or str(c.value) == str(value) for c in out):
                     self.add(ProblemCode.DUPLICATE_NAME, f"code value {value!r} declared twice", eline, item)
                     continue
                 out.append(Code(value=value, reason=reason, kind=kind_e,
