@@ -203,7 +203,8 @@ def _undeclared(item: Item, col: str, dec: K.Decoded, data: pd.DataFrame, q: Que
     n = int(bad.sum())
     if not n:
         return None
-    counts = data[col][bad].value_counts()  # stored values, as written
+    # stored values as written; most frequent first, ties in order of first appearance
+    counts = data[col][bad].value_counts(sort=False).sort_values(ascending=False, kind="stable")
     shown = ", ".join(f"{_show(v)} ({c:,})" for v, c in counts.head(top).items())
     if len(counts) > top:
         shown += f" and {len(counts) - top:,} more value(s)"
