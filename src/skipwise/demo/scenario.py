@@ -23,7 +23,6 @@ Rubin, D. B. (1976). Inference and missing data. *Biometrika* 63, 581–592.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
 from importlib import resources
 from pathlib import Path
@@ -131,7 +130,7 @@ class Scenario:
         for name, doc in docs.items():
             target = out / f"{name}.yaml"
             with atomic_output(target, overwrite=overwrite) as tmp:
-                tmp.write_text(yaml.safe_dump(json.loads(json.dumps(doc)), sort_keys=False), encoding="utf-8")
+                tmp.write_text(yaml.safe_dump(doc, sort_keys=False, allow_unicode=True), encoding="utf-8")
             paths[name] = target
         return paths
 
@@ -204,6 +203,7 @@ def generate(seed: int = 2026, n_addresses: int = 5000) -> Scenario:
         "interview_mode": work["interview_mode"].to_numpy(),
     })
     interviews = pd.concat([frame.iloc[idx].reset_index(drop=True), sim.values], axis=1)
+    interviews["interview_mode"] = interviews["interview_mode"].astype("int64")
     age_ok = sim.status["age"].to_numpy() == "answered"
     sex_ok = sim.status["sex"].to_numpy() == "answered"
     band = np.full(len(frame), np.nan)
