@@ -220,3 +220,16 @@ def test_demo_questionnaire_with_hand_made_frame():
     ]
     assert result.problems[2].message.endswith("(integer range [1, 8]): 9 (1), 12 (1)")
     assert not result.ok and isinstance(result, DataCheck)
+
+
+def test_subprocess_smoke(tmp_path):
+    import subprocess
+    import sys
+
+    data, qfile = tmp_path / "d.csv", tmp_path / "q.yaml"
+    _frame(smoke=[1, 2, 5, 1]).to_csv(data, index=False)
+    qfile.write_text(TINY, encoding="utf-8")
+    proc = subprocess.run([sys.executable, "-c", "from skipwise.cli import main; main()", "check", str(data),
+                           "-q", str(qfile)], capture_output=True, text=True, timeout=120)
+    assert proc.returncode == 1 and "Traceback" not in proc.stderr
+    assert ("error", "smoke", "undeclared-value") == _table(proc.stdout)[0][:3]

@@ -266,3 +266,13 @@ def test_draft_of_demo_like_frame_checks_clean(tmp_path):
     meta = SurveyMeta(value_labels={"grp": {1: "North", 2: "South", -7: "Refused"}})
     q = loads_questionnaire(render_draft(draft_questionnaire(df, meta)))
     assert check_data(df, q).problems == []
+
+
+def test_comments_stay_on_their_line():
+    # A label with a line break ends up in a comment (labels of non-whole values are listed there).
+    df = pd.DataFrame({"id": [1, 2, 3], "w": [0.5, 1.25, 2.0]})
+    meta = SurveyMeta(value_labels={"w": {0.5: "half\nkey: value", 2.0: "two\u2028x"}})
+    text = render_draft(draft_questionnaire(df, meta, source="odd\nname.sav"))
+    q = loads_questionnaire(text)
+    assert q.item("w").type is ItemType.NUMBER and q.item("w").range == (0.5, 2)
+    assert "# value labels not kept (non-whole values): 0.5 = half key: value; 2 = two x" in text

@@ -157,7 +157,7 @@ def _column_codes(col: str, num: np.ndarray, txt: np.ndarray | None, blank: np.n
                                                          if not isinstance(k, str) and lo <= k <= hi}
         for v in sorted(inside):
             codes.setdefault(v, _make_code(v, labels.get(v), "SPSS missing range"))
-        notes.append(f"# SPSS missing range [{_num_text(normalize_value(lo))}, {_num_text(normalize_value(hi))}]: "
+        notes.append(f"# SPSS missing range [{normalize_value(lo)}, {normalize_value(hi)}]: "
                      "only values seen or labelled became codes")
     for v, lab in labels.items():
         if v not in codes and guess_code(lab):
@@ -366,6 +366,11 @@ def _num_text(v: Value) -> str:
     return str(v)
 
 
+def _comment(text: str) -> str:
+    """A comment stays on its line: line breaks and characters YAML refuses become spaces."""
+    return _UNSAFE.sub(" ", re.sub(r"[\r\n]", " ", text))
+
+
 def _code_line(c: DraftCode, indent: str, note: str | None = None) -> str:
     parts = [f"value: {scalar(c.value, flow=True)}", f"reason: {scalar(c.reason, flow=True)}",
              f"kind: {c.kind.value}"]
@@ -379,7 +384,8 @@ def _code_line(c: DraftCode, indent: str, note: str | None = None) -> str:
 def render_draft(draft: Draft) -> str:
     """The draft as questionnaire YAML text (format 1) with review comments."""
     out = [
-        "# Questionnaire draft made by 'skipwise draft'" + (f" from {draft.source}" if draft.source else "") + ".",
+        _comment("# Questionnaire draft made by 'skipwise draft'" + (f" from {draft.source}" if draft.source else "")
+                 + "."),
         "# Review every line marked 'guessed' or 'observed', add the routing (asked_if), split the items",
         "# into sections in interview order, group check-all-that-apply columns into multi items and",
         "# move frame or paradata columns (strata, weights, interviewer) to 'context'.",
@@ -411,7 +417,7 @@ def render_draft(draft: Draft) -> str:
         if it.codes:
             out.append("        codes:")
             out += [_code_line(c, "          ") for c in it.codes]
-        out += [f"        {n}" for n in it.notes]
+        out += [f"        {_comment(n)}" for n in it.notes]
         out.append(f"        {ROUTING_NOTE}")
     return "\n".join(out) + "\n"
 
