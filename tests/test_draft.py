@@ -26,7 +26,7 @@ import pyreadstat
 import skipwise.cli.cmd_draft  # noqa: F401  (registers the command)
 from skipwise.cli.app import app
 from skipwise.draft import draft_questionnaire, guess_code, render_draft, scalar
-from skipwise.io import SurveyMeta, read_survey, set_meta, write_survey
+from skipwise.io import SurveyMeta, set_meta, write_survey
 from skipwise.questionnaire import load_questionnaire, loads_questionnaire
 from skipwise.questionnaire.model import CodeKind, ItemType
 

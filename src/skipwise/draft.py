@@ -376,8 +376,7 @@ def _code_line(c: DraftCode, indent: str, note: str | None = None) -> str:
              f"kind: {c.kind.value}"]
     if c.label:
         parts.append(f"label: {_quote(c.label)}")
-    what = "kind and reason" if c.reason_guessed else "kind"
-    tail = f"# guessed: confirm {what} ({c.source})" + (f"; {note}" if note else "")
+    tail = KIND_NOTE + (" and reason" if c.reason_guessed else "") + f" ({c.source})" + (f"; {note}" if note else "")
     return f"{indent}- {{{', '.join(parts)}}}  {tail}"
 
 
