@@ -7,6 +7,8 @@ import numpy as np
 import pandas as pd
 import pytest
 import yaml
+from hypothesis import given, settings
+from hypothesis import strategies as hst
 from numpy.testing import assert_allclose
 
 from skipwise.classify import classify
@@ -229,3 +231,21 @@ def test_unsupported_sample_size_is_a_user_error(n):
     with pytest.raises(SkipwiseError) as err:
         generate(n_addresses=n)
     assert err.value.problems[0].code is ProblemCode.BAD_VALUE
+
+
+def test_processing_codes_by_mode(q, sc):
+    """In-person exports store -1 in skipped cells, web exports leave them blank."""
+    web = (sc.interviews["interview_mode"] == 2).to_numpy()
+    for it in q.items:
+        skipped = (sc.truth_status[it.name] == "skipped").to_numpy(dtype=bool)
+        cells = sc.interviews[it.name if it.type is not ItemType.MULTI else it.columns[0]].to_numpy(float)
+        assert np.isnan(cells[skipped & web]).all(), it.name
+        assert (cells[skipped & ~web] == -1).all(), it.name
+
+
+@settings(max_examples=3, deadline=None)
+@given(seed=hst.integers(min_value=0, max_value=2**32 - 1))
+def test_classifier_agrees_for_any_seed(seed):
+    q = load_questionnaire(questionnaire_path())
+    s = generate(seed=seed, n_addresses=400)
+    assert (classify(s.interviews, q).status.astype(str) == s.truth_status.astype(str)).all().all()

@@ -17,6 +17,7 @@ decides later whether it applies); the interview simulation
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 import pandas as pd
@@ -97,7 +98,8 @@ def _frame(rng: np.random.Generator, n_households: int) -> pd.DataFrame:
     return frame
 
 
-def _members(rng: np.random.Generator, age: np.ndarray, sex: np.ndarray, works_p) -> dict[str, np.ndarray]:
+def _members(rng: np.random.Generator, age: np.ndarray, sex: np.ndarray,
+             works_p: Callable[[np.ndarray, int], np.ndarray]) -> dict[str, np.ndarray]:
     """True roster values of members 1..5 (member 1 is the respondent)."""
     n = len(age)
     out: dict[str, np.ndarray] = {"m_sex_1": sex, "m_age_1": age}
@@ -165,7 +167,7 @@ def simulate_population(rng: np.random.Generator, n_households: int = 60_000) ->
     works = rng.random(n) < works_p(age, educ)
     t.update(_members(rng, age, sex, works_p))
     t["m_works_1"] = np.where(works, 1, 2)
-    log_inc = (7.35 + 0.22 * educ + 0.55 * works + 0.15 * np.log(t["hh_size"]) + 0.12 * mid
+    log_inc = (7.10 + 0.22 * educ + 0.55 * works + 0.15 * np.log(t["hh_size"]) + 0.12 * mid
                + np.array([0.05, 0.10, -0.10, -0.05])[d] + block_eff + rng.normal(0, 0.45, n))
     income = np.clip(np.round(np.exp(log_inc), -1), 0, 50_000)
     lgi = np.log(np.maximum(income, 100)) - 8.0
@@ -175,7 +177,9 @@ def simulate_population(rng: np.random.Generator, n_households: int = 60_000) ->
 
     t["m_age_1"], t["m_sex_1"], t["age"], t["sex"] = age, sex, age, sex
     t["born_valley"] = np.where(rng.random(n) < 0.5 + np.array([0, .05, .15, .10])[d], 1, 2)
-    t["years_valley"] = np.minimum(np.round(np.minimum(age, 90) * rng.random(n) ** 0.8), 90)
+    # newcomers have lived in the valley at least as long as at their address
+    t["years_valley"] = np.minimum(np.maximum(np.round(np.minimum(age, 90) * rng.random(n) ** 0.8),
+                                              t["years_here"]), 90)
     t["employed"] = np.where(works, 1, 2)
     t["hours_week"] = np.clip(np.round(np.where(rng.random(n) < 0.2, rng.normal(20, 5, n),
                                                 rng.normal(40 - 3 * (sex == 1), 6, n))), 1, 80)
