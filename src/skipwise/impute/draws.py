@@ -214,7 +214,17 @@ def draw_values(method: str, y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.nda
                 rng: np.random.Generator, *, proper: bool = False, k: int = 5,
                 residuals: Literal["normal", "observed"] = "normal") -> tuple[np.ndarray, str | None]:
     """Values for the missing cases by ``method``; falls back to PMM, then to a random
-    observed value, when a model cannot be fitted. Returns (values, note on any fallback)."""
+    observed value, when a model cannot be fitted. Returns (values, note on any fallback).
+
+    Predictor columns constant among the observed cases, or repeating an earlier column
+    there, are left out first (they carry no information and make the fit singular).
+    """
+    if x_obs.shape[1]:
+        keep = np.ptp(x_obs, axis=0) > 0 if x_obs.shape[0] else np.zeros(x_obs.shape[1], bool)
+        x_obs, x_mis = x_obs[:, keep], x_mis[:, keep]
+        _, first = np.unique(x_obs.T, axis=0, return_index=True)
+        first = np.sort(first)
+        x_obs, x_mis = x_obs[:, first], x_mis[:, first]
     try:
         if method == "regression":
             return draw_norm(y_obs, x_obs, x_mis, rng, proper=proper, residuals=residuals), None

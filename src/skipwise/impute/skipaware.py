@@ -23,6 +23,9 @@ How it works, per completed dataset:
    the donor values are tried one by one and a consistent one drawn at random
    (in proportion to donor frequency). Cases with no consistent value are
    counted in the notes.
+   When no value fits — a later item was asked *because* this one was not
+   answered, e.g. ``asked_if: not answered(income)`` — the cell keeps its stored
+   value and is counted as left unfilled, with a note.
 5. Cells that were ``gate_unknown`` and end ``skipped`` are left blank, or get
    the item's structural code (``skip_fill``: ``blank``, ``code``, or ``auto`` =
    the code when most of the item's skipped cells in the input carry one).
@@ -262,7 +265,8 @@ def _complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng,
         imputed[rows, t] = True
         dirty = True
         if name in gates:
-            _make_consistent(work, q, status, name, rule, rows, rng, spec.max_redraws, notes)
+            kept = _make_consistent(work, data[name], q, status, name, rule, rows, rng, spec.max_redraws, notes)
+            imputed[kept, t] = False
     end = classify(work, q).status
     tgt = list(targets)
     routed = (status0[tgt] == S.GATE_UNKNOWN).to_numpy() & (end[tgt] == S.SKIPPED).to_numpy()
@@ -292,8 +296,12 @@ def _put(work: pd.DataFrame, name: str, rows: np.ndarray, values: np.ndarray) ->
     put_values(work, name, rows, values)
 
 
-def _make_consistent(work, q, status, name, rule, rows, rng, max_redraws, notes) -> None:
-    """Redraw a filled gate wherever it creates a routing fault among the same cases."""
+def _make_consistent(work, original, q, status, name, rule, rows, rng, max_redraws, notes) -> np.ndarray:
+    """Redraw a filled gate wherever it creates a routing fault among the same cases.
+
+    Returns the rows put back to their stored value because no value is consistent
+    with the case's later answers (a follow-up asked *because* this item was not answered).
+    """
     before = _faults(status.iloc[rows])
     pending = rows
     for _ in range(max_redraws):
@@ -301,7 +309,7 @@ def _make_consistent(work, q, status, name, rule, rows, rng, max_redraws, notes)
         bad = (_faults(now) & ~before[np.searchsorted(rows, pending)]).any(axis=1)
         pending = pending[bad]
         if not pending.size:
-            return
+            return pending
         vals, _ = draw_item(work, status, q, name, rule, pending, rng)
         _put(work, name, pending, vals)
     # Last resort: try each donor value and draw among those consistent with the case's later answers.
@@ -324,6 +332,10 @@ def _make_consistent(work, q, status, name, rule, rows, rng, max_redraws, notes)
     chosen = freq.index.to_numpy()[pick]
     if has.any():
         _put(work, name, pending[has], chosen[has])
-    if (~has).any():
-        notes.append(f"{name}: {int((~has).sum()):,} case(s) have no value consistent with their later "
-                     "answers; the last value tried was kept")
+    kept = pending[~has]
+    if kept.size:
+        # No value fits: the later answers were asked because this item was not answered.
+        _put(work, name, kept, original.iloc[kept].to_numpy())
+        notes.append(f"{name}: {kept.size:,} cell(s) left as they are: any value would contradict the "
+                     "routing of later answered items (a follow-up asked because this item was not answered)")
+    return kept
