@@ -14,6 +14,8 @@ import pandas as pd
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from hypothesis_scale import examples
+
 from skipwise.classify import classify
 from skipwise.questionnaire import loads_questionnaire
 from skipwise.rules import ABSENT, KNOWN, UNKNOWN, Operand
@@ -59,7 +61,7 @@ def frames(draw, max_rows=25):
     return frame
 
 
-@settings(max_examples=80, deadline=None)
+@settings(max_examples=examples(80), deadline=None)
 @given(frames())
 def test_every_cell_gets_exactly_one_known_status(frame):
     cl = classify(frame, Q)
@@ -69,7 +71,7 @@ def test_every_cell_gets_exactly_one_known_status(frame):
     assert (cl.counts().sum(axis=1) == len(frame)).all()
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=examples(60), deadline=None)
 @given(frames(), st.randoms(use_true_random=False))
 def test_permuting_rows_permutes_statuses(frame, rnd):
     order = list(range(len(frame)))
@@ -79,7 +81,7 @@ def test_permuting_rows_permutes_statuses(frame, rnd):
     pd.testing.assert_frame_equal(shuffled, base.iloc[order])
 
 
-@settings(max_examples=40, deadline=None)
+@settings(max_examples=examples(40), deadline=None)
 @given(frames())
 def test_unrelated_column_changes_nothing(frame):
     base = classify(frame, Q)
@@ -88,7 +90,7 @@ def test_unrelated_column_changes_nothing(frame):
     pd.testing.assert_frame_equal(base.faults, wider.faults)
 
 
-@settings(max_examples=60, deadline=None)
+@settings(max_examples=examples(60), deadline=None)
 @given(frames())
 def test_every_off_route_cell_has_a_false_rule(frame):
     cl = classify(frame, Q)
@@ -136,7 +138,7 @@ def walk(rng: np.random.Generator, n: int) -> pd.DataFrame:
                          "m_y": m_y, "e": e, "g": g, "f": pd.Series(["ok"] * n, dtype=object)})
 
 
-@settings(max_examples=30, deadline=None)
+@settings(max_examples=examples(30), deadline=None)
 @given(st.integers(0, 2**31 - 1))
 def test_case_answered_along_routing_has_only_answers_and_skips(seed):
     frame = walk(np.random.default_rng(seed), 50)

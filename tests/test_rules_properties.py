@@ -14,6 +14,8 @@ import numpy as np
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
+from hypothesis_scale import examples
+
 from skipwise.errors import SkipwiseError
 from skipwise.rules import ABSENT, KNOWN, UNKNOWN, Operand, ast, evaluate, parse_rule
 from skipwise.rules.parser import RuleSyntaxError
@@ -24,7 +26,7 @@ N = 40  # cases per generated environment
 ALPHABET = list("xys0123456789.()[],+-*/<>=!\"' _") + ["and ", "or ", "not ", "in ", "answered(", "has_code("]
 
 
-@settings(max_examples=300, deadline=None)
+@settings(max_examples=examples(300), deadline=None)
 @given(st.one_of(st.text(max_size=60), st.lists(st.sampled_from(ALPHABET), max_size=25).map("".join)))
 def test_any_text_parses_or_raises_project_error(text):
     try:
@@ -153,7 +155,7 @@ def ref_truth(node, env, i):
     return {"==": a == b, "!=": a != b, "<": a < b, "<=": a <= b, ">": a > b, ">=": a >= b}[node.op]
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=examples(200), deadline=None)
 @given(bool_expr, st.integers(0, 2**32 - 1))
 def test_vectorized_matches_reference(tree, seed):
     env = FakeEnv(np.random.default_rng(seed))
@@ -165,7 +167,7 @@ def test_vectorized_matches_reference(tree, seed):
     np.testing.assert_array_equal(got, expected, err_msg=text)
 
 
-@settings(max_examples=200, deadline=None)
+@settings(max_examples=examples(200), deadline=None)
 @given(bool_expr)
 def test_text_round_trip(tree):
     text = ast.to_text(tree)
