@@ -39,6 +39,10 @@ def atomic_output(path: str | Path, *, overwrite: bool = True) -> Iterator[Path]
     tmp_path = Path(tmp)
     try:
         yield tmp_path
+        # mkstemp creates the file private (0600); give the output the usual permissions.
+        umask = os.umask(0)
+        os.umask(umask)
+        os.chmod(tmp_path, 0o666 & ~umask)
         os.replace(tmp_path, path)
     finally:
         if tmp_path.exists():
