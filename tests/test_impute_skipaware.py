@@ -151,3 +151,32 @@ def test_no_completed_file_breaks_routing(seed, method, skip_fill):
                   (*Q.nonresponse_reasons, S.ITEM_MISSING))
     observed = classify(df, Q).status[ITEMS] == S.ANSWERED
     pd.testing.assert_frame_equal(res.datasets[0][ITEMS].where(observed), df[ITEMS].where(observed))
+
+
+FOLLOW_UP = """
+format: 1
+survey: {name: follow-up, case_id: id}
+codes:
+  - {value: -9, reason: refused, kind: nonresponse}
+sections:
+  - name: money
+    items:
+      - {name: income, type: number, range: [0, 100]}
+      - {name: band, type: categorical, values: {1: low, 2: high}, asked_if: not answered(income)}
+"""
+
+
+def test_gate_whose_nonresponse_routes_a_follow_up_keeps_its_code():
+    # band is asked *because* income was refused; filling income would put an answered band
+    # off route, so such income cells stay refused. Where band is blank, income is filled and
+    # band is routed out instead (flag 2).
+    q = loads_questionnaire(FOLLOW_UP)
+    df = pd.DataFrame({"id": range(8), "income": [10.0, 20, 30, 40, -9, -9, -9, -9],
+                       "band": [np.nan] * 4 + [1.0, 2.0, np.nan, np.nan]})
+    res = impute_skipaware(df, q, SkipAwareSpec(m=1, seed=0, max_redraws=2))
+    d, flags = res.datasets[0], res.flags(0)
+    assert (d.loc[4:5, "income"] == -9).all() and (flags.loc[4:5, "income_imp"] == 0).all()
+    assert d.loc[6:7, "income"].between(0, 100).all() and (flags.loc[6:7, "band_imp"] == 2).all()
+    after = classify(d, q).status
+    assert not after.isin(S.FAULT_STATUSES).any().any()
+    assert res.table.loc["income", "left_unfilled"] == 2 and any("follow-up" in n for n in res.notes)

@@ -26,7 +26,7 @@ How it works, per completed dataset:
    When no value fits — a later item was asked *because* this one was not
    answered, e.g. ``asked_if: not answered(income)`` — the cell keeps its stored
    value and is counted as left unfilled, with a note.
-5. Cells that were ``gate_unknown`` and end ``skipped`` are left blank, or get
+5. Cells that were to be filled or ``gate_unknown`` and end ``skipped`` are left blank, or get
    the item's structural code (``skip_fill``: ``blank``, ``code``, or ``auto`` =
    the code when most of the item's skipped cells in the input carry one).
 
@@ -126,8 +126,8 @@ class SkipAwareResult:
     imputed
         Per dataset, a boolean frame (one column per imputed item): True where filled.
     routed_out
-        Per dataset, True where a ``gate_unknown`` cell ended ``skipped`` because
-        its gate was filled.
+        Per dataset, True where a cell to fill or a ``gate_unknown`` cell ended
+        ``skipped`` because a gate was filled.
     status
         The input's statuses, unchanged (the classification before imputation);
         read it together with ``imputed``.
@@ -269,7 +269,8 @@ def _complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng,
             imputed[kept, t] = False
     end = classify(work, q).status
     tgt = list(targets)
-    routed = (status0[tgt] == S.GATE_UNKNOWN).to_numpy() & (end[tgt] == S.SKIPPED).to_numpy()
+    open_at_start = status0[tgt].isin([*eligible, S.GATE_UNKNOWN]).to_numpy()
+    routed = open_at_start & (end[tgt] == S.SKIPPED).to_numpy()
     for j, name in enumerate(targets):
         code = fill_codes[name]
         if code is not None:
