@@ -216,3 +216,19 @@ def test_stata_letters_and_text_codes():
                           "t": pd.Series(["hello", "-9", "  "], dtype="str")})
     st = classify(frame, q).status.astype(str).values.tolist()
     assert st == [["answered", "answered"], ["dont_know", "refused"], ["item_missing", "item_missing"]]
+
+
+def test_date_item_with_range():
+    q = loads_questionnaire(textwrap.dedent("""\
+        format: 1
+        survey: {name: t, case_id: id}
+        codes: [{value: -9, reason: refused, kind: nonresponse}]
+        sections:
+          - name: s
+            items:
+              - {name: visit, type: date, range: [2026-01-01, 2026-12-31]}
+        """))
+    frame = pd.DataFrame({"id": [1, 2, 3, 4], "visit": pd.Series(["2026-03-04", "2025-12-31", None, "-9"],
+                                                                 dtype=object)})
+    assert list(classify(frame, q).status["visit"].astype(str)) == ["answered", "invalid", "item_missing",
+                                                                     "refused"]

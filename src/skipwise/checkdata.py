@@ -170,27 +170,8 @@ def _missing(data: pd.DataFrame, q: Questionnaire, known: dict[str, str | None])
     return out
 
 
-def _decode_date(item: Item, data: pd.DataFrame) -> K.Decoded:
-    """Date items decoded here: the shared decoder's range step writes into a read-only
-    mask under pandas copy-on-write (reported); same rules as :func:`cells._valid`."""
-    num, txt, blank = K.column_views(data[item.name])
-    idx = K._match_codes(item.codes, num, txt, blank)
-    parsed = pd.to_datetime(pd.Series(txt if txt is not None else num, dtype=object), errors="coerce",
-                            format="mixed")
-    ok = parsed.notna().to_numpy(dtype=bool, copy=True)
-    if item.range is not None:
-        lo, hi = pd.Timestamp(item.range[0]), pd.Timestamp(item.range[1])
-        ok &= ((parsed >= lo) & (parsed <= hi)).fillna(False).to_numpy(dtype=bool)
-    return K.Decoded(kind=K._kinds(item, idx, ok, blank), code=idx, values=txt)
-
-
 def _decoded_columns(item: Item, data: pd.DataFrame) -> list[tuple[str, K.Decoded]]:
     """Decoded cells per data column of the item (each option column of a set on its own)."""
-    if item.type is ItemType.DATE:
-        try:
-            return [(item.name, K.decode_item(item, data))]
-        except ValueError:
-            return [(item.name, _decode_date(item, data))]
     if item.type is not ItemType.MULTI:
         return [(item.name, K.decode_item(item, data))]
     return [(col, K.decode_item(dataclasses.replace(item, columns=(col,)), data))

@@ -97,7 +97,7 @@ def _valid(item: Item, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
     if t is ItemType.DATE:
         source = txt if txt is not None else num
         parsed = pd.to_datetime(pd.Series(source, dtype=object), errors="coerce", format="mixed")
-        ok = parsed.notna().to_numpy()
+        ok = parsed.notna().to_numpy(copy=True)
         if item.range is not None:
             lo, hi = pd.Timestamp(item.range[0]), pd.Timestamp(item.range[1])
             ok &= ((parsed >= lo) & (parsed <= hi)).fillna(False).to_numpy(dtype=bool)
