@@ -294,3 +294,20 @@ def test_libreoffice_converts_to_pdf(tiny, tmp_path):
                          capture_output=True, timeout=180)
     assert run.returncode == 0
     assert (tmp_path / "lo.pdf").stat().st_size > 0
+
+
+def test_one_pass_figures_equal_classifier_methods(tiny):
+    from skipwise.report.tables import compute_figures
+
+    df, q = tiny
+    c = classify(df, q)
+    w = df["wt"].to_numpy()
+    fig = compute_figures(c, w)
+    pd.testing.assert_frame_equal(fig.counts, c.counts())
+    assert_allclose(fig.wcounts.to_numpy(), c.counts(w).to_numpy(), rtol=1e-12)
+    assert fig.denom.tolist() == c.item_summary()["in_universe"].tolist()
+    assert_allclose(fig.wdenom, c.item_summary(w)["in_universe"].to_numpy(), rtol=1e-12)
+    cases = c.cases
+    for name in ("applicable", "answered", "nonresponse", "faults"):
+        assert getattr(fig, name).tolist() == cases[name].tolist(), name
+    assert fig.broke_off.tolist() == cases["broke_off"].tolist()

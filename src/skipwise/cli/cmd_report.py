@@ -61,7 +61,5 @@ def report_command(
     except SkipwiseError as err:
         fail(err)
         return
-    summary = cl.item_summary()
-    rate = summary["nonresponse"].sum() / max(summary["in_universe"].sum(), 1)
-    typer.echo(f"{len(frame):,} cases x {len(q.items)} items; pooled item nonresponse rate {100 * rate:.2f}%")
+    typer.echo(f"{len(frame):,} cases x {len(q.items)} items")
     typer.echo(f"wrote {path}" + ("" if no_case_ids else " (its Routing faults sheet lists case ids)"))

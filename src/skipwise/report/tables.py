@@ -21,7 +21,7 @@ from skipwise.classify import statuses as S
 from skipwise.classify.result import Classification
 
 __all__ = [
-    "ITEM_RATE", "ITEM_RATE_W", "items_table", "status_shares", "subgroup_rates", "SubgroupTable",
+    "Figures", "compute_figures", "in_codes", "ITEM_RATE", "ITEM_RATE_W", "items_table", "status_shares", "subgroup_rates", "SubgroupTable",
     "completeness_table", "completeness_summary", "fault_counts", "fault_rows", "COMPLETENESS_BINS",
 ]
 
@@ -30,51 +30,139 @@ ITEM_RATE_W = "Item nonresponse rate (weighted)"
 MISSING_GROUP = "(missing)"
 
 
+def in_codes(col: np.ndarray, codes: list[int]) -> np.ndarray:
+    """``np.isin(col, codes)``, as two comparisons when the codes form a run (statuses are ordered so)."""
+    if not codes:
+        return np.zeros(col.shape, dtype=bool)
+    lo, hi = min(codes), max(codes)
+    if sorted(codes) == list(range(lo, hi + 1)):
+        return (col >= lo) & (col <= hi) if lo != hi else col == lo
+    return np.isin(col, codes)
+
+
+@dataclass(frozen=True, kw_only=True)
+class Figures:
+    """Every sum the report needs, from one pass over the items of the status matrix.
+
+    Attributes
+    ----------
+    counts, wcounts
+        Items x statuses: cases (and weighted totals, or None) of each status.
+    denom, wdenom
+        Per item: cases (weight) in the universe excluding ``breakoff`` — the rate's denominator.
+    applicable, answered, nonresponse, faults
+        Per case: items in universe (breakoff included), answered, with nonresponse, routing faults.
+    broke_off
+        Per case: at least one ``breakoff`` cell.
+    weight
+        The case weights used, or None.
+    """
+
+    counts: pd.DataFrame
+    wcounts: pd.DataFrame | None
+    denom: np.ndarray
+    wdenom: np.ndarray | None
+    applicable: np.ndarray
+    answered: np.ndarray
+    nonresponse: np.ndarray
+    faults: np.ndarray
+    broke_off: np.ndarray
+    weight: np.ndarray | None
+
+
+def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figures:
+    """One loop over items (each a contiguous column of the int8 matrix); never over cases.
+
+    The figures equal ``c.counts()``, ``c.item_summary()`` and ``c.cases``
+    (tested), computed with fewer passes over a large matrix.
+    """
+    n, p = c.codes.shape
+    k = len(c.categories)
+    applicable_m = c.universe_mask().to_numpy()
+    nr = _nr_codes(c)
+    fault = [c.code(s) for s in S.FAULT_STATUSES]
+    ans, brk = c.code(S.ANSWERED), c.code(S.BREAKOFF)
+    counts = np.zeros((p, k), dtype=np.int64)
+    wcounts = None if weight is None else np.zeros((p, k))
+    denom = np.zeros(p, dtype=np.int64)
+    wdenom = None if weight is None else np.zeros(p)
+    small = np.int16 if p < 32_000 else np.int32
+    per_case = {name: np.zeros(n, dtype=small) for name in ("applicable", "answered", "nonresponse", "faults")}
+    broke = np.zeros(n, dtype=bool)
+    for j in range(p):
+        col = c.codes[:, j]
+        counts[j] = np.bincount(col, minlength=k)
+        in_den = applicable_m[:, j] & (col != brk)
+        denom[j] = np.count_nonzero(in_den)
+        if weight is not None:
+            wcounts[j] = np.bincount(col, weights=weight, minlength=k)
+            wdenom[j] = weight @ in_den
+        per_case["applicable"] += applicable_m[:, j]
+        per_case["answered"] += col == ans
+        per_case["nonresponse"] += in_codes(col, nr)
+        per_case["faults"] += in_codes(col, fault)
+        broke |= col == brk
+    cols, idx = list(c.categories), list(c.items)
+    return Figures(
+        counts=pd.DataFrame(counts, index=idx, columns=cols),
+        wcounts=None if wcounts is None else pd.DataFrame(wcounts, index=idx, columns=cols),
+        denom=denom, wdenom=wdenom, broke_off=broke, weight=weight,
+        **{name: arr.astype(np.int64) for name, arr in per_case.items()},
+    )
+
+
 def _nr_codes(c: Classification) -> list[int]:
     return [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
 
 
-def items_table(c: Classification, weight: np.ndarray | None = None) -> pd.DataFrame:
+def _ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
+    num = np.asarray(num, dtype=np.float64)
+    den = np.asarray(den, dtype=np.float64)
+    return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
+
+
+def items_table(c: Classification, fig: Figures) -> pd.DataFrame:
     """One row per item in interview order: rule, counts of every status and the rates.
 
     Rates follow DESIGN §3: (nonresponse reasons + ``item_missing``) over the
     cases in the item's universe excluding ``breakoff``; each reason's rate has
-    the same denominator.  With ``weight`` the weighted rates (ratios of
+    the same denominator.  With weights the weighted rates (ratios of
     weighted totals) are added beside the unweighted ones.
     """
-    s = c.item_summary()
-    reasons = list(c.questionnaire.nonresponse_reasons)
+    q = c.questionnaire
+    reasons = list(q.nonresponse_reasons)
+    nr_cols = list(c.nonresponse_statuses)
+    items = [q.item(i) for i in c.items]
     out = pd.DataFrame({
-        "Section": s["section"], "Item": s["item"], "Label": s["label"], "Asked if (rule as written)": s["rule"],
-        "Cases": s["cases"], "In universe (excl. breakoff)": s["in_universe"],
+        "Section": [it.section for it in items], "Item": list(c.items), "Label": [it.label for it in items],
+        "Asked if (rule as written)": [it.rule_text for it in items],
+        "Cases": len(c.index), "In universe (excl. breakoff)": fig.denom,
     })
     for status in c.categories:
-        out[status] = s[status].astype(np.int64)
-    out["Nonresponse"] = s["nonresponse"].astype(np.int64)
-    out[ITEM_RATE] = s["nonresponse_rate"]
-    if weight is not None:
-        sw = c.item_summary(weight=weight)
-        out["In universe (weighted)"] = sw["in_universe"]
-        out[ITEM_RATE_W] = sw["nonresponse_rate"]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        denom = s["in_universe"].to_numpy(dtype=np.float64)
+        out[status] = fig.counts[status].to_numpy()
+    nonresp = fig.counts[nr_cols].sum(axis=1).to_numpy()
+    out["Nonresponse"] = nonresp
+    out[ITEM_RATE] = _ratio(nonresp, fig.denom)
+    if fig.wcounts is not None:
+        out["In universe (weighted)"] = fig.wdenom
+        out[ITEM_RATE_W] = _ratio(fig.wcounts[nr_cols].sum(axis=1).to_numpy(), fig.wdenom)
+    for reason in reasons:
+        out[f"{reason} rate"] = _ratio(fig.counts[reason].to_numpy(), fig.denom)
+    out[f"{S.ITEM_MISSING} rate"] = _ratio(fig.counts[S.ITEM_MISSING].to_numpy(), fig.denom)
+    if fig.wcounts is not None:
         for reason in reasons:
-            out[f"{reason} rate"] = s[f"{reason}_rate"]
-        out[f"{S.ITEM_MISSING} rate"] = np.where(denom > 0, s[S.ITEM_MISSING] / np.where(denom > 0, denom, 1), np.nan)
-        if weight is not None:
-            for reason in reasons:
-                out[f"{reason} rate (weighted)"] = sw[f"{reason}_rate"]
-    return out.reset_index(drop=True)
+            out[f"{reason} rate (weighted)"] = _ratio(fig.wcounts[reason].to_numpy(), fig.wdenom)
+    return out
 
 
-def status_shares(c: Classification, weight: np.ndarray | None = None) -> pd.DataFrame:
+def status_shares(c: Classification, fig: Figures) -> pd.DataFrame:
     """Share of all (case, item) cells holding each status, unweighted and weighted."""
-    counts = c.counts().sum(axis=0)
+    counts = fig.counts.sum(axis=0)
     total = max(int(counts.sum()), 1)
     out = pd.DataFrame({"status": list(c.categories), "cells": counts.to_numpy(dtype=np.int64),
                         "share": counts.to_numpy(dtype=np.float64) / total})
-    if weight is not None:
-        wc = c.counts(weight).sum(axis=0).to_numpy(dtype=np.float64)
+    if fig.wcounts is not None:
+        wc = fig.wcounts.sum(axis=0).to_numpy(dtype=np.float64)
         out["weighted share"] = wc / wc.sum() if wc.sum() > 0 else np.nan
     return out
 
@@ -124,7 +212,7 @@ def subgroup_rates(c: Classification, data: pd.DataFrame, by: tuple[str, ...],
         den = np.empty((p, k))
         for j in range(p):
             col = c.codes[:, j]
-            num[j] = np.bincount(g, weights=w * np.isin(col, nr_codes), minlength=k)
+            num[j] = np.bincount(g, weights=w * in_codes(col, nr_codes), minlength=k)
             den[j] = np.bincount(g, weights=w * (applicable[:, j] & (col != brk)), minlength=k)
         size = np.bincount(g, weights=w, minlength=k)
         with np.errstate(invalid="ignore", divide="ignore"):
@@ -144,15 +232,13 @@ COMPLETENESS_BINS: tuple[str, ...] = (
 )
 
 
-def completeness_table(c: Classification, weight: np.ndarray | None = None) -> pd.DataFrame:
+def completeness_table(fig: Figures) -> pd.DataFrame:
     """Distribution of cases by the share of their applicable items that were answered.
 
     Bins are computed in integers (``10 * answered // applicable``) so a share
     such as 3/10 always falls in its own tenth, never below it.
     """
-    cases = c.cases
-    applicable = cases["applicable"].to_numpy(dtype=np.int64)
-    answered = cases["answered"].to_numpy(dtype=np.int64)
+    applicable, answered, weight = fig.applicable, fig.answered, fig.weight
     bins = np.where(applicable > 0, (10 * answered) // np.maximum(applicable, 1), 11)
     bins = np.where((applicable > 0) & (answered == applicable), 10, bins)
     counts = np.bincount(bins, minlength=12)
@@ -164,12 +250,12 @@ def completeness_table(c: Classification, weight: np.ndarray | None = None) -> p
     return out
 
 
-def completeness_summary(c: Classification, weight: np.ndarray | None = None) -> list[tuple[str, object, str]]:
+def completeness_summary(fig: Figures) -> list[tuple[str, object, str]]:
     """Headline figures of case completeness: (label, value, kind) with kind 'int', 'pct' or 'dec'."""
-    cases = c.cases
-    share = cases["share_answered"].to_numpy(dtype=np.float64)
-    has = ~np.isnan(share)
-    n = len(cases)
+    weight = fig.weight
+    has = fig.applicable > 0
+    share = np.where(has, fig.answered / np.maximum(fig.applicable, 1), np.nan)
+    n = len(share)
     rows: list[tuple[str, object, str]] = [
         ("Cases", n, "int"),
         ("Cases with at least one applicable item", int(has.sum()), "int"),
@@ -177,26 +263,26 @@ def completeness_summary(c: Classification, weight: np.ndarray | None = None) ->
         ("Median share of applicable items answered", float(np.median(share[has])) if has.any() else None, "pct"),
         ("Lowest share answered", float(share[has].min()) if has.any() else None, "pct"),
         ("Cases that answered every applicable item",
-         int((has & (cases["answered"] == cases["applicable"])).sum()), "int"),
-        ("Cases that broke off", int(cases["broke_off"].sum()), "int"),
-        ("Cases with at least one routing fault", int((cases["faults"] > 0).sum()), "int"),
-        ("Mean applicable items per case", float(cases["applicable"].mean()) if n else None, "dec"),
-        ("Mean items with nonresponse per case", float(cases["nonresponse"].mean()) if n else None, "dec"),
+         int((has & (fig.answered == fig.applicable)).sum()), "int"),
+        ("Cases that broke off", int(fig.broke_off.sum()), "int"),
+        ("Cases with at least one routing fault", int((fig.faults > 0).sum()), "int"),
+        ("Mean applicable items per case", float(fig.applicable.mean()) if n else None, "dec"),
+        ("Mean items with nonresponse per case", float(fig.nonresponse.mean()) if n else None, "dec"),
     ]
     if weight is not None and has.any() and weight[has].sum() > 0:
         rows.insert(3, ("Weighted mean share answered", float(np.average(share[has], weights=weight[has])), "pct"))
     return rows
 
 
-def fault_counts(c: Classification) -> pd.DataFrame:
+def fault_counts(fig: Figures) -> pd.DataFrame:
     """Per item with any routing fault: count of each fault status and the total."""
-    counts = c.counts()[list(S.FAULT_STATUSES)]
+    counts = fig.counts[list(S.FAULT_STATUSES)].copy()
     counts["total"] = counts.sum(axis=1)
     counts = counts[counts["total"] > 0]
     return counts.rename_axis("item").reset_index()
 
 
-def fault_rows(c: Classification, limit: int) -> tuple[pd.DataFrame, int]:
+def fault_rows(c: Classification, fig: Figures, limit: int) -> tuple[pd.DataFrame, int]:
     """The first ``limit`` routing faults in file order (then interview order), and the total number.
 
     Only the cases holding the first faults are passed to
@@ -204,8 +290,7 @@ def fault_rows(c: Classification, limit: int) -> tuple[pd.DataFrame, int]:
     more than the rows shown.
     """
     fault_codes = [c.code(s) for s in S.FAULT_STATUSES]
-    mask = np.isin(c.codes, fault_codes)
-    per_case = mask.sum(axis=1)
+    per_case = fig.faults
     total = int(per_case.sum())
     if total == 0 or limit <= 0:
         return _empty_faults(), total
@@ -218,7 +303,7 @@ def fault_rows(c: Classification, limit: int) -> tuple[pd.DataFrame, int]:
     )
     faults = sub.faults
     # .faults lists item by item; put it in file order, then interview order within a case.
-    sub_mask = mask[rows]
+    sub_mask = np.isin(sub.codes, fault_codes)
     pos = np.concatenate([np.flatnonzero(sub_mask[:, j]) for j in range(sub_mask.shape[1]) if sub_mask[:, j].any()])
     order = np.argsort(pos, kind="stable")
     return faults.iloc[order].head(limit).reset_index(drop=True), total

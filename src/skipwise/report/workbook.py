@@ -156,14 +156,15 @@ def write_item_report(
     c = classification if classification is not None else run_classify(data, questionnaire)
     q = questionnaire
 
-    items = T.items_table(c, w)
+    fig = T.compute_figures(c, w)
+    items = T.items_table(c, fig)
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
-    faults, n_faults = T.fault_rows(c, limit)
+    faults, n_faults = T.fault_rows(c, fig, limit)
     rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
     chosen = pick_items(rates, top_items)
     idx = [c.items.index(name) for name in chosen]
     nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
-    mask = np.isin(c.codes[:, idx], nr_codes) if idx else np.zeros((len(c.index), 0), dtype=bool)
+    mask = np.column_stack([T.in_codes(c.codes[:, j], nr_codes) for j in idx]) if idx else np.zeros((len(c.index), 0), dtype=bool)
     patterns = nonresponse_patterns(mask, chosen, top=top_patterns, weight=w)
     subgroups = T.subgroup_rates(c, data, by, w) if by else None
     info = OverviewInfo(
@@ -177,13 +178,13 @@ def write_item_report(
     )
 
     wb = Workbook(write_only=True)
-    write_overview_sheet(wb, info, T.status_shares(c, w), title=SHEETS[0])
+    write_overview_sheet(wb, info, T.status_shares(c, fig), title=SHEETS[0])
     items_layout = write_items_sheet(wb, items, title=SHEETS[1])
     items_ws = wb[SHEETS[1]]
-    write_faults_sheet(wb, faults, n_faults, T.fault_counts(c), case_ids=case_ids, title=SHEETS[2])
+    write_faults_sheet(wb, faults, n_faults, T.fault_counts(fig), case_ids=case_ids, title=SHEETS[2])
     write_patterns_sheet(wb, patterns, rates, title=SHEETS[3])
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
-    comp_layout = write_completeness_sheet(wb, T.completeness_table(c, w), T.completeness_summary(c, w),
+    comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
                                            title=SHEETS[5])
     write_charts_sheet(wb, items_layout, comp_layout, items_ws, wb[SHEETS[5]], weighted=w is not None,
                        title=SHEETS[6])

@@ -1,0 +1,78 @@
+"""Time the item-nonresponse workbook on a large invented file (prints figures; not a test).
+
+Builds a synthetic questionnaire of ITEMS integer items (every tenth routed on the item before it),
+random stored values for CASES cases (answers, blanks, don't-know and refusal codes, a few
+out-of-range values), classifies them, then times only ``write_item_report`` with a weight and
+one grouping column.  Target: at most 60 s for 1,000,000 x 200.
+
+Usage: python benchmarks/bench_report.py [CASES] [ITEMS]
+"""
+
+from __future__ import annotations
+
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from skipwise.classify import classify
+from skipwise.questionnaire.loader import loads_questionnaire
+from skipwise.report import write_item_report
+
+
+def questionnaire_text(p: int) -> str:
+    lines = ["format: 1", "survey: {name: bench, title: Benchmark survey, case_id: id}", "context: [wt, region]",
+             "codes:", "  - {value: -1, reason: routed_out, kind: structural}",
+             "  - {value: -8, reason: dont_know, kind: nonresponse}",
+             "  - {value: -9, reason: refused, kind: nonresponse}", "breakoff: {min_run: 5}",
+             "sections:", "  - name: main", "    items:"]
+    for j in range(p):
+        rule = f", asked_if: x{j - 1:03d} <= 6" if j % 10 == 9 else ""
+        lines.append(f"      - {{name: x{j:03d}, label: Item {j}, type: integer, range: [0, 9]{rule}}}")
+    return "\n".join(lines) + "\n"
+
+
+def synthetic_data(n: int, p: int, seed: int = 2026) -> pd.DataFrame:
+    rng = np.random.default_rng(seed)
+    cols: dict[str, np.ndarray] = {"id": np.arange(n, dtype=np.int64),
+                                   "wt": rng.uniform(0.5, 3.0, n),
+                                   "region": rng.integers(1, 8, n)}
+    for j in range(p):  # loop over items, not cases
+        u = rng.random(n, dtype=np.float32)
+        v = rng.integers(0, 10, n).astype(np.float64)
+        v[u < 0.04] = np.nan
+        v[(u >= 0.04) & (u < 0.07)] = -8
+        v[(u >= 0.07) & (u < 0.09)] = -9
+        v[(u >= 0.09) & (u < 0.0905)] = 99
+        cols[f"x{j:03d}"] = v
+    return pd.DataFrame(cols)
+
+
+def main() -> None:
+    n = int(sys.argv[1]) if len(sys.argv) > 1 else 1_000_000
+    p = int(sys.argv[2]) if len(sys.argv) > 2 else 200
+    q = loads_questionnaire(questionnaire_text(p))
+    t0 = time.perf_counter()
+    data = synthetic_data(n, p)
+    t1 = time.perf_counter()
+    c = classify(data, q)
+    t2 = time.perf_counter()
+    print(f"cases x items:           {n:,} x {p}")
+    print(f"generate data:           {t1 - t0:8.1f} s")
+    print(f"classify (not the target): {t2 - t1:6.1f} s")
+    with tempfile.TemporaryDirectory() as tmp:
+        out = Path(tmp) / "bench.xlsx"
+        t3 = time.perf_counter()
+        write_item_report(data, q, out, classification=c, weight="wt", by=("region",))
+        t4 = time.perf_counter()
+        size = out.stat().st_size
+    print(f"routing faults in file:  {int(c.counts()[['off_route', 'wrong_code', 'invalid']].to_numpy().sum()):,}")
+    print(f"write report:            {t4 - t3:8.1f} s  (target <= 60 s)")
+    print(f"workbook size:           {size / 1e6:8.1f} MB")
+
+
+if __name__ == "__main__":
+    main()
