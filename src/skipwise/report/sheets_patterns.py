@@ -6,6 +6,7 @@ from typing import Any
 
 import pandas as pd
 from openpyxl.styles import Alignment
+from openpyxl.utils import get_column_letter
 
 from skipwise.report import styles as st
 from skipwise.report.patterns import PatternTable
@@ -25,7 +26,7 @@ def write_patterns_sheet(wb: Any, pt: PatternTable, rates: pd.Series, *, title: 
     lead = ["Pattern", "Cases", "Share of cases"] + (["Weighted share"] if weighted else []) + ["Items missing"]
     k = len(pt.items)
     st.set_widths(ws, [10, 11, 11] + ([11] if weighted else []) + [9] + [5] * k)
-    ws.freeze_panes = f"{_col(len(lead) + 1)}{PATTERNS_HEADER_ROW + 1}"
+    ws.freeze_panes = f"{get_column_letter(len(lead) + 1)}{PATTERNS_HEADER_ROW + 1}"
     if k:
         ws.auto_filter.ref = st.table_ref(PATTERNS_HEADER_ROW, PATTERNS_HEADER_ROW + len(pt.counts), len(lead) + k)
     ws.append(st.title_row(ws, "Joint patterns of item nonresponse"))
@@ -61,8 +62,3 @@ def write_patterns_sheet(wb: Any, pt: PatternTable, rates: pd.Series, *, title: 
     if weighted:
         other.append(st.value_cell(ws, pt.other_weight / pt.total_weight if pt.total_weight else None, st.PCT))
     ws.append(other)
-
-
-def _col(j: int) -> str:
-    from openpyxl.utils import get_column_letter
-    return get_column_letter(j)
