@@ -18,7 +18,7 @@ from skipwise.classify import cells as K
 from skipwise.classify import statuses as S
 from skipwise.questionnaire.model import ItemType, Questionnaire
 from skipwise.rules import ast
-from skipwise.rules.evaluate import TRUE, UNK
+from skipwise.rules.evaluate import TRUE, UNK, isin_small
 
 __all__ = ["Classification", "status_categories"]
 
@@ -70,7 +70,7 @@ class Classification:
 
     def _is(self, statuses: tuple[str, ...] | list[str]) -> np.ndarray:
         wanted = [self.categories.index(s) for s in statuses if s in self.categories]
-        return np.isin(self.codes, wanted)
+        return isin_small(self.codes, wanted)
 
     def mask(self, *statuses: str) -> pd.DataFrame:
         """Boolean frame: cells holding any of the given statuses."""
@@ -114,9 +114,12 @@ class Classification:
         """
         w = _weights(weight, len(self.index))
         counts = self.counts(w)
-        wv = np.ones(len(self.index)) if w is None else w
         applicable = self._applicable & (self.codes != self.code(S.BREAKOFF))
-        denom = pd.Series(wv @ applicable, index=list(self.items))
+        if w is None:
+            denom = pd.Series(np.count_nonzero(applicable, axis=0), index=list(self.items))
+        else:  # one column at a time: never a float copy of the whole matrix
+            denom = pd.Series([w[applicable[:, j]].sum() for j in range(applicable.shape[1])],
+                              index=list(self.items))
         nonresp = counts[list(self.nonresponse_statuses)].sum(axis=1)
         q = self.questionnaire
         out = pd.DataFrame({
@@ -124,7 +127,7 @@ class Classification:
             "item": list(self.items),
             "label": [q.item(i).label for i in self.items],
             "rule": [q.item(i).rule_text for i in self.items],
-            "cases": float(wv.sum()) if w is not None else len(self.index),
+            "cases": float(w.sum()) if w is not None else len(self.index),
             "in_universe": denom if w is not None else denom.astype(np.int64),
         }, index=list(self.items))
         out = pd.concat([out, counts], axis=1)
@@ -158,7 +161,7 @@ class Classification:
         frames = []
         fault_codes = [self.code(s) for s in S.FAULT_STATUSES]
         for j, name in enumerate(self.items):
-            rows = np.flatnonzero(np.isin(self.codes[:, j], fault_codes))
+            rows = np.flatnonzero(isin_small(self.codes[:, j], fault_codes))
             if rows.size == 0:
                 continue
             item = self.questionnaire.item(name)
