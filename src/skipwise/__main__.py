@@ -1,0 +1,5 @@
+"""``python -m skipwise``."""
+
+from skipwise.cli import main
+
+main()

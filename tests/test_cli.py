@@ -1,0 +1,105 @@
+"""The command line: help on every command, exit statuses, the classify command's outputs."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+import textwrap
+
+import pandas as pd
+import pyreadstat
+import pytest
+from typer.testing import CliRunner
+
+from skipwise.cli import app
+
+runner = CliRunner()
+COMMANDS = ["draft", "check", "classify", "report", "diagnose", "weigh", "impute", "demo"]
+
+Q = textwrap.dedent("""\
+    format: 1
+    survey: {name: t, case_id: id}
+    codes: [{value: -1, reason: na, kind: structural}, {value: -9, reason: refused, kind: nonresponse}]
+    sections:
+      - name: s
+        items:
+          - {name: gate, type: categorical, values: {1: "Yes", 2: "No"}}
+          - {name: amount, type: integer, range: [0, 10], asked_if: gate == 1}
+    """)
+
+
+@pytest.mark.parametrize("command", COMMANDS)
+def test_every_command_has_help(command):
+    result = runner.invoke(app, [command, "--help"])
+    assert result.exit_code == 0
+    assert "Usage" in result.output and len(result.output.splitlines()) > 5
+
+
+def test_root_help_lists_commands_and_cautions():
+    result = runner.invoke(app, ["--help"])
+    assert result.exit_code == 0
+    for command in COMMANDS:
+        assert command in result.output
+    assert "not at random" in result.output
+
+
+@pytest.fixture()
+def files(tmp_path):
+    q = tmp_path / "q.yaml"
+    q.write_text(Q)
+    data = tmp_path / "data.csv"
+    pd.DataFrame({"id": [1, 2, 3, 4], "gate": [1, 2, 1, -9], "amount": [5, 3, -9, None]}).to_csv(data, index=False)
+    return tmp_path, q, data
+
+
+def test_classify_writes_status_columns_and_faults(files):
+    tmp, q, data = files
+    out = tmp / "out.sav"
+    result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    # Read back with pyreadstat directly, not through skipwise.
+    frame, meta = pyreadstat.read_sav(str(out))
+    assert frame["amount_status"].tolist() == [1, 6, 11, 4]  # answered, off_route, refused, gate_unknown
+    assert meta.variable_value_labels["amount_status"][6.0] == "off_route"
+    faults = pd.read_csv(tmp / "out_faults.csv")
+    assert faults[["case_id", "item", "status", "value", "inputs"]].values.tolist() == [
+        [2, "amount", "off_route", 3, "gate=2"]]
+    # An existing output is kept unless --overwrite is given.
+    again = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(out)])
+    assert again.exit_code == 1 and "--overwrite" in again.output
+
+
+def test_classify_recoded_dta_read_by_pandas(files):
+    tmp, q, data = files
+    out = tmp / "coded.dta"
+    result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(out), "--form", "recoded"])
+    assert result.exit_code == 0, result.output
+    # pandas' own Stata reader (an independent implementation) sees the extended missing letters.
+    back = pd.read_stata(out, convert_missing=True, convert_categoricals=False)
+    cells = [v.string if hasattr(v, "string") else v for v in back["amount"]]
+    assert cells == [5, ".e", ".h", ".c"]  # answered, off_route, refused (first reason), gate_unknown
+
+
+def test_user_error_exits_1_without_traceback(files):
+    tmp, q, _ = files
+    result = runner.invoke(app, ["classify", str(tmp / "missing.csv"), "-q", str(q), "-o", str(tmp / "o.csv")])
+    assert result.exit_code == 1
+    assert "file not found" in result.output and "Traceback" not in result.output
+
+
+def test_bad_usage_exits_2():
+    assert runner.invoke(app, ["classify"]).exit_code == 2
+    assert runner.invoke(app, ["no-such-command"]).exit_code == 2
+
+
+def test_real_subprocess_smoke(files):
+    tmp, q, data = files
+    bad = tmp / "bad.yaml"
+    bad.write_text("format: 1\nsurvey: {name: t, case_id: id}\nsections:\n  - name: s\n    items:\n"
+                   "      - {name: x, type: integr}\n")
+    proc = subprocess.run([sys.executable, "-m", "skipwise", "classify", str(data), "-q", str(bad), "-o",
+                           str(tmp / "o.csv")], capture_output=True, text=True)
+    assert proc.returncode == 1
+    assert "bad.yaml:6" in proc.stderr and "integer" in proc.stderr and "Traceback" not in proc.stderr
+    ok = subprocess.run([sys.executable, "-m", "skipwise", "--version"], capture_output=True, text=True)
+    assert ok.returncode == 0 and ok.stdout.startswith("skipwise ")
