@@ -30,6 +30,7 @@ class CompletenessLayout:
 def write_completeness_sheet(wb: Any, table: pd.DataFrame, summary: list[tuple[str, object, str]], *,
                              title: str = "Completeness") -> CompletenessLayout:
     ws = wb.create_sheet(title)
+    st.printable(ws)
     cols = [str(c) for c in table.columns]
     st.set_widths(ws, [44, 12, 14, 14])
     ws.freeze_panes = f"A{COMPLETENESS_HEADER_ROW + 1}"
@@ -56,6 +57,7 @@ def write_charts_sheet(wb: Any, items: ItemsLayout, comp: CompletenessLayout, it
                        *, weighted: bool, title: str = "Charts") -> None:
     """Native bar charts of the item nonresponse rate by item and of case completeness."""
     ws = wb.create_sheet(title)
+    st.printable(ws)
     n_items = items.last_row - items.first_row + 1
     shown = min(n_items, CHART_MAX_ITEMS)
     ws.append(st.title_row(ws, "Charts"))

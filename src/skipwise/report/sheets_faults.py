@@ -44,6 +44,7 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
         False leaves the case id column out altogether.
     """
     ws = wb.create_sheet(title)
+    st.printable(ws)
     keys = [k for k in _LIST_HEADER if case_ids or k != "case_id"]
     n_list = len(keys)
     count_cols = list(counts.columns)

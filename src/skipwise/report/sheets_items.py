@@ -6,6 +6,7 @@ from dataclasses import dataclass
 from typing import Any
 
 import pandas as pd
+
 from skipwise.report import styles as st
 from skipwise.report.tables import ITEM_RATE, ITEM_RATE_W, SubgroupTable
 
@@ -46,6 +47,7 @@ def _formats(frame: pd.DataFrame) -> dict[str, str]:
 def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> ItemsLayout:
     """One row per item in interview order; frozen header and item columns, auto filter, percentages."""
     ws = wb.create_sheet(title)
+    st.printable(ws)
     cols = [str(c) for c in table.columns]
     widths = []
     for c in cols:
@@ -75,6 +77,7 @@ def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFram
                           title: str = "Subgroups") -> None:
     """Item nonresponse rate of each item (rows) in each group value (columns)."""
     ws = wb.create_sheet(title)
+    st.printable(ws)
     if sub is None or sub.rates.shape[1] == 0:
         st.set_widths(ws, [90])
         ws.append(st.title_row(ws, "Item nonresponse rate by subgroup"))

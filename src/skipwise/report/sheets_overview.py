@@ -63,6 +63,7 @@ class OverviewInfo:
 
 def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, title: str = "Overview") -> None:
     ws = wb.create_sheet(title)
+    st.printable(ws)
     st.set_widths(ws, [44, 16, 16, 16, 60])
     ws.append(st.title_row(ws, f"Item nonresponse report: {info.survey_title or info.survey_name}"))
     ws.append([])

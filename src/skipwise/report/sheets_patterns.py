@@ -22,6 +22,7 @@ def write_patterns_sheet(wb: Any, pt: PatternTable, rates: pd.Series, *, title: 
     ``rates`` holds each item's (unweighted) item nonresponse rate, shown above its grid column.
     """
     ws = wb.create_sheet(title)
+    st.printable(ws)
     weighted = pt.weighted is not None
     lead = ["Pattern", "Cases", "Share of cases"] + (["Weighted share"] if weighted else []) + ["Items missing"]
     k = len(pt.items)
