@@ -1,0 +1,310 @@
+"""``skipwise run``: the whole pipeline from one run plan, into one hand-over package.
+
+Order: load the definitions (questionnaire, weighting and imputation plans),
+check every output path, then read, check, classify, report, diagnose, weigh,
+impute and export.  Every file is first written (atomically) into a hidden
+staging folder inside the package folder; only when every step has succeeded
+are the files renamed into place, so a failed or interrupted run leaves neither
+a half-written file nor a half-replaced package.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import os
+import shutil
+import tempfile
+import time
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Callable
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.pipeline.manifest import StepRecord, build_manifest, file_record, manifest_text
+from skipwise.pipeline.plan import RunPlan, load_run_plan
+from skipwise.pipeline.reporting import Reporter, SilentReporter
+from skipwise.pipeline import steps as S
+
+__all__ = ["run_plan", "RunResult", "StepFailed", "planned_outputs", "STEPS"]
+
+#: The steps in the order they run, with what each does.
+STEPS: dict[str, str] = {
+    "plan": "load the questionnaire and the weighting and imputation plans",
+    "read": "read the data",
+    "check": "check the questionnaire against the data",
+    "classify": "give every cell its status",
+    "report": "write the item nonresponse workbook",
+    "diagnose": "diagnose the missingness mechanism",
+    "weigh": "compute outcome rates and weights",
+    "impute": "impute in-universe item nonresponse",
+    "export": "write the final data files and the codebook",
+}
+
+
+class StepFailed(SkipwiseError):
+    """A step of the run failed; carries that step's problems and names the step."""
+
+    def __init__(self, step: str, err: SkipwiseError):
+        self.step = step
+        super().__init__(err.problems, headline=f"run stopped at step '{step}' ({STEPS[step]})"
+                         + (f": {err.headline}" if err.headline else ""))
+
+
+@dataclass(frozen=True, kw_only=True)
+class RunResult:
+    """What a run wrote (role -> final path), its step records, the manifest and the run's state."""
+
+    plan: RunPlan
+    folder: Path
+    files: dict[str, Path]
+    steps: tuple[StepRecord, ...]
+    manifest: dict
+    state: S.RunState
+
+
+def planned_outputs(plan: RunPlan, weighting_plan=None, imputation_plan=None) -> dict[str, str]:
+    """Role -> file name (inside the package folder) of every file the run will write."""
+    name = plan.output.name
+    out: dict[str, str] = {}
+    for fmt in plan.formats("status_columns"):
+        out[f"data_{fmt}"] = f"{name}.{fmt}"
+    for fmt in plan.formats("recoded"):
+        out[f"coded_{fmt}"] = f"{name}_coded.{fmt}"
+    out["faults"] = f"{name}_faults.csv"
+    if plan.report is not None:
+        out["item_report"] = "item_report.xlsx"
+    if plan.diagnose is not None:
+        out["diagnostics"] = "diagnostics.xlsx"
+    if weighting_plan is not None:
+        out["weighting_workbook"] = "weighting.xlsx"
+        if plan.weighting_data is not None:
+            stem, fmt = plan.weighting_data.stem, plan.weighting_data.suffix.lower().lstrip(".")
+            out["weighted_frame"] = f"{stem}_weighted.{fmt}"
+            if fmt != "parquet":
+                out["weighted_frame_parquet"] = f"{stem}_weighted.parquet"
+    if imputation_plan is not None:
+        fmt = plan.output.imputed_format
+        fmt = plan.input_format() if fmt == "input" else fmt
+        paths = S.imputation_paths(Path(f"{name}_imputed.{fmt}"), imputation_plan.spec.m, imputation_plan.output.form)
+        for k, p in enumerate(paths):
+            out[f"imputed_{k + 1}"] = p.name
+    out["codebook_md"] = "codebook.md"
+    out["codebook_html"] = "codebook.html"
+    out["manifest"] = "manifest.json"
+    return out
+
+
+_FILE_TEXT = {
+    "data": "final data: every original column with labels and missing definitions, `<item>_status` columns, weights",
+    "coded": "final data, recoded form: every non-answer cell of numeric items carries its status's special code",
+    "faults": "routing faults, one row per cell, with the rule and its inputs (lists case ids)",
+    "item_report": "item nonresponse workbook", "diagnostics": "missingness-mechanism diagnostics workbook",
+    "weighting_workbook": "weighting diagnostics: outcome rates, weights by stage, estimates",
+    "weighted_frame": "the weighting file (all sampled cases) with its weight columns",
+    "imputed": "completed data (imputations) with `<item>_imp` flags and the weights",
+    "codebook_md": "this codebook (Markdown)", "codebook_html": "this codebook (HTML)",
+    "manifest": "versions, plan, seeds, timings and the SHA-256 of every input and output",
+}
+
+
+def _describe(role: str) -> str:
+    for key, text in _FILE_TEXT.items():
+        if role == key or role.startswith(key + "_"):
+            return text
+    return ""
+
+
+def _check_targets(plan: RunPlan, names: dict[str, str], inputs: list[Path], overwrite: bool) -> None:
+    folder = plan.output.folder
+    problems = []
+    for name in names.values():
+        path = folder / name
+        if path.resolve() in inputs:
+            problems.append(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
+                                    message="this output would replace an input file",
+                                    hint="choose another output.folder or output.name in the plan"))
+        elif path.exists() and not overwrite:
+            problems.append(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
+                                    message="output file already exists"))
+    if problems:
+        raise SkipwiseError(problems, headline=f"{len(problems)} output file(s) of the run are in the way "
+                            f"(nothing was written) — pass --overwrite to replace them, or choose another "
+                            f"output.folder")
+
+
+def _load_definitions(plan: RunPlan, st: S.RunState) -> None:
+    from skipwise.questionnaire import load_questionnaire
+
+    errors: list[Problem] = []
+    for attr, loader, path in (
+        ("q", load_questionnaire, plan.questionnaire),
+        ("weighting_plan", _weighting_loader, plan.weighting_plan),
+        ("imputation_plan", _imputation_loader, plan.imputation_plan),
+    ):
+        if path is None:
+            continue
+        try:
+            setattr(st, attr, loader(path))
+        except SkipwiseError as err:
+            errors += err.problems
+    if errors:
+        raise SkipwiseError(errors)
+
+
+def _weighting_loader(path: Path):
+    from skipwise.weighting.plan import load_plan
+
+    return load_plan(path)
+
+
+def _imputation_loader(path: Path):
+    from skipwise.impute.plan import load_plan
+
+    return load_plan(path)
+
+
+def _now() -> str:
+    return dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds")
+
+
+def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: Reporter | None = None) -> RunResult:
+    """Run every step of ``plan`` and write the hand-over package.
+
+    Parameters
+    ----------
+    plan
+        A :class:`RunPlan` or the path of a run plan file.
+    overwrite
+        Replace files of an earlier package; without it, every output in the way is
+        reported in one error before anything runs.
+    reporter
+        Receives progress (default: silent).
+
+    Raises
+    ------
+    SkipwiseError
+        Plan problems (all at once, with lines), outputs in the way, or
+        :class:`StepFailed` naming the step that failed.  Nothing is written
+        in the package folder unless every step succeeded.
+    """
+    reporter = reporter or SilentReporter()
+    if not isinstance(plan, RunPlan):
+        plan = load_run_plan(plan)
+    started = _now()
+    records: list[StepRecord] = []
+    st = S.RunState(plan=plan, targets={})
+    t0 = time.perf_counter()
+    reporter.step("plan", STEPS["plan"])
+    try:
+        _load_definitions(plan, st)
+    except SkipwiseError as err:
+        raise StepFailed("plan", err) from None
+    inputs = [("run_plan", plan.file), ("data", plan.data), ("questionnaire", plan.questionnaire),
+              ("weighting_plan", plan.weighting_plan), ("weighting_data", plan.weighting_data),
+              ("imputation_plan", plan.imputation_plan)]
+    inputs = [(role, p) for role, p in inputs if p is not None]
+    names = planned_outputs(plan, st.weighting_plan, st.imputation_plan)
+    _check_targets(plan, names, [p.resolve() for _, p in inputs], overwrite)
+    input_records = [file_record(role, p) for role, p in inputs]
+    records.append(StepRecord(step="plan", status="done", seconds=time.perf_counter() - t0))
+
+    folder = plan.output.folder
+    created = not folder.exists()
+    folder.mkdir(parents=True, exist_ok=True)
+    staging = Path(tempfile.mkdtemp(prefix=".skipwise-run-", dir=folder))
+    st.targets = {role: staging / name for role, name in names.items()}
+    try:
+        _steps(st, reporter, records)
+        t1 = time.perf_counter()
+        outputs = [file_record(role, st.targets[role], name=names[role]) for role in names if role != "manifest"]
+        seeds = {"imputation": st.imputation_plan.spec.seed if st.imputation_plan else None,
+                 "replicates": (st.weighting_plan.replicates.seed if st.weighting_plan and st.weighting_plan.replicates
+                                and st.weighting_plan.replicates.method != "jackknife" else None)}
+        records.append(StepRecord(step="manifest", status="done", seconds=time.perf_counter() - t1))
+        manifest = build_manifest(plan=plan.resolved(), inputs=input_records, outputs=outputs, steps=records,
+                                  seeds=seeds, started=started, finished=_now(), summary=_summary(st))
+        from skipwise.io.atomic import atomic_output
+
+        with atomic_output(st.targets["manifest"], overwrite=True) as tmp:
+            tmp.write_text(manifest_text(manifest), encoding="utf-8")
+        for role, name in names.items():  # every step succeeded: move the package into place
+            os.replace(st.targets[role], folder / name)
+    finally:
+        shutil.rmtree(staging, ignore_errors=True)
+        if created and not any(folder.iterdir()):
+            folder.rmdir()
+    for note in st.notes:
+        reporter.info(f"note: {note}")
+    return RunResult(plan=plan, folder=folder, files={r: folder / n for r, n in names.items()},
+                     steps=tuple(records), manifest=manifest, state=st)
+
+
+def _steps(st: S.RunState, reporter: Reporter, records: list[StepRecord]) -> None:
+    plan = st.plan
+    todo: list[tuple[str, Callable | None]] = [
+        ("read", S.read_step), ("check", S.check_step), ("classify", S.classify_step),
+        ("report", S.report_step if plan.report is not None else None),
+        ("diagnose", _diagnose if plan.diagnose is not None else None),
+        ("weigh", S.weigh_step if st.weighting_plan is not None else None),
+        ("impute", S.impute_step if st.imputation_plan is not None else None),
+        ("export", _export),
+    ]
+    for name, fn in todo:
+        if fn is None:
+            records.append(StepRecord(step=name, status="skipped", seconds=0.0, detail="not in the plan"))
+            continue
+        reporter.step(name, STEPS[name])
+        t0 = time.perf_counter()
+        try:
+            fn(st, reporter)
+        except SkipwiseError as err:
+            raise StepFailed(name, err) from None
+        records.append(StepRecord(step=name, status="done", seconds=time.perf_counter() - t0))
+
+
+def _diagnose(st: S.RunState, reporter: Reporter) -> None:
+    from skipwise.pipeline.diagnose import diagnose_step
+
+    st.diagnostics = diagnose_step(st.data, st.q, st.cl, st.plan, st.targets["diagnostics"], reporter)
+
+
+def _export(st: S.RunState, reporter: Reporter) -> None:
+    from skipwise.io import write_survey
+    from skipwise.pipeline.codebook import codebook_blocks, codebook_html, codebook_markdown
+
+    frame = meta = None
+    for form, roles in (("columns", "data_"), ("recoded", "coded_")):
+        for role in [r for r in st.targets if r.startswith(roles)]:
+            fmt = role[len(roles):]
+            out, out_meta = S.final_frame(st, form, fmt)
+            write_survey(out, st.targets[role], out_meta, overwrite=True)
+            if form == "columns" and frame is None:
+                frame, meta = out, out_meta
+            reporter.info(f"wrote {st.targets[role].name}")
+    weight = weight_name = None
+    if st.weigh is not None:
+        weight_name = f"{st.weighting_plan.prefix}final"
+        weight = S.nan_to_zero(st.weights[weight_name])
+    elif st.plan.report is not None and st.plan.report.weight:
+        weight_name = st.plan.report.weight
+        weight = S.nan_to_zero(st.data[weight_name])
+    files = [(st.targets[r].name, _describe(r)) for r in st.targets]
+    blocks = codebook_blocks(st, frame, meta, files, weight, weight_name)
+    from skipwise.io.atomic import atomic_output
+
+    with atomic_output(st.targets["codebook_md"], overwrite=True) as tmp:
+        tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
+    with atomic_output(st.targets["codebook_html"], overwrite=True) as tmp:
+        tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
+
+
+def _summary(st: S.RunState) -> dict:
+    out: dict = {"cases": len(st.data), "items": len(st.q.items),
+                 "check_errors": len(st.check.errors), "check_notes": len(st.check.notes),
+                 "routing_faults": len(st.cl.faults)}
+    if st.weigh is not None:
+        out["respondents"] = int(st.weigh.prepared.respondent.sum())
+        out["RR3"] = st.weigh.rates.get("RR3")
+    if st.impute is not None:
+        out["imputations"] = st.impute.m
+    return out

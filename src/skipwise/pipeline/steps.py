@@ -1,0 +1,268 @@
+"""The steps of a run, and the glue the single commands share with it.
+
+Each step reads what earlier steps left in a :class:`RunState` and writes its
+files to the staging paths it is given (every write is atomic).  The helpers
+``weigh_with_progress``, ``weight_meta``, ``imputed_frames`` and
+``imputation_meta`` are also what ``skipwise weigh`` and ``skipwise impute`` call.
+"""
+
+from __future__ import annotations
+
+import contextlib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.io import SurveyMeta, get_meta
+from skipwise.pipeline.plan import RunPlan
+from skipwise.pipeline.reporting import Reporter, SilentReporter, classify_progress
+
+__all__ = ["RunState", "weigh_with_progress", "weight_meta", "weight_labels", "imputation_paths",
+           "imputed_frames", "imputation_meta", "read_step", "check_step", "classify_step", "report_step",
+           "weigh_step", "impute_step", "final_frame"]
+
+
+@dataclass
+class RunState:
+    """What the steps of one run hand on to each other (mutable, private to the run)."""
+
+    plan: RunPlan
+    targets: dict[str, Path]              # role -> staging path of each output
+    q: Any = None                         # Questionnaire
+    weighting_plan: Any = None            # WeightingPlan
+    imputation_plan: Any = None           # ImputePlan
+    data: pd.DataFrame | None = None
+    weighting_data: pd.DataFrame | None = None
+    check: Any = None                     # DataCheck
+    cl: Any = None                        # Classification
+    weights: pd.DataFrame | None = None   # weight columns aligned with ``data`` (NaN: not in the weighting file)
+    weight_meta: SurveyMeta | None = None
+    weigh: Any = None                     # WeighResult
+    impute: Any = None                    # SkipAwareResult
+    diagnostics: Any = None               # DiagnosticsReport
+    notes: list[str] = field(default_factory=list)
+
+
+# --- glue shared with the single commands -------------------------------------------------------
+
+def weigh_with_progress(frame: pd.DataFrame, spec, *, share_answered: pd.Series | None = None,
+                        reporter: Reporter | None = None):
+    """:func:`skipwise.weighting.weigh.weigh` with a progress bar over the replicates."""
+    from skipwise.weighting.weigh import weigh
+
+    reporter = reporter or SilentReporter()
+    with contextlib.ExitStack() as stack:
+        bar: dict[str, Callable[[int], None]] = {}
+
+        def on_design(count: int) -> None:
+            bar["advance"] = stack.enter_context(reporter.progress("replicates", count))
+
+        return weigh(frame, spec, share_answered=share_answered, on_design=on_design,
+                     progress=lambda _done: bar["advance"](1))
+
+
+def weight_labels(res) -> dict[str, str]:
+    """Variable label of every weight column a weighting result adds."""
+    p = res.plan.prefix
+    labels = {
+        f"{p}outcome": "Outcome category (I, P, R, NC, O, UH, UO, NE)",
+        f"{p}base": "Base weight (inverse selection probability or given weight)",
+        f"{p}eligibility": "Weight after unknown-eligibility adjustment",
+        f"{p}nonresponse": "Weight after nonresponse adjustment",
+        f"{p}calibrated": "Weight after calibration",
+        f"{p}final": "Final weight (after trimming)",
+    }
+    return {col: labels.get(col, f"Replicate weight {col[len(p) + 3:]}") for col in res.weight_columns}
+
+
+def weight_meta(res, meta: SurveyMeta | None = None) -> SurveyMeta:
+    """``meta`` (default: the weighted frame's) with labels and measures of the weight columns."""
+    meta = get_meta(res.data) if meta is None else meta.copy()
+    for col, label in weight_labels(res).items():
+        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
+    return meta
+
+
+def imputation_paths(out: Path, m: int, form: str) -> list[Path]:
+    """Where the completed data go: OUT itself (stacked, or M = 1), else OUT_1 ... OUT_M."""
+    if form == "stacked" or m == 1:
+        return [out]
+    return [out.with_name(f"{out.stem}_{k}{out.suffix}") for k in range(1, m + 1)]
+
+
+def imputed_frames(res, output) -> list[pd.DataFrame]:
+    """The frames to write: one stacked frame, or one per imputation (flags appended)."""
+    if output.form == "stacked":
+        return [res.stacked(output.imputation_column, output.flag_suffix)]
+    return [res.with_flags(i, output.flag_suffix) for i in range(res.m)]
+
+
+def imputation_meta(frame: pd.DataFrame, res, output) -> SurveyMeta:
+    """The input's metadata plus labels of the flag columns (and of the imputation number)."""
+    from skipwise.impute.skipaware import FLAG_LABELS
+
+    meta = get_meta(frame)
+    for item in res.imputed[0].columns:
+        meta = meta.with_column(f"{item}{output.flag_suffix}", label=f"Imputation flag of {item}",
+                                value_labels=FLAG_LABELS, measure="nominal")
+    if output.form == "stacked":
+        meta = meta.with_column(output.imputation_column, label="Imputation number (1..M)", measure="nominal")
+    return meta
+
+
+# --- the steps of a run ---------------------------------------------------------------------------
+
+def read_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.io import read_survey
+
+    st.data = read_survey(st.plan.data)
+    reporter.info(f"{st.plan.data.name}: {len(st.data):,} cases, {st.data.shape[1]:,} columns")
+    if st.plan.weighting_data is not None:
+        st.weighting_data = read_survey(st.plan.weighting_data)
+        reporter.info(f"{st.plan.weighting_data.name} (weighting): {len(st.weighting_data):,} cases")
+
+
+def check_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.checkdata import check_data
+
+    st.check = check_data(st.data, st.q, top=st.plan.check_top)
+    for row in st.check.to_rows():
+        reporter.info(f"  {row['kind']:<5} {row['item'] or '-':<18} {row['finding']:<18} {row['detail']}")
+    reporter.info(f"{len(st.check.errors)} error(s), {len(st.check.notes)} note(s)")
+    if not st.check.ok:
+        if st.plan.stop_on_check_error:
+            raise SkipwiseError(Problem(
+                code=ProblemCode.BAD_DATA, category=Category.DATA, file=str(st.plan.file),
+                line=st.plan.line("check", "stop_on_error"),
+                message=f"the check found {len(st.check.errors)} error(s) and the plan says check.stop_on_error",
+                hint="fix the questionnaire or the data, or set check: {stop_on_error: false}"))
+        reporter.info("continuing (check.stop_on_error is false): invalid values are classified as 'invalid'")
+
+
+def classify_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.classify import classify
+
+    with classify_progress(reporter, len(st.q.items), st.data.shape[0] * len(st.q.items)) as progress:
+        st.cl = classify(st.data, st.q, progress=progress)
+    with _atomic(st.targets["faults"]) as tmp:
+        st.cl.faults.to_csv(tmp, index=False)
+    shares = st.cl.counts().sum(axis=0)
+    total = max(int(shares.sum()), 1)
+    reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
+                  + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
+    reporter.info(f"{len(st.cl.faults):,} routing faults (the fault list names case ids)")
+
+
+def report_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.report import write_item_report
+
+    o = st.plan.report
+    write_item_report(st.data, st.q, st.targets["item_report"], classification=st.cl, weight=o.weight, by=o.by,
+                      case_ids=o.case_ids, top_items=o.top_items, top_patterns=o.top_patterns,
+                      fault_rows=o.fault_rows, input_path=st.plan.data, overwrite=True)
+
+
+def weigh_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.io import write_survey
+    from skipwise.weighting.workbook import summary_rows, write_workbook
+
+    spec = st.weighting_plan
+    own = st.weighting_data is not None
+    frame = st.weighting_data if own else st.data
+    share = st.cl.cases["share_answered"]
+    case_id = spec.case_id or st.q.case_id
+    if own:
+        if case_id not in frame.columns or case_id not in st.data.columns:
+            raise SkipwiseError(Problem(
+                code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=case_id, file=str(spec.file),
+                message="the case id column must be in both the data file and the weighting file",
+                hint="set case_id in the weighting plan to the id the two files share"))
+        share = frame[case_id].map(pd.Series(share.to_numpy(), index=st.data[case_id].to_numpy()))
+    st.weigh = res = weigh_with_progress(frame, spec, share_answered=share, reporter=reporter)
+    write_workbook(res, st.targets["weighting_workbook"], overwrite=True)
+    cols = list(res.weight_columns)
+    if own:
+        meta = weight_meta(res)
+        for role in ("weighted_frame", "weighted_frame_parquet"):
+            if role in st.targets:
+                write_survey(res.data, st.targets[role], meta, overwrite=True)
+        by_id = res.data.set_index(case_id)[cols]
+        if by_id.index.has_duplicates:
+            raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,
+                                        file=str(st.plan.weighting_data),
+                                        message="case ids repeat in the weighting file: weights cannot be joined"))
+        st.weights = by_id.reindex(st.data[case_id].to_numpy()).set_axis(st.data.index)
+        missing = int(st.weights[cols[-1]].isna().sum())
+        if missing:
+            st.notes.append(f"{missing:,} case(s) of the data file are not in the weighting file: their weights are blank")
+    else:
+        st.weights = res.data[cols]
+    st.weight_meta = weight_meta(res, SurveyMeta())
+    for name, value in summary_rows(res):
+        if name in ("respondents (weighted cases)", "sum of final weights", "Kish design effect (final)",
+                    "response rate RR3 (unweighted)"):
+            reporter.info(f"{name}: {value:,.4f}" if isinstance(value, float) else f"{name}: {value}")
+    for note in res.chain.notes:
+        reporter.info(f"note: {note}")
+
+
+def impute_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.impute.plan import check_plan
+    from skipwise.impute.skipaware import impute_skipaware
+    from skipwise.io import write_survey
+
+    spec = st.imputation_plan
+    check_plan(spec, st.q, st.data.columns)
+    with reporter.progress("imputations", spec.spec.m) as advance:
+        st.impute = res = impute_skipaware(st.data, st.q, spec.spec, progress=advance)
+    meta = imputation_meta(st.data, res, spec.output)
+    frames = imputed_frames(res, spec.output)
+    if st.weights is not None:  # analysts need the weights beside each completed file
+        meta = meta.merged(st.weight_meta)
+        reps = len(frames[0]) // max(len(st.data), 1)
+        w = pd.concat([st.weights] * reps, ignore_index=True) if reps > 1 else st.weights
+        frames = [pd.concat([f, w.set_axis(f.index)], axis=1) for f in frames]
+    for k, frame in enumerate(frames):
+        write_survey(frame, st.targets[f"imputed_{k + 1}"], meta, overwrite=True)
+    reporter.info(f"{res.m} imputation(s), seed {res.seed}; statuses filled: {', '.join(res.statuses)}")
+    for note in res.notes:
+        reporter.info(f"note: {note}")
+
+
+def final_frame(st: RunState, form: str, fmt: str) -> tuple[pd.DataFrame, SurveyMeta]:
+    """The data with status columns (or recoded) and the weight columns joined by case id."""
+    from skipwise.classify.export import recoded_copy, with_status_columns
+
+    meta = get_meta(st.data)
+    if form == "columns":
+        frame, meta = with_status_columns(st.data, st.cl, meta)
+    else:
+        frame, meta = recoded_copy(st.data, st.cl, fmt, meta)
+    if st.weights is not None:
+        clash = [c for c in st.weights.columns if c in frame.columns]
+        if clash:
+            raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_NAME, item=clash[0],
+                                        file=str(st.weighting_plan.file),
+                                        message=f"weight column(s) {clash[:5]} already exist in the data",
+                                        hint="set output.prefix in the weighting plan to another prefix"))
+        frame = pd.concat([frame, st.weights.set_axis(frame.index)], axis=1)
+        meta = meta.merged(st.weight_meta)
+    frame.attrs = {}
+    return frame, meta
+
+
+@contextlib.contextmanager
+def _atomic(path: Path):
+    from skipwise.io.atomic import atomic_output
+
+    with atomic_output(path, overwrite=True) as tmp:
+        yield tmp
+
+
+def nan_to_zero(values: pd.Series) -> np.ndarray:
+    """Weights as floats, blanks as 0 (cases outside the weighting file carry no weight)."""
+    return pd.to_numeric(values, errors="coerce").fillna(0.0).to_numpy(dtype=float)
