@@ -115,13 +115,31 @@ def test_counts_cases_and_faults(classified):
 def test_weighted_item_rate_is_weighted_ratio(classified):
     w = np.arange(1, len(ROWS) + 1, dtype=float)
     summary = classified.item_summary(weight=w)
-    st = classified.status["amount"].astype(str).to_numpy()
-    nonresp = np.isin(st, ["dont_know", "refused", "item_missing"])
-    in_universe = np.isin(st, ["answered", "dont_know", "refused", "item_missing", "wrong_code"]) | (
-        (st == "invalid") & False)
-    # amount: universe true for gate==1 rows, plus the answer under an unknown gate (evidently asked).
+    # amount, by hand from ROWS: in universe are the gate == 1 rows (answered-in, reason, item-missing,
+    # wrong-code, substantive code: positions 0, 2, 3, 4, 8) and the answer under an unknown gate
+    # (position 10). The invalid 500 (position 7) has gate == 2: out of universe, not in the denominator.
+    in_universe = np.zeros(len(ROWS), bool)
+    in_universe[[0, 2, 3, 4, 8, 10]] = True
+    nonresp = np.zeros(len(ROWS), bool)
+    nonresp[[2, 3]] = True  # dont_know, item_missing
     expected = (w * nonresp).sum() / (w * in_universe).sum()
+    assert summary.loc["amount", "in_universe"] == pytest.approx(w[in_universe].sum())
     assert summary.loc["amount", "nonresponse_rate"] == pytest.approx(expected)
+
+
+def test_invalid_value_in_universe_counts_in_the_denominator():
+    frame = pd.DataFrame({"id": [1, 2], "gate": [1, 1], "amount": [500, -8], "other": None, "negated": None,
+                          "fallback": [1, 1], "note": "x", "mode": 1})
+    summary = classify(frame, Q).item_summary()
+    # Both cases are in amount's universe (gate == 1): one invalid answer, one don't know.
+    assert summary.loc["amount", ["in_universe", "invalid", "dont_know"]].tolist() == [2, 1, 1]
+    assert summary.loc["amount", "nonresponse_rate"] == pytest.approx(1 / 2)
+
+
+def test_bad_weights_are_a_user_error(classified):
+    with pytest.raises(SkipwiseError) as info:
+        classified.item_summary(weight=[1.0, 2.0])
+    assert info.value.codes == [ProblemCode.BAD_WEIGHTS]
 
 
 MULTI = loads_questionnaire(textwrap.dedent("""\

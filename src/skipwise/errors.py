@@ -12,7 +12,6 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from enum import Enum
-from pathlib import Path
 from typing import Iterable, Sequence
 
 __all__ = ["Category", "ProblemCode", "Problem", "SkipwiseError", "nearest_name", "MAX_SHOWN"]
@@ -170,10 +169,6 @@ def did_you_mean(name: str, candidates: Iterable[str]) -> str | None:
     """A hint sentence naming the nearest valid name, or None if nothing is close."""
     near = nearest_name(name, candidates)
     return f"did you mean '{near}'?" if near else None
-
-
-def display_path(path: str | Path | None) -> str | None:
-    return None if path is None else str(path)
 
 
 @dataclass

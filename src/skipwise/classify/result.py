@@ -16,6 +16,7 @@ import pandas as pd
 
 from skipwise.classify import cells as K
 from skipwise.classify import statuses as S
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.questionnaire.model import ItemType, Questionnaire
 from skipwise.rules import ast
 from skipwise.rules.evaluate import TRUE, UNK, isin_small
@@ -195,9 +196,16 @@ class Classification:
 def _weights(weight: pd.Series | np.ndarray | None, n: int) -> np.ndarray | None:
     if weight is None:
         return None
-    w = np.asarray(weight, dtype=np.float64)
+    try:
+        w = np.asarray(weight, dtype=np.float64)
+    except (TypeError, ValueError):
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA,
+                                    message="the weights are not numbers",
+                                    hint="give a numeric weight column")) from None
     if w.shape != (n,):
-        raise ValueError(f"weight has {w.shape[0] if w.ndim else 0} values for {n} cases")
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA,
+                                    message=f"{w.shape[0] if w.ndim else 0} weights for {n} cases",
+                                    hint="give one weight per case, in the data's row order"))
     return np.where(np.isnan(w), 0.0, w)
 
 
