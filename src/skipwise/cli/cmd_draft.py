@@ -43,6 +43,11 @@ def draft_command(
     from skipwise.io import read_survey
 
     try:
+        if output.suffix.lower() not in (".yaml", ".yml"):
+            raise SkipwiseError(Problem(code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(output),
+                                        message=f"a questionnaire file must end in .yaml or .yml, not "
+                                                f"'{output.suffix or '(none)'}'",
+                                        hint="name the output e.g. questionnaire.yaml"))
         if output.resolve() == data.resolve():
             raise SkipwiseError(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(output),
                                         message="the output would replace the data file",

@@ -49,6 +49,9 @@ def impute_command(
         from skipwise.io.atomic import check_writable
         from skipwise.questionnaire import load_questionnaire
 
+        from skipwise.io.readers import format_of
+
+        format_of(out)  # an unsupported output type fails before any work is done
         q = load_questionnaire(questionnaire)
         spec = load_plan(plan)
         paths = output_paths(out, spec.spec.m, spec.output.form)

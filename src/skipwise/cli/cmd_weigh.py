@@ -41,9 +41,14 @@ def weigh_command(
         from skipwise.weighting.weigh import CAUTIONS, weigh
         from skipwise.weighting.workbook import summary_rows, write_workbook
 
+        from skipwise.io.readers import format_of
+
+        format_of(out)  # an unsupported output type fails before any work is done
         spec = load_plan(plan)
         parquet = out.with_suffix(".parquet")
         book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.stem + "_weights.xlsx"))
+        if book.suffix.lower() != ".xlsx":
+            raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
         targets = [out] + ([parquet] if parquet != out else []) + [book]
         for path in targets:
             check_writable(path, overwrite=overwrite)

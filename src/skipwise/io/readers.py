@@ -159,7 +159,7 @@ def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | N
     except pd.errors.EmptyDataError:
         raise _unreadable(path, "the file is empty (no header row)", "export the data with a header row") from None
     except (pd.errors.ParserError, ValueError, OSError) as exc:
-        raise _unreadable(path, f"not a readable CSV file ({exc})") from None
+        raise _unreadable(path, f"not a readable CSV file ({' '.join(str(exc).split())})") from None
     if columns is not None:
         df = df[list(columns)]
     return set_meta(df, SurveyMeta(source_format=fmt, encoding=encoding or "utf-8"))

@@ -114,7 +114,11 @@ class NameTable:
         return False
 
     def _unknown(self, name: str, line: int, item: str | None, column: int | None) -> None:
-        if name in self.declared:
+        if name in self.declared and name == item:
+            self.b.add(ProblemCode.FORWARD_REFERENCE, f"the rule of '{name}' reads '{name}' itself, which is "
+                       "not yet asked when the rule is decided", line, item,
+                       "route the item by earlier items or context columns", column=column)
+        elif name in self.declared:
             self.b.add(ProblemCode.FORWARD_REFERENCE, f"'{name}' is asked later (line {self.declared[name]}); "
                        "a rule may only read earlier items or context columns", line, item,
                        "move the rule's item after it, or list the column under context", column=column)

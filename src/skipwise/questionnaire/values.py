@@ -47,7 +47,7 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
         elif itype is ItemType.DATE:
             lo, hi = parse_date(raw[0]), parse_date(raw[1])
             if lo is None or hi is None or lo > hi:
-                b.add(ProblemCode.BAD_VALUE, f"date range {raw!r} must be two dates YYYY-MM-DD, lowest first", line, name)
+                b.add(ProblemCode.BAD_VALUE, f"date range [{', '.join(str(x) for x in raw)}] must be two dates YYYY-MM-DD, lowest first", line, name)
             else:
                 rng = (lo.isoformat(), hi.isoformat())
         elif not (_num(raw[0]) and _num(raw[1])) or raw[0] > raw[1]:

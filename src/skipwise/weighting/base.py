@@ -32,7 +32,7 @@ def _check_positive(data: pd.DataFrame, values: np.ndarray, column: str, what: s
         rng = f"in (0, {upper:g}]" if upper is not None else "positive"
         raise SkipwiseError(Problem(
             code=ProblemCode.BAD_WEIGHTS, category=Category.DATA, item=column,
-            message=f"{int(bad.sum())} case(s) have a missing or non-{rng.split()[0]} {what} "
+            message=f"{int(bad.sum())} case(s) have a missing, non-numeric or out-of-range {what} "
                     f"(must be {rng}); first case ids: {_ids(data, bad, case_id)}",
             hint=f"fix the {what} of these cases or leave them out of the frame"))
 

@@ -183,7 +183,9 @@ class _Checker:
         if value is None:
             value = {}
         if not isinstance(value, dict):
-            self.add(ProblemCode.BAD_VALUE, path, f"'{'.'.join(map(str, path))}' must be a mapping of keys")
+            what = f"'{'.'.join(map(str, path))}'" if path else "the plan"
+            self.add(ProblemCode.BAD_VALUE, path, f"{what} must be a mapping of keys",
+                     None if path else "start with 'format: 1' and the plan's keys (see docs/weighting.md)")
             return {}
         for key in value:
             if key not in allowed:
