@@ -25,11 +25,12 @@ def demo(tmp_path_factory):
 
 def test_demo_writes_every_output(demo):
     out, output, _ = demo
+    # `skipwise demo` runs OUT/plan.yaml, whose hand-over package goes to OUT/package.
     for rel in ["data/marrowby-2026.sav", "data/marrowby-2026.dta", "data/truth_status.parquet",
-                "classified/marrowby-2026_status.sav", "classified/marrowby-2026_status_faults.csv",
-                "classified/marrowby-2026_coded.dta", "report/item_report.xlsx", "diagnostics/diagnostics.xlsx",
-                "weights/marrowby-2026_weighted.parquet", "weights/marrowby-2026_weighted_weights.xlsx",
-                "imputed/marrowby-2026_imputed.parquet"]:
+                "package/marrowby-2026.sav", "package/marrowby-2026_faults.csv",
+                "package/marrowby-2026_coded.dta", "package/item_report.xlsx", "package/diagnostics.xlsx",
+                "package/sample_with_answers_weighted.parquet", "package/weighting.xlsx",
+                "package/marrowby-2026_imputed.parquet"]:
         assert (out / rel).stat().st_size > 0, rel
     assert "statuses agree with the generator's truth in 100.00%" in output
 
@@ -37,7 +38,7 @@ def test_demo_writes_every_output(demo):
 def test_status_file_matches_the_generators_truth(demo):
     out, _, scenario = demo
     # pyreadstat reads the status columns; the truth comes from the generator's own simulation.
-    frame, meta = pyreadstat.read_sav(str(out / "classified/marrowby-2026_status.sav"))
+    frame, meta = pyreadstat.read_sav(str(out / "package/marrowby-2026.sav"))
     labels = meta.variable_value_labels["life_sat_status"]
     got = frame["life_sat_status"].map(labels)
     assert (got.to_numpy() == scenario.truth_status["life_sat"].astype(str).to_numpy()).all()
@@ -45,7 +46,7 @@ def test_status_file_matches_the_generators_truth(demo):
 
 def test_weighting_recovers_true_means_better_than_unweighted(demo):
     out, _, scenario = demo
-    weighted = pd.read_parquet(out / "weights/marrowby-2026_weighted.parquet")
+    weighted = pd.read_parquet(out / "package/sample_with_answers_weighted.parquet")
     w = weighted["wt_final"].to_numpy()
     # Unit response depends on district, age and sex, the weighting variables; these items'
     # item nonresponse is MCAR in the generator, so weighting should move their means toward the truth.

@@ -29,9 +29,9 @@ HELP = (
 
 def output_paths(out: Path, m: int, form: str) -> list[Path]:
     """Where the completed data go: OUT itself (stacked, or M = 1), else OUT_1 ... OUT_M."""
-    if form == "stacked" or m == 1:
-        return [out]
-    return [out.with_name(f"{out.stem}_{k}{out.suffix}") for k in range(1, m + 1)]
+    from skipwise.pipeline.steps import imputation_paths
+
+    return imputation_paths(out, m, form)
 
 
 @app.command("impute", help=HELP)
@@ -47,6 +47,7 @@ def impute_command(
         from skipwise.impute.skipaware import impute_skipaware
         from skipwise.io import read_survey, write_survey
         from skipwise.io.atomic import check_writable
+        from skipwise.pipeline.steps import imputation_meta, imputed_frames
         from skipwise.questionnaire import load_questionnaire
 
         from skipwise.io.readers import format_of
@@ -63,13 +64,9 @@ def impute_command(
         check_plan(spec, q, frame.columns)
         with typer.progressbar(length=spec.spec.m, label="imputations") as bar:
             res = impute_skipaware(frame, q, spec.spec, progress=bar.update)
-        meta = _meta(frame, res, spec.output)
-        if spec.output.form == "stacked":
-            stacked = res.stacked(spec.output.imputation_column, spec.output.flag_suffix)
-            write_survey(stacked, paths[0], meta, overwrite=overwrite)
-        else:
-            for i, path in enumerate(paths):
-                write_survey(res.with_flags(i, spec.output.flag_suffix), path, meta, overwrite=overwrite)
+        meta = imputation_meta(frame, res, spec.output)
+        for done, path in zip(imputed_frames(res, spec.output), paths):
+            write_survey(done, path, meta, overwrite=overwrite)
     except SkipwiseError as err:
         fail(err)
         return
@@ -81,15 +78,3 @@ def impute_command(
     for text in res.cautions:
         typer.echo(f"caution: {text}")
 
-
-def _meta(frame, res, output):
-    from skipwise.impute.skipaware import FLAG_LABELS
-    from skipwise.io import get_meta
-
-    meta = get_meta(frame)
-    for item in res.imputed[0].columns:
-        meta = meta.with_column(f"{item}{output.flag_suffix}", label=f"Imputation flag of {item}",
-                                value_labels=FLAG_LABELS, measure="nominal")
-    if output.form == "stacked":
-        meta = meta.with_column(output.imputation_column, label="Imputation number (1..M)", measure="nominal")
-    return meta

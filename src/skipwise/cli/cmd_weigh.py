@@ -38,7 +38,7 @@ def weigh_command(
         from skipwise.io import read_survey, write_survey
         from skipwise.io.atomic import check_writable
         from skipwise.weighting.plan import load_plan
-        from skipwise.weighting.weigh import CAUTIONS, weigh
+        from skipwise.weighting.weigh import CAUTIONS
         from skipwise.weighting.workbook import summary_rows, write_workbook
 
         from skipwise.io.readers import format_of
@@ -59,21 +59,11 @@ def weigh_command(
             from skipwise.questionnaire import load_questionnaire
 
             share = classify(frame, load_questionnaire(questionnaire)).cases["share_answered"]
-        bar: dict[str, object] = {}
+        from skipwise.cli.cmd_run import EchoReporter
+        from skipwise.pipeline.steps import weigh_with_progress, weight_meta
 
-        def on_design(count: int) -> None:
-            bar["cm"] = typer.progressbar(length=count, label="replicates", file=None)
-            bar["bar"] = bar["cm"].__enter__()
-
-        def progress(done: int) -> None:
-            bar["bar"].update(1)
-
-        try:
-            res = weigh(frame, spec, share_answered=share, progress=progress, on_design=on_design)
-        finally:
-            if "cm" in bar:
-                bar["cm"].__exit__(None, None, None)
-        meta = _meta_with_weights(res)
+        res = weigh_with_progress(frame, spec, share_answered=share, reporter=EchoReporter())
+        meta = weight_meta(res)
         write_survey(res.data, out, meta, overwrite=overwrite)
         if parquet != out:
             write_survey(res.data, parquet, meta, overwrite=overwrite)
@@ -97,21 +87,3 @@ def weigh_command(
     for text in CAUTIONS[:2]:
         typer.echo(f"caution: {text}")
 
-
-def _meta_with_weights(res):
-    from skipwise.io import get_meta
-
-    meta = get_meta(res.data)
-    p = res.plan.prefix
-    labels = {
-        f"{p}outcome": "Outcome category (I, P, R, NC, O, UH, UO, NE)",
-        f"{p}base": "Base weight (inverse selection probability or given weight)",
-        f"{p}eligibility": "Weight after unknown-eligibility adjustment",
-        f"{p}nonresponse": "Weight after nonresponse adjustment",
-        f"{p}calibrated": "Weight after calibration",
-        f"{p}final": "Final weight (after trimming)",
-    }
-    for col in res.weight_columns:
-        label = labels.get(col, f"Replicate weight {col[len(p) + 3:]}")
-        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
-    return meta

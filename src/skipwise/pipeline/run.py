@@ -269,7 +269,6 @@ def _diagnose(st: S.RunState, reporter: Reporter) -> None:
 
 
 def _export(st: S.RunState, reporter: Reporter) -> None:
-    from skipwise.io import write_survey
     from skipwise.pipeline.codebook import codebook_blocks, codebook_html, codebook_markdown
 
     frame = meta = None
@@ -277,7 +276,7 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
         for role in [r for r in st.targets if r.startswith(roles)]:
             fmt = role[len(roles):]
             out, out_meta = S.final_frame(st, form, fmt)
-            write_survey(out, st.targets[role], out_meta, overwrite=True)
+            S.write_data(out, st.targets[role], out_meta, reporter)
             if form == "columns" and frame is None:
                 frame, meta = out, out_meta
             reporter.info(f"wrote {st.targets[role].name}")

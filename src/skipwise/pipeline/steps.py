@@ -23,7 +23,7 @@ from skipwise.pipeline.reporting import Reporter, SilentReporter, classify_progr
 
 __all__ = ["RunState", "weigh_with_progress", "weight_meta", "weight_labels", "imputation_paths",
            "imputed_frames", "imputation_meta", "read_step", "check_step", "classify_step", "report_step",
-           "weigh_step", "impute_step", "final_frame"]
+           "weigh_step", "impute_step", "final_frame", "write_data"]
 
 
 @dataclass
@@ -167,7 +167,6 @@ def report_step(st: RunState, reporter: Reporter) -> None:
 
 
 def weigh_step(st: RunState, reporter: Reporter) -> None:
-    from skipwise.io import write_survey
     from skipwise.weighting.workbook import summary_rows, write_workbook
 
     spec = st.weighting_plan
@@ -189,7 +188,7 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
         meta = weight_meta(res)
         for role in ("weighted_frame", "weighted_frame_parquet"):
             if role in st.targets:
-                write_survey(res.data, st.targets[role], meta, overwrite=True)
+                write_data(res.data, st.targets[role], meta, reporter)
         by_id = res.data.set_index(case_id)[cols]
         if by_id.index.has_duplicates:
             raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,
@@ -213,7 +212,6 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
 def impute_step(st: RunState, reporter: Reporter) -> None:
     from skipwise.impute.plan import check_plan
     from skipwise.impute.skipaware import impute_skipaware
-    from skipwise.io import write_survey
 
     spec = st.imputation_plan
     check_plan(spec, st.q, st.data.columns)
@@ -227,7 +225,7 @@ def impute_step(st: RunState, reporter: Reporter) -> None:
         w = pd.concat([st.weights] * reps, ignore_index=True) if reps > 1 else st.weights
         frames = [pd.concat([f, w.set_axis(f.index)], axis=1) for f in frames]
     for k, frame in enumerate(frames):
-        write_survey(frame, st.targets[f"imputed_{k + 1}"], meta, overwrite=True)
+        write_data(frame, st.targets[f"imputed_{k + 1}"], meta, reporter)
     reporter.info(f"{res.m} imputation(s), seed {res.seed}; statuses filled: {', '.join(res.statuses)}")
     for note in res.notes:
         reporter.info(f"note: {note}")
@@ -253,6 +251,22 @@ def final_frame(st: RunState, form: str, fmt: str) -> tuple[pd.DataFrame, Survey
         meta = meta.merged(st.weight_meta)
     frame.attrs = {}
     return frame, meta
+
+
+def write_data(frame: pd.DataFrame, path: Path, meta: SurveyMeta, reporter: Reporter) -> None:
+    """Write a data file atomically; format adaptations become notes, pandas' column-insert
+    performance hints (wide files with replicate weights) are not shown."""
+    import warnings
+
+    from skipwise.io import MetadataWarning, write_survey
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", MetadataWarning)
+        warnings.simplefilter("ignore", pd.errors.PerformanceWarning)
+        write_survey(frame, path, meta, overwrite=True)
+    for w in caught:
+        if issubclass(w.category, MetadataWarning):
+            reporter.info(f"note: {str(w.message).replace(str(path.parent) + '/', '')}")
 
 
 @contextlib.contextmanager
