@@ -9,7 +9,7 @@ from hypothesis import strategies as st
 from skipwise.impute.classic import simple_impute
 from skipwise.impute.combine import pool_means, pool_ols
 from skipwise.impute.hotdeck import hotdeck
-from skipwise.impute.mice import mice
+from skipwise.impute.chained import chained_impute
 from skipwise.impute.model import model_impute
 
 
@@ -30,7 +30,7 @@ def mar():
 
 def test_mar_bias_removed_and_pooled(mar):
     df, y = mar
-    res = mice(df, ["x", "y", "z"], m=5, iterations=5, seed=1)
+    res = chained_impute(df, ["x", "y", "z"], m=5, iterations=5, seed=1)
     cc_bias = df["y"].mean() - y.mean()
     pooled = pool_means(res.datasets, ["y"])
     assert cc_bias < -0.2                                  # the problem is real
@@ -44,8 +44,8 @@ def test_mar_bias_removed_and_pooled(mar):
 
 def test_seeded_and_distinct(mar):
     df, _ = mar
-    a = mice(df, ["x", "y", "z"], m=2, iterations=2, seed=3)
-    b = mice(df, ["x", "y", "z"], m=2, iterations=2, seed=3)
+    a = chained_impute(df, ["x", "y", "z"], m=2, iterations=2, seed=3)
+    b = chained_impute(df, ["x", "y", "z"], m=2, iterations=2, seed=3)
     assert all(p.equals(q) for p, q in zip(a.datasets, b.datasets))
     assert not a.datasets[0].equals(a.datasets[1])
     assert a.chain_means.shape == (4, 2)               # x is complete: only y and z are imputed
@@ -61,7 +61,7 @@ def test_categorical_item_by_multinomial():
     c = np.digitize(x + rng.normal(0, 1, n), [-0.5, 0.5]) + 1.0
     df = pd.DataFrame({"x": x, "c": c})
     df.loc[rng.random(n) < 0.2, "c"] = np.nan
-    res = mice(df, ["x", "c"], methods={"c": "multinomial"}, categorical=["c"], m=2, iterations=2, seed=0)
+    res = chained_impute(df, ["x", "c"], methods={"c": "multinomial"}, categorical=["c"], m=2, iterations=2, seed=0)
     assert set(res.datasets[0]["c"].unique()) == {1.0, 2.0, 3.0}
 
 
@@ -89,7 +89,7 @@ def test_observed_cells_never_change(parts, seed):
         hotdeck(df, ["a", "b"], classes=["g"], seed=seed).data,
         hotdeck(df, ["a", "b"], classes=["g"], covariates=["g"], max_donor_use=2, seed=seed).data,
         model_impute(df, ["a", "b"], predictors=["g"], method="pmm", seed=seed).data,
-        *mice(df, ["a", "b"], covariates=["g"], m=2, iterations=2, seed=seed).datasets,
+        *chained_impute(df, ["a", "b"], covariates=["g"], m=2, iterations=2, seed=seed).datasets,
     ]
     observed = df.notna()
     for out in outs:

@@ -75,3 +75,39 @@ def test_name_and_type_problems(text, code, line, hint):
 def test_method_none_excludes_item():
     plan = load_plan(text="items:\n  sat: none\n")
     assert "sat" not in plan.spec.targets(Q)
+
+
+@pytest.mark.parametrize("text,line,item", [
+    ("seed: 1\nimputations: 2\nseed: 2\n", 3, None),
+    ("items:\n  hours: pmm\n  sat: multinomial\n  hours: hotdeck\n", 4, "hours"),
+    ("default:\n  method: pmm\n  donors: 3\n  method: hotdeck\n", 4, None),
+    ("items:\n  hours: {method: pmm, donors: 3, donors: 4}\n", 2, None),
+    ("output:\n  form: files\n  form: stacked\n", 3, None),
+], ids=["top-level", "item-block", "default-key", "inline-rule-key", "output-key"])
+def test_duplicate_keys_are_reported_with_their_line(text, line, item):
+    # YAML loaders keep the last of two equal keys; the plan reader must say so instead.
+    with pytest.raises(SkipwiseError) as exc:
+        load_plan(text=text)
+    dup = [p for p in exc.value.problems if p.code is ProblemCode.DUPLICATE_NAME]
+    assert len(dup) == 1
+    assert (dup[0].line, dup[0].item) == (line, item)
+    assert "twice" in dup[0].message and dup[0].hint == "keep one of them"
+
+
+def test_duplicate_keys_are_collected_with_other_problems(tmp_path):
+    path = tmp_path / "plan.yaml"
+    path.write_text("items:\n  hours: pmm\n  hours: pmm\nseed: -3\noutput: {form: pile}\n", encoding="utf-8")
+    with pytest.raises(SkipwiseError) as exc:
+        load_plan(path)
+    rows = exc.value.to_rows(["code", "line", "file"])
+    assert ("duplicate-name", 3, str(path)) in rows
+    assert ("bad-value", 4, str(path)) in rows and ("bad-value", 5, str(path)) in rows
+
+
+@pytest.mark.parametrize("kwargs", [{}, {"path": "plan.yaml", "text": "seed: 1\n"}], ids=["neither", "both"])
+def test_plan_source_misuse_is_a_user_error(kwargs):
+    with pytest.raises(SkipwiseError) as exc:
+        load_plan(**kwargs)
+    (p,) = exc.value.problems
+    assert p.code is ProblemCode.BAD_VALUE and p.category.value == "usage"
+    assert p.file == kwargs.get("path") and "exactly one" in p.message and p.hint

@@ -31,7 +31,7 @@ from skipwise.impute.draws import METHODS, draw_values
 from skipwise.impute.model import check_method, design_matrix
 from skipwise.impute.result import MNAR_CAUTION, check_columns, flag_columns
 
-__all__ = ["MiceResult", "mice", "spawn_generators"]
+__all__ = ["ChainedResult", "chained_impute", "spawn_generators"]
 
 
 def spawn_generators(seed: int | None, m: int) -> list[np.random.Generator]:
@@ -40,7 +40,7 @@ def spawn_generators(seed: int | None, m: int) -> list[np.random.Generator]:
 
 
 @dataclass(frozen=True, kw_only=True)
-class MiceResult:
+class ChainedResult:
     """M completed datasets and how they were made.
 
     Attributes
@@ -82,11 +82,11 @@ class MiceResult:
         return flag_columns(self.imputed, suffix=suffix)
 
 
-def mice(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequence[str] = (),
-         method: str = "pmm", methods: Mapping[str, str] | None = None,
-         categorical: Collection[str] = (), m: int = 5, iterations: int = 10, k: int = 5,
-         seed: int | None = None,
-         progress: Callable[[int], None] | None = None) -> MiceResult:
+def chained_impute(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequence[str] = (),
+                   method: str = "pmm", methods: Mapping[str, str] | None = None,
+                   categorical: Collection[str] = (), m: int = 5, iterations: int = 10, k: int = 5,
+                   seed: int | None = None,
+                   progress: Callable[[int], None] | None = None) -> ChainedResult:
     """M completed datasets by chained equations over ``items``.
 
     Parameters
@@ -115,7 +115,7 @@ def mice(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequence[str] 
 
     Returns
     -------
-    MiceResult
+    ChainedResult
 
     References
     ----------
@@ -174,7 +174,7 @@ def mice(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequence[str] 
     notes.insert(0, f"chained equations: {m} imputation(s), {iterations} iteration(s) each, seed {seed}")
     notes += sorted(fallbacks)
     chain = pd.DataFrame(chain_rows).set_index(["imputation", "iteration"])
-    return MiceResult(datasets=tuple(datasets), imputed=pd.DataFrame(miss, index=data.index, columns=items),
+    return ChainedResult(datasets=tuple(datasets), imputed=pd.DataFrame(miss, index=data.index, columns=items),
                       methods=methods, iterations=iterations, seed=seed, chain_means=chain,
                       notes=tuple(notes))
 

@@ -17,15 +17,16 @@ imputation. *Biometrika* 86(4), 948–955.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import Sequence
+from typing import Any, Collection, Mapping, Sequence, Union
 
 import numpy as np
 import pandas as pd
 from scipy import stats
 
-from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+from skipwise.questionnaire.model import CodeKind, Questionnaire
 
-__all__ = ["PooledEstimate", "rubin_pool", "pool_means", "pool_proportions", "pool_ols"]
+__all__ = ["PooledEstimate", "rubin_pool", "pool_means", "pool_proportions", "pool_ols", "excluded_values"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -154,26 +155,122 @@ def rubin_pool(estimates: Sequence | np.ndarray, variances: Sequence | np.ndarra
     )
 
 
+#: Values to leave out before pooling: one collection for every item, or one per item.
+ExcludeValues = Union[Collection[Any], Mapping[str, Collection[Any]], None]
+
+
+def excluded_values(items: Sequence[str], exclude_values: ExcludeValues = None,
+                    questionnaire: Questionnaire | None = None) -> dict[str, list]:
+    """The stored values of each item that are not answers and must not be pooled.
+
+    With ``questionnaire``, each item's structural and nonresponse code values (its own and
+    the file-wide ones); substantive codes are real answers and stay. ``exclude_values`` adds
+    values for every item (a collection) or per item (a mapping of item to values).
+    """
+    problems = []
+    if questionnaire is not None:
+        problems = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=it,
+                            message=f"item '{it}' is not in the questionnaire",
+                            hint=did_you_mean(str(it), questionnaire.item_names)
+                            or "pool it without the questionnaire, giving exclude_values")
+                    for it in items if it not in questionnaire]
+    if problems:
+        raise SkipwiseError(problems)
+    out: dict[str, list] = {}
+    for it in items:
+        vals: list = []
+        if questionnaire is not None:
+            vals += [c.value for c in questionnaire.item(it).codes if c.kind is not CodeKind.SUBSTANTIVE]
+        if isinstance(exclude_values, Mapping):
+            vals += list(exclude_values.get(it, ()))
+        elif isinstance(exclude_values, (str, bytes)):
+            vals.append(exclude_values)
+        elif exclude_values is not None:
+            vals += list(exclude_values)
+        out[it] = vals
+    return out
+
+
+def _masked(datasets: Sequence[pd.DataFrame], items: Sequence[str], codes: Mapping[str, list]) -> list[pd.DataFrame]:
+    """The ``items`` of each dataset with the excluded values set to missing."""
+    out = []
+    for d in datasets:
+        cols = {it: d[it].mask(d[it].isin(codes[it])) if codes[it] else d[it] for it in items}
+        out.append(pd.DataFrame(cols, index=d.index))
+    return out
+
+
+def _check_observed(frames: Sequence[pd.DataFrame], items: Sequence[str], least: int) -> None:
+    problems = [Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=it,
+                        message=f"imputation {k + 1} has fewer than {least} value(s) of '{it}' to pool",
+                        hint="check that the item was imputed and that exclude_values leaves its answers")
+                for k, d in enumerate(frames) for it in items if int(d[it].notna().sum()) < least]
+    if problems:
+        raise SkipwiseError(problems)
+
+
 def pool_means(datasets: Sequence[pd.DataFrame], items: Sequence[str], *,
+               exclude_values: ExcludeValues = None, questionnaire: Questionnaire | None = None,
                alpha: float = 0.05) -> PooledEstimate:
-    """Pooled means of ``items``; within variance s²/n, complete-data df n − 1."""
+    """Pooled means of ``items``; within variance s²/n, complete-data df n − 1.
+
+    Parameters
+    ----------
+    datasets
+        The M completed datasets.
+    items
+        Numeric items to average.
+    exclude_values
+        Stored values that are not answers (e.g. ``[-1, -9]``), for every item or as a
+        mapping item → values; such cells are treated as missing before pooling.
+    questionnaire
+        If given, each item's structural and nonresponse code values are excluded too
+        (skip-consistent imputation keeps structural codes in routed-out cells and the
+        codes of cells it left unfilled). Without either argument every stored value
+        is averaged as it is.
+    alpha
+        For the confidence interval.
+
+    Notes
+    -----
+    n is the item's non-missing count in each dataset (after exclusion); the
+    complete-data df is the smallest number of rows with every item present, minus 1.
+
+    References
+    ----------
+    Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley, ch. 3.
+    """
     items = list(items)
-    est = np.array([[d[i].astype("float64").mean() for i in items] for d in datasets])
-    var = np.array([[d[i].astype("float64").var(ddof=1) / d[i].notna().sum() for i in items] for d in datasets])
-    n = min(int(d[items].notna().all(axis=1).sum()) for d in datasets)
+    frames = _masked(datasets, items, excluded_values(items, exclude_values, questionnaire))
+    _check_observed(frames, items, 2)
+    num = [d.astype("float64") for d in frames]
+    est = np.array([[d[i].mean() for i in items] for d in num])
+    var = np.array([[d[i].var(ddof=1) / d[i].notna().sum() for i in items] for d in num])
+    n = min(int(d.notna().all(axis=1).sum()) for d in num)
     return rubin_pool(est, var, df_com=n - 1, names=items, alpha=alpha)
 
 
 def pool_proportions(datasets: Sequence[pd.DataFrame], item: str, categories: Sequence | None = None, *,
+                     exclude_values: ExcludeValues = None, questionnaire: Questionnaire | None = None,
                      alpha: float = 0.05) -> PooledEstimate:
     """Pooled shares of ``item``'s categories; within variance p(1−p)/n, df n − 1.
 
+    Shares are taken over the item's non-missing cells (n), so over all categories
+    they sum to 1. ``exclude_values`` and ``questionnaire`` work as in
+    :func:`pool_means`: excluded cells count as missing and are no category.
+    ``categories`` defaults to every value left in any dataset, sorted.
     (For shares near 0 or 1 consider pooling on the logit scale; common practice, no source.)
+
+    References
+    ----------
+    Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley, ch. 3.
     """
+    col = [d[item] for d in _masked(datasets, [item], excluded_values([item], exclude_values, questionnaire))]
+    _check_observed([c.to_frame() for c in col], [item], 1)
     if categories is None:
-        categories = sorted(pd.unique(pd.concat([d[item] for d in datasets]).dropna()))
-    est = np.array([[float((d[item] == c).mean()) for c in categories] for d in datasets])
-    n = np.array([float(d[item].notna().sum()) for d in datasets])[:, None]
+        categories = sorted(pd.unique(pd.concat(col).dropna()))
+    n = np.array([float(c.notna().sum()) for c in col])[:, None]
+    est = np.array([[float((c == v).sum()) for v in categories] for c in col]) / n
     return rubin_pool(est, est * (1 - est) / n, df_com=float(n.min()) - 1,
                       names=[f"{item}={c}" for c in categories], alpha=alpha)
 

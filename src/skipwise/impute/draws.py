@@ -79,9 +79,6 @@ def ols_fit(y: np.ndarray, x: np.ndarray) -> LinearFit:
                          resid=np.asarray(res.resid))
 
 
-_ols = ols_fit
-
-
 def _mvn(mean: np.ndarray, cov: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     if not np.all(np.isfinite(cov)):
         raise ModelFailure("parameter covariance is not finite")
@@ -106,7 +103,7 @@ def draw_norm(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.r
     ``residuals="normal"`` adds N(0, σ*²); ``"observed"`` adds a randomly chosen
     observed residual, rescaled by σ*/σ̂.
     """
-    res = _ols(y_obs, _with_const(x_obs))
+    res = ols_fit(y_obs, _with_const(x_obs))
     beta, sigma = _ols_draw(res, rng, proper)
     pred = _with_const(x_mis) @ beta
     if residuals == "observed":
@@ -149,7 +146,7 @@ def draw_pmm(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.ra
     values can come out.
     """
     xo, xm = _with_const(x_obs), _with_const(x_mis)
-    res = _ols(y_obs, xo)
+    res = ols_fit(y_obs, xo)
     beta_star, _ = _ols_draw(res, rng, proper)
     idx = match_k_nearest(xo @ np.asarray(res.params), xm @ beta_star, k, rng)
     return y_obs[idx]

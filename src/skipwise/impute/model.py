@@ -86,7 +86,7 @@ def model_impute(data: pd.DataFrame, items: Sequence[str], *, predictors: Sequen
         Survey frame, missing = NaN / NA.
     items
         Items to fill, in order (an item never predicts itself; filled items do
-        not feed later models — use :func:`skipwise.impute.mice.mice` for that).
+        not feed later models — use :func:`skipwise.impute.chained.chained_impute` for that).
     predictors
         Predictor columns; missing predictor values are set to the mean (and noted).
     method, methods

@@ -11,7 +11,7 @@ from pathlib import Path
 from typing import Any, Iterable
 
 from skipwise.classify import statuses as S
-from skipwise.errors import ProblemCode, ProblemList, did_you_mean
+from skipwise.errors import Category, Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
 from skipwise.questionnaire.model import ItemType, Questionnaire
 from skipwise.questionnaire.yamlread import LineDict, load_yaml_text, read_text_file
@@ -75,8 +75,11 @@ class _Reader:
             if key not in allowed and path[-1:] != ("items",):
                 self.add(ProblemCode.UNKNOWN_KEY, kl, f"unknown key '{key}'",
                          did_you_mean(str(key), allowed) or f"valid keys: {', '.join(allowed)}")
+        where = f" under '{'.'.join(map(str, path))}'" if path else ""
         for key, dup_line in getattr(value, "duplicate_keys", []):
-            self.add(ProblemCode.DUPLICATE_NAME, dup_line, f"key '{key}' is given twice")
+            # YAML keeps the last of two equal keys; the reader must not silently drop the first.
+            self.add(ProblemCode.DUPLICATE_NAME, dup_line, f"key '{key}' is given twice{where}",
+                     "keep one of them", item=str(key) if path == ("items",) else None)
         return value
 
     def line_of(self, m: dict, key: str) -> int | None:
@@ -171,7 +174,11 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
 def load_plan(path: str | Path | None = None, *, text: str | None = None) -> ImputePlan:
     """Read a plan file (or ``text``) and check its structure."""
     if (path is None) == (text is None):
-        raise ValueError("give exactly one of path and text")
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(path) if path is not None else None,
+            message="an imputation plan needs exactly one source: "
+                    + ("both a file and a text were given" if path is not None else "none was given"),
+            hint="pass the plan file's path, or its text as text=..., not both"))
     file = str(path) if path is not None else None
     doc = load_yaml_text(read_text_file(path) if path is not None else text, file)
     return parse_plan(doc, file)

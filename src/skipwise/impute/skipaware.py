@@ -50,7 +50,7 @@ import pandas as pd
 
 from skipwise.classify import classify
 from skipwise.classify import statuses as S
-from skipwise.impute.mice import spawn_generators
+from skipwise.impute.chained import spawn_generators
 from skipwise.impute.skipdraw import draw_item, skip_code
 from skipwise.impute.result import MNAR_CAUTION
 from skipwise.questionnaire.model import ItemType, Questionnaire
