@@ -265,7 +265,7 @@ def test_failing_step_is_named_and_keeps_the_old_package(tmp_path):
     (tmp_path / "in/impute.yaml").write_text(IMPUTE.replace("classes: [area]", "classes: [arae]"))
     result = runner.invoke(app, ["run", str(plan), "--overwrite"])
     assert result.exit_code == 1
-    assert "run stopped at step 'impute'" in result.output and "did you mean 'area'?" in result.output
+    assert "run stopped at step 'read'" in result.output and "impute.yaml:4" in result.output and "did you mean 'area'?" in result.output
     assert {p.name: _sha(p) for p in (tmp_path / "package").iterdir()} == stamp
     assert _leftovers(tmp_path) == []
 

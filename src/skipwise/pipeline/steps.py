@@ -124,6 +124,10 @@ def read_step(st: RunState, reporter: Reporter) -> None:
     if st.plan.weighting_data is not None:
         st.weighting_data = read_survey(st.plan.weighting_data)
         reporter.info(f"{st.plan.weighting_data.name} (weighting): {len(st.weighting_data):,} cases")
+    if st.imputation_plan is not None:  # names of the plan against the data now, not after the long steps
+        from skipwise.impute.plan import check_plan
+
+        check_plan(st.imputation_plan, st.q, st.data.columns)
 
 
 def check_step(st: RunState, reporter: Reporter) -> None:
@@ -196,6 +200,11 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
                                         message="case ids repeat in the weighting file: weights cannot be joined"))
         st.weights = by_id.reindex(st.data[case_id].to_numpy()).set_axis(st.data.index)
         missing = int(st.weights[cols[-1]].isna().sum())
+        if missing and missing == len(st.data):
+            raise SkipwiseError(Problem(
+                code=ProblemCode.BAD_DATA, category=Category.DATA, item=case_id, file=str(st.plan.weighting_data),
+                message="no case id of the data file is in the weighting file",
+                hint="both files must hold the same ids, stored the same way (numbers or text)"))
         if missing:
             st.notes.append(f"{missing:,} case(s) of the data file are not in the weighting file: their weights are blank")
     else:
@@ -210,11 +219,9 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
 
 
 def impute_step(st: RunState, reporter: Reporter) -> None:
-    from skipwise.impute.plan import check_plan
     from skipwise.impute.skipaware import impute_skipaware
 
     spec = st.imputation_plan
-    check_plan(spec, st.q, st.data.columns)
     with reporter.progress("imputations", spec.spec.m) as advance:
         st.impute = res = impute_skipaware(st.data, st.q, spec.spec, progress=advance)
     meta = imputation_meta(st.data, res, spec.output)
