@@ -177,7 +177,8 @@ class NameTable:
                 continue
             if item.type is ItemType.MULTI and name == item.name:
                 self.b.add(ProblemCode.TYPE_CLASH, f"'{name}' is a check-all-that-apply set and has no single value",
-                           line, who, f"compare one option column, e.g. {item.columns[0]} == {item.selected!r}",
+                           line, who, f"compare one option column, e.g. "
+                                      f"{item.columns[0] if item.columns else name + '_<option>'} == {item.selected!r}",
                            column=col)
                 return False
             is_text_item = item.type is ItemType.TEXT
