@@ -177,3 +177,22 @@ def test_open_dataset_smoke():
     d = x[~m].mean(0) - x[m].mean(0)
     expected = (~m).sum() * m.sum() / len(m) * d @ np.linalg.solve(np.cov(x.T, bias=True), d)
     assert_allclose(res.statistic, expected, rtol=1e-6)
+
+
+def test_default_choice_leaves_out_a_duplicated_item():
+    # invented frame: "age2" repeats "age" (asked twice); the greedy choice must keep only one,
+    # otherwise the covariance matrix is singular (R² = 1 ≥ MAX_R_SQUARED, common practice, no source)
+    from skipwise.diagnostics import missingness_frame
+    from skipwise.diagnostics.report import choose_little_items
+
+    rng = np.random.default_rng(5)
+    n = 200
+    age = rng.integers(18, 90, n).astype(float)
+    vals = pd.DataFrame({"age": age, "age2": age, "score": rng.normal(50, 10, n)})
+    miss = pd.DataFrame({c: rng.random(n) < 0.05 for c in vals.columns})
+    universe = pd.DataFrame(True, index=vals.index, columns=vals.columns)
+    mf = missingness_frame(vals.mask(miss), universe, miss)
+    chosen = choose_little_items(mf, list(vals.columns))
+    assert "score" in chosen and len({"age", "age2"} & set(chosen)) == 1
+    res = little_mcar_test(mf.joint(chosen).frame)  # runs: no singular covariance
+    assert res.n_variables == 2

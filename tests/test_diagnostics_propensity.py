@@ -59,3 +59,32 @@ def test_weights_unit_equal_unweighted_and_integer_equal_replication():
     assert_allclose(wres.propensities.to_numpy()[rep], rres.propensities, rtol=1e-5)
     # S with N = Σd (Schouten et al. 2009) equals the replicated sample's S
     assert_allclose(wres.r_indicator, rres.r_indicator, rtol=1e-5)
+
+
+def test_separation_is_a_note_not_a_warning():
+    # invented data: region "c" never responds, so its coefficient diverges (separation)
+    import warnings
+
+    rng = np.random.default_rng(11)
+    n = 300
+    region = rng.choice(["a", "b", "c"], n)
+    resp = pd.Series(np.where(region == "c", False, rng.random(n) < 0.7))
+    frame = pd.DataFrame({"region": region, "age": rng.uniform(18, 80, n)})
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        res = r_indicator(resp, frame, categorical=["region"])
+    assert any("Unstable estimates" in t and "region=c" in t for t in res.notes)
+    assert np.isfinite(res.r_indicator)
+
+
+def test_reused_nonresponse_model_equals_a_refit():
+    # logistic likelihood is symmetric in the outcomes: β(response) = −β(nonresponse) (Hosmer & Lemeshow)
+    from skipwise.diagnostics import nonresponse_logit
+
+    resp, frame = _sample(seed=3)
+    nr = nonresponse_logit(~resp, frame, categorical=["region"])
+    a = r_indicator(resp, frame, categorical=["region"])
+    b = r_indicator(resp, frame, categorical=["region"], nonresponse_model=nr)
+    assert_allclose(b.propensities.to_numpy(), a.propensities.to_numpy(), rtol=1e-6)
+    assert_allclose(b.model["coef"].to_numpy(), a.model["coef"].to_numpy(), rtol=1e-5, atol=1e-8)
+    assert_allclose(b.model["or_low"].to_numpy(), a.model["or_low"].to_numpy(), rtol=1e-5)

@@ -35,3 +35,20 @@ def test_thresholds_are_configurable():
     ev = ItemEvidence(item="q", n_in_scope=1000, n_nonresponse=80, model_p=0.5, auc=0.52)
     assert _verdicts(ev)["leave as is"] == "not advised"
     assert _verdicts(ev, SuggestionThresholds(low_rate=0.10))["leave as is"] == "suggested"
+
+
+@pytest.mark.parametrize("ev, association", [
+    # the AUC never flags: a high AUC with an unremarkable adjusted p-value is "none detected"
+    (ItemEvidence(item="q", n_in_scope=300, n_nonresponse=20, model_p=0.01, adjusted_p=0.4, auc=0.85), "none detected"),
+    (ItemEvidence(item="q", n_in_scope=300, n_nonresponse=20, model_p=0.001, adjusted_p=0.01, auc=0.62), "weak"),
+    (ItemEvidence(item="q", n_in_scope=300, n_nonresponse=20, model_p=0.001, adjusted_p=0.01, auc=0.75), "strong"),
+    # Little's joint p-value alone never flags one item
+    (ItemEvidence(item="q", n_in_scope=300, n_nonresponse=20, little_p=1e-6), "untested"),
+], ids=["auc-alone", "flag-small-effect", "flag-large-effect", "little-alone"])
+def test_flag_rests_on_adjusted_test(ev, association):
+    from skipwise.diagnostics.suggest import flagged
+
+    sug = suggest_handling(ev)
+    assert sug.association == association
+    assert flagged(sug.association) == (association in ("weak", "strong"))
+    assert (_verdicts(ev)["multiple imputation"] == "suggested") == flagged(association)

@@ -10,6 +10,7 @@ import pandas as pd
 import typer
 
 from skipwise.cli.app import app, fail
+from skipwise.diagnostics.survey import default_auxiliaries  # noqa: F401  (kept importable from here)
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
 _CAUTION = ("Caution: no test on the observed data can tell data missing at random from data missing "
@@ -36,33 +37,6 @@ def _numeric_column(data: pd.DataFrame, col: str, what: str) -> pd.Series:
     return s.astype(float)
 
 
-def default_auxiliaries(data: pd.DataFrame, context: list[str], *, max_levels: int = 10) -> tuple[list[str], list[str]]:
-    """Context columns fit to be auxiliaries, and those left out (with the reason).
-
-    Kept: fully observed columns with 2..``max_levels`` values, and numeric
-    columns with fractional values.  Left out, with the reason: columns with
-    blanks, a single value, many whole-number codes (identifiers such as PSU
-    numbers, or code lists) or many text values.  The cut-off is common
-    practice, no source; ``--aux`` overrides the choice.
-    """
-    keep, left = [], []
-    for col in context:
-        s = data[col]
-        levels = s.nunique(dropna=True)
-        whole = pd.api.types.is_numeric_dtype(s) and bool(np.all(np.mod(s.dropna().to_numpy(float), 1) == 0))
-        if s.isna().any():
-            left.append(f"{col} (has blanks)")
-        elif levels < 2:
-            left.append(f"{col} (constant)")
-        elif levels <= max_levels or (pd.api.types.is_numeric_dtype(s) and not whole):
-            keep.append(col)
-        elif whole:
-            left.append(f"{col} ({levels} whole-number codes: an identifier or a code list?)")
-        else:
-            left.append(f"{col} ({levels} text values: too many categories)")
-    return keep, left
-
-
 _HELP = (
     "Diagnose the missingness mechanism of every item, over in-scope cells only.\n\n"
     "Legitimate skips never count as missing. The workbook holds Little's MCAR test, "
@@ -80,9 +54,9 @@ def diagnose(
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
     output: Annotated[Path, typer.Option("-o", "--output", help="Workbook to write (.xlsx).")] = Path("diagnostics.xlsx"),
     items: Annotated[Optional[list[str]], typer.Option("--items", help="Items to diagnose (repeat or comma-separate; default: all).")] = None,
-    aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns). An item may be named: its answers are used.")] = None,
+    aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns plus the items age and sex if asked of everyone with at most 2% nonresponse). An item may be named: its answers are used.")] = None,
     categorical: Annotated[Optional[list[str]], typer.Option("--categorical", help="Auxiliaries to treat as categorical (default: text columns and whole-number columns with at most 10 values).")] = None,
-    little_items: Annotated[Optional[list[str]], typer.Option("--little-items", help="Variables of Little's test (default: numeric items with nonresponse whose common scope keeps at least half the cases).")] = None,
+    little_items: Annotated[Optional[list[str]], typer.Option("--little-items", help="Variables of Little's test (default: numeric items with nonresponse whose common scope keeps at least half the cases, leaving out near-duplicates with R² ≥ 0.99).")] = None,
     weight: Annotated[Optional[str], typer.Option("--weight", help="Design-weight column for the R-indicators and the sensitivity analysis.")] = None,
     response: Annotated[Optional[str], typer.Option("--response", help="Column telling unit respondents from nonrespondents; adds a unit-level R-indicator and restricts item diagnostics to respondents.")] = None,
     responded: Annotated[Optional[list[str]], typer.Option("--responded", help="Values of --response that mean 'responded' (default: 1).")] = None,
@@ -91,21 +65,22 @@ def diagnose(
     delta: Annotated[Optional[list[float]], typer.Option("--delta", help="Shift(s) δ to try (repeat; default: a grid around the tipping point).")] = None,
     low_rate: Annotated[float, typer.Option(help="Nonresponse rate below which an item counts as little affected (common practice, no source).")] = 0.05,
     high_rate: Annotated[float, typer.Option(help="Rate from which dropping the variable is worth considering (common practice, no source).")] = 0.40,
-    alpha: Annotated[float, typer.Option(help="Significance level for evidence against MCAR.")] = 0.05,
-    auc_weak: Annotated[float, typer.Option(help="AUC from which the auxiliaries noticeably predict nonresponse.")] = 0.60,
-    auc_strong: Annotated[float, typer.Option(help="AUC from which they predict it strongly.")] = 0.70,
+    alpha: Annotated[float, typer.Option(help="Significance level for evidence against MCAR (applied to the adjusted p-values).")] = 0.05,
+    adjust: Annotated[str, typer.Option(help="Adjustment of the items' p-values for testing many items: holm (family-wise error, any dependence), bh (false discovery rate) or none.")] = "holm",
+    auc_weak: Annotated[float, typer.Option(help="AUC from which a flagged item's effect is called moderate (effect size only; it never flags an item).")] = 0.60,
+    auc_strong: Annotated[float, typer.Option(help="AUC from which a flagged item's association is called strong (effect size only).")] = 0.70,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace the output file if it exists.")] = False,
 ) -> None:
     """Diagnose the missingness mechanism (help text: ``_HELP``)."""
     try:
         from skipwise.classify import classify
-        from skipwise.classify import statuses as S
-        from skipwise.diagnostics import SuggestionThresholds, missingness_frame
-        from skipwise.diagnostics.report import DiagnoseOptions, choose_little_items, run_diagnostics
+        from skipwise.diagnostics import SuggestionThresholds
+        from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
+        from skipwise.diagnostics.survey import survey_inputs
         from skipwise.diagnostics.workbook import write_diagnostics_workbook
         from skipwise.io import read_survey
         from skipwise.io.atomic import check_writable
-        from skipwise.questionnaire import ItemType, load_questionnaire
+        from skipwise.questionnaire import load_questionnaire
 
         check_writable(output, overwrite=overwrite)
         if threshold is not None and sensitivity is None:
@@ -122,15 +97,8 @@ def diagnose(
         data = read_survey(data_path)
         typer.echo(f"Classifying {len(data):,} cases against {len(q.item_names)} items ...", err=True)
         cls = classify(data, q)
-        answered = cls.mask(S.ANSWERED)
-        values = pd.DataFrame(np.nan, index=data.index, columns=list(q.item_names))
-        av = cls.analysis_values(data)
-        for name in q.item_names:
-            item = q.item(name)
-            if item.type is not ItemType.MULTI and len(item.columns) == 1:
-                values[name] = av[item.columns[0]]
 
-        rows = pd.Series(True, index=data.index)
+        rows = None
         resp_ind = None
         if response is not None:
             if response not in data.columns:
@@ -145,43 +113,20 @@ def diagnose(
             rows = resp_ind
             typer.echo(f"Unit respondents: {int(rows.sum()):,} of {len(rows):,}", err=True)
 
-        mf = missingness_frame(values.loc[rows], cls.universe_mask().loc[rows], cls.nonresponse_mask().loc[rows],
-                               answered_mask=answered.loc[rows])
-
-        context = [c for c in q.context if c in data.columns and c not in (q.case_id, weight, response)]
-        aux_names = _names(aux)
-        if aux_names is None:
-            aux_names, left = default_auxiliaries(data, context)
-            if left:
-                typer.echo("Context columns not used as auxiliaries: " + ", ".join(left)
-                           + " (name them with --aux to use them).", err=True)
-        bad = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=a,
-                       message="auxiliary is neither a data column nor an item",
-                       hint=did_you_mean(a, [*map(str, data.columns), *q.item_names]))
-               for a in aux_names if a not in data.columns and a not in q.item_names]
-        if bad:
-            raise SkipwiseError(bad)
-        if not aux_names:
-            raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
-                                        message="no auxiliary variables to compare respondents with",
-                                        hint="name fully observed columns with --aux"))
-        aux_frame = pd.DataFrame({a: (values[a] if a in q.item_names else data[a]) for a in aux_names},
-                                 index=data.index)
-        aux_frame = aux_frame.apply(lambda s: s if pd.api.types.is_numeric_dtype(s) else s.astype(str).where(s.notna()))
-        w = _numeric_column(data, weight, "weight") if weight else None
-
         chosen = _names(items)
-        if little_items:
-            l_items = _names(little_items)
-        else:
-            numeric_items = [n for n in (chosen or q.item_names)
-                             if q.item(n).type in (ItemType.INTEGER, ItemType.NUMBER)]
-            l_items = choose_little_items(mf, [n for n in numeric_items if n in mf.items]) if numeric_items else []
+        inputs = survey_inputs(data, q, classification=cls, items=chosen, aux=_names(aux),
+                               little_items=_names(little_items), rows=rows,
+                               exclude=[c for c in (weight, response) if c])
+        if inputs.aux_left_out:
+            typer.echo("Not used as auxiliaries: " + ", ".join(inputs.aux_left_out)
+                       + " (name them with --aux to use them).", err=True)
+        mf, aux_frame, l_items = inputs.mframe, inputs.aux, list(inputs.little_items)
+        w = _numeric_column(data, weight, "weight") if weight else None
         opts = DiagnoseOptions(
             items=tuple(chosen) if chosen else None, little_items=tuple(l_items),
             categorical=tuple(_names(categorical)) if categorical else None,
             sensitivity_item=sensitivity, threshold=threshold, deltas=tuple(delta) if delta else None,
-            alpha=alpha, thresholds=SuggestionThresholds(low_rate=low_rate, high_rate=high_rate, alpha=alpha,
+            alpha=alpha, adjust=adjust, thresholds=SuggestionThresholds(low_rate=low_rate, high_rate=high_rate, alpha=alpha,
                                                          auc_weak=auc_weak, auc_strong=auc_strong),
         )
         todo = list(chosen or mf.items)
@@ -209,7 +154,9 @@ def _print_summary(rep, output: Path) -> None:
     typer.echo("Highest item nonresponse (in-scope cells):")
     for r in s.itertuples():
         auc = "" if pd.isna(r.auc) else f", AUC {r.auc:.2f}"
-        typer.echo(f"  {r.item:<20} {r.nonresponse_rate:6.1%} of {r.in_scope:,}{auc}; {r.suggested}")
+        p = "" if pd.isna(r.model_p_adjusted) else f", adjusted p {r.model_p_adjusted:.2g}"
+        flag = "FLAGGED (evidence against MCAR)" if r.flagged else r.association
+        typer.echo(f"  {r.item:<20} {r.nonresponse_rate:6.1%} of {r.in_scope:,}{p}{auc}; {flag}; {r.suggested}")
     if rep.sensitivity is not None and rep.sensitivity.tipping_point is not None:
         sv = rep.sensitivity
         typer.echo(f"Sensitivity of {sv.item}: the mean is {sv.conclusion} {sv.threshold:g} unless nonrespondents "

@@ -197,11 +197,13 @@ def compare_item(indicator: pd.Series, aux: pd.DataFrame, *, categorical: Sequen
                        std_difference=(mm - mr) / pooled if pooled > 0 else np.nan,
                        test="Welch t", cramers_v=np.nan)
             if n_r > 1 and n_m > 1 and (vr > 0 or vm > 0):
-                t = stats.ttest_ind(xm, xr, equal_var=False)
-                # Welch–Satterthwaite degrees of freedom
+                # Welch's t with Welch–Satterthwaite degrees of freedom, from the two-pass variances
+                # above (scipy's own call warns when one group's values are (almost) all equal, as a
+                # design variable often is among a few nonrespondents; the formula is the same)
                 a, b = vm / n_m, vr / n_r
                 dof = (a + b) ** 2 / (a ** 2 / (n_m - 1) + b ** 2 / (n_r - 1))
-                row.update(statistic=float(t.statistic), df=float(dof), p_value=float(t.pvalue))
+                tstat = (mm - mr) / np.sqrt(a + b)
+                row.update(statistic=float(tstat), df=float(dof), p_value=float(2 * stats.t.sf(abs(tstat), dof)))
             else:
                 row.update(statistic=np.nan, df=np.nan, p_value=np.nan)
         rows.append(row)

@@ -9,13 +9,14 @@ from typing import Sequence
 import numpy as np
 import pandas as pd
 import statsmodels.api as sm
-from scipy import stats
+from scipy import special, stats
 from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparationWarning
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
-__all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit"]
+__all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit",
+           "coefficient_table", "fitted_probabilities", "unstable_terms", "UNSTABLE_NOTE"]
 
 
 def auc_mann_whitney(scores: np.ndarray | pd.Series, labels: np.ndarray | pd.Series) -> float:
@@ -137,6 +138,47 @@ def fit_logit(y: pd.Series, x: pd.DataFrame, *, weights: pd.Series | None = None
     return res, sorted(set(notes))
 
 
+#: A coefficient this large (log-odds) or a standard error this large marks an unstable estimate,
+#: usually (quasi-)separation: a category with (almost) no nonrespondents (common practice, no source).
+UNSTABLE_COEF, UNSTABLE_SE = 10.0, 5.0
+UNSTABLE_NOTE = ("Unstable estimates (huge coefficient or standard error, usually a category with (almost) no "
+                 "respondents or no nonrespondents: separation) for {terms}: their odds ratios and limits are "
+                 "not meaningful (shown blank when they overflow); merge sparse categories to estimate them.")
+
+
+def coefficient_table(res, terms: list[str], *, alpha: float = 0.05) -> pd.DataFrame:
+    """Coefficients, odds ratios and their (1 − alpha) limits of a fitted logit.
+
+    An odds ratio or limit too large to represent (exp overflow, which happens
+    under separation) is left blank (NaN) instead of raising a warning.
+    """
+    ci = np.asarray(res.conf_int(alpha=alpha), dtype=float)
+    coef = np.asarray(res.params, dtype=float)
+
+    def odds(v: np.ndarray) -> np.ndarray:
+        with np.errstate(over="ignore", invalid="ignore"):
+            out = np.exp(v)
+        return np.where(np.isfinite(out), out, np.nan)
+
+    return pd.DataFrame({
+        "term": terms, "coef": coef, "std_err": np.asarray(res.bse, dtype=float),
+        "z": np.asarray(res.tvalues, dtype=float), "p_value": np.asarray(res.pvalues, dtype=float),
+        "odds_ratio": odds(coef), "or_low": odds(ci[:, 0]), "or_high": odds(ci[:, 1]),
+    })
+
+
+def fitted_probabilities(res, x: pd.DataFrame) -> np.ndarray:
+    """Fitted probabilities expit(x·β), overflow-free even for the huge linear predictors of separation."""
+    return special.expit(x.to_numpy(float) @ np.asarray(res.params, dtype=float))
+
+
+def unstable_terms(table: pd.DataFrame) -> list[str]:
+    """Terms (other than the intercept) whose estimate is unstable (:data:`UNSTABLE_COEF`, :data:`UNSTABLE_SE`)."""
+    bad = ((table["coef"].abs() > UNSTABLE_COEF) | (table["std_err"] > UNSTABLE_SE)
+           | ~np.isfinite(table["std_err"]) | table["or_high"].isna())
+    return [str(t) for t in table.loc[bad & (table["term"] != "const"), "term"]]
+
+
 @dataclass(frozen=True, kw_only=True, eq=False)
 class LogitResult:
     """Logistic regression of an item's nonresponse indicator on auxiliaries.
@@ -223,14 +265,11 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
         notes.insert(0, f"{n_drop:,} in-scope cases with a missing auxiliary were left out.")
     if const:
         notes.append(f"Constant or redundant (collinear) terms left out: {', '.join(const)}.")
-    ci = np.asarray(res.conf_int(alpha=alpha))
-    with np.errstate(over="ignore"):
-        table = pd.DataFrame({
-            "term": list(x.columns), "coef": np.asarray(res.params), "std_err": np.asarray(res.bse),
-            "z": np.asarray(res.tvalues), "p_value": np.asarray(res.pvalues),
-            "odds_ratio": np.exp(np.asarray(res.params)), "or_low": np.exp(ci[:, 0]), "or_high": np.exp(ci[:, 1]),
-        })
-    fitted = np.asarray(res.predict(x))
+    table = coefficient_table(res, list(x.columns), alpha=alpha)
+    unstable = unstable_terms(table)
+    if unstable:
+        notes.append(UNSTABLE_NOTE.format(terms=", ".join(unstable)))
+    fitted = fitted_probabilities(res, x)
     return LogitResult(
         item=name, n=int(len(ind)), n_nonresponse=n_m, table=table, reference=refs,
         auc=auc_mann_whitney(fitted, ind.to_numpy()), pseudo_r2=float(res.prsquared),

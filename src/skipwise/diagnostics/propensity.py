@@ -13,9 +13,12 @@ from typing import Sequence
 
 import numpy as np
 import pandas as pd
+from scipy import special
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
-from skipwise.diagnostics.model import design_matrix, fit_logit
+from skipwise.diagnostics.model import (
+    UNSTABLE_NOTE, coefficient_table, design_matrix, fit_logit, fitted_probabilities, unstable_terms,
+)
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["RIndicatorResult", "r_indicator", "BINS"]
@@ -84,7 +87,7 @@ def _groups(s: pd.Series, is_cat: bool, bins: int) -> pd.Series:
 
 def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.Series | None = None,
                 categorical: Sequence[str] | None = None, bins: int = BINS,
-                target: str = "unit response") -> RIndicatorResult:
+                target: str = "unit response", nonresponse_model=None) -> RIndicatorResult:
     """Estimate response propensities and the R-indicator with partial indicators.
 
     Parameters
@@ -104,6 +107,11 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         Quantile groups for numeric variables' partial indicators.
     target
         Label of the response in the results.
+    nonresponse_model
+        Unweighted only: the :class:`~skipwise.diagnostics.model.LogitResult`
+        of the nonresponse indicator ``~responded`` on the same variables.  The
+        response model is then that model with its signs reversed (the
+        logistic likelihood is symmetric in the two outcomes), and is not fitted again.
 
     Returns
     -------
@@ -150,9 +158,21 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
     x, refs, const = design_matrix(sub, cat)
     if const:
         notes.append(f"Constant or redundant (collinear) terms left out: {', '.join(const)}.")
-    res, fit_notes = fit_logit(ind, x, weights=None if weights is None else d)
-    notes.extend(fit_notes)
-    rho = pd.Series(np.asarray(res.predict(x)), index=ind.index, name="propensity")
+    reuse = (nonresponse_model is not None and weights is None
+             and list(nonresponse_model.table["term"]) == list(x.columns) and nonresponse_model.n == len(ind))
+    if reuse:
+        t = nonresponse_model.table
+        model = pd.DataFrame({"term": t["term"], "coef": -t["coef"], "std_err": t["std_err"], "p_value": t["p_value"],
+                              "odds_ratio": 1.0 / t["odds_ratio"], "or_low": 1.0 / t["or_high"],
+                              "or_high": 1.0 / t["or_low"]}).replace([np.inf, -np.inf], np.nan).reset_index(drop=True)
+        rho = pd.Series(special.expit(x.to_numpy(float) @ model["coef"].to_numpy(float)), index=ind.index,
+                        name="propensity")
+        notes.append("Propensity model: the item's nonresponse model with its signs reversed.")
+    else:
+        res, fit_notes = fit_logit(ind, x, weights=None if weights is None else d)
+        notes.extend(fit_notes)
+        rho = pd.Series(fitted_probabilities(res, x), index=ind.index, name="propensity")
+        model = coefficient_table(res, list(x.columns)).drop(columns="z")
     dv, rv = d.to_numpy(), rho.to_numpy()
     big_n = dv.sum()
     rbar = float((dv * rv).sum() / big_n)
@@ -176,11 +196,9 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
             cat_rows.append({"variable": name, "category": k, "n": int(agg.loc[k, "n"]),
                              "share": float(share[k]), "response_rate": float(agg.loc[k, "resp"] / agg.loc[k, "w"]),
                              "mean_propensity": float(mean_k[k]), "partial_unconditional": float(pu_k[k])})
-    ci = np.asarray(res.conf_int())
-    model = pd.DataFrame({"term": list(x.columns), "coef": np.asarray(res.params),
-                          "std_err": np.asarray(res.bse), "p_value": np.asarray(res.pvalues),
-                          "odds_ratio": np.exp(np.asarray(res.params)),
-                          "or_low": np.exp(ci[:, 0]), "or_high": np.exp(ci[:, 1])})
+    unstable = unstable_terms(model)
+    if unstable:
+        notes.append(UNSTABLE_NOTE.format(terms=", ".join(unstable)))
     if refs:
         notes.append("Reference categories: " + ", ".join(f"{k}={v}" for k, v in refs.items()) + ".")
     return RIndicatorResult(

@@ -14,14 +14,19 @@ from skipwise.diagnostics.little import LittleResult, little_mcar_test
 from skipwise.diagnostics.model import LogitResult, nonresponse_logit
 from skipwise.diagnostics.propensity import RIndicatorResult, r_indicator
 from skipwise.diagnostics.sensitivity import DeltaResult, delta_adjustment
-from skipwise.diagnostics.suggest import ItemEvidence, Suggestion, SuggestionThresholds, suggest_handling
+from skipwise.diagnostics.multiplicity import adjust_pvalues
+from skipwise.diagnostics.suggest import ItemEvidence, Suggestion, SuggestionThresholds, flagged, suggest_handling
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
-__all__ = ["DiagnoseOptions", "DiagnosticsReport", "run_diagnostics", "choose_little_items", "MIN_SCOPE_SHARE"]
+__all__ = ["DiagnoseOptions", "DiagnosticsReport", "run_diagnostics", "choose_little_items", "MIN_SCOPE_SHARE",
+           "MAX_R_SQUARED"]
 
 #: Greedy choice of Little's variables keeps the common scope at least this share of the
 #: largest item's scope (common practice, no source).
 MIN_SCOPE_SHARE = 0.5
+#: A candidate of Little's test explained to this R² by the variables already chosen is left out
+#: (common practice, no source).
+MAX_R_SQUARED = 0.99
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -42,6 +47,11 @@ class DiagnoseOptions:
         Delta adjustment of one item's mean against a stated threshold.
     alpha
         Significance level used in the suggestions and the summary.
+    adjust
+        Adjustment of the items' model p-values for testing many items
+        (:func:`~skipwise.diagnostics.multiplicity.adjust_pvalues`: ``"holm"``,
+        ``"bh"`` or ``"none"``).  The family is the items with a fitted model
+        and at least ``thresholds.min_nonrespondents`` nonrespondents.
     thresholds
         Cut-offs of the handling suggestions.
     """
@@ -54,6 +64,7 @@ class DiagnoseOptions:
     threshold: float | None = None
     deltas: tuple[float, ...] | None = None
     alpha: float = 0.05
+    adjust: str = "holm"
     thresholds: SuggestionThresholds = field(default_factory=SuggestionThresholds)
 
 
@@ -75,14 +86,35 @@ class DiagnosticsReport:
     notes: tuple[tuple[str, str, str], ...]  # (part, item, message)
 
 
+def _r_squared(frame: pd.DataFrame, chosen: list[str], cand: str) -> float:
+    """R² of ``cand`` on ``chosen`` (with intercept) over their complete cases; 1 if it cannot be told."""
+    sub = frame[[*chosen, cand]].dropna()
+    y = sub[cand].to_numpy(float)
+    if len(sub) <= len(chosen) + 2:
+        return 1.0
+    ss_tot = float(((y - y.mean()) ** 2).sum())
+    if ss_tot == 0:
+        return 1.0
+    if not chosen:
+        return 0.0
+    x = np.column_stack([np.ones(len(sub)), sub[chosen].to_numpy(float)])
+    beta, *_ = np.linalg.lstsq(x, y, rcond=None)
+    return 1.0 - float(((y - x @ beta) ** 2).sum()) / ss_tot
+
+
 def choose_little_items(mframe: MissingnessFrame, candidates: Sequence[str]) -> list[str]:
     """Pick variables for one Little's test without routing shrinking the cases too far.
 
-    Candidates with item nonresponse are taken in order of their in-scope
-    counts; each is added if the common scope stays at least
-    :data:`MIN_SCOPE_SHARE` of the first one's scope.  Candidates without
-    nonresponse that are answered (and vary) in all the chosen cases are added
-    too: complete variables add power without losing cases.
+    Candidates with item nonresponse and at least two numeric answers are
+    taken in order of their in-scope counts (largest first); each is added if
+    the common scope stays at least :data:`MIN_SCOPE_SHARE` of the first
+    one's scope and if it is not (almost) a linear function of the variables
+    already chosen: R² below :data:`MAX_R_SQUARED` over their complete cases
+    in that scope (a duplicate, such as the respondent's age asked twice,
+    would make the covariance matrix singular).  Candidates without
+    nonresponse that are answered in all the chosen cases, vary there and pass
+    the same R² check are added too: complete variables add power without
+    losing cases.  The cut-offs are common practice, no source.
     """
     counts = mframe.counts.loc[list(candidates)]
     c = counts[(counts["nonresponse"] > 0) & (counts["numeric_answers"] >= 2)]
@@ -91,16 +123,19 @@ def choose_little_items(mframe: MissingnessFrame, candidates: Sequence[str]) -> 
     scope = None
     for item in c.index:
         new = mframe.in_scope[item] if scope is None else scope & mframe.in_scope[item]
-        if scope is None or new.sum() >= MIN_SCOPE_SHARE * c["in_scope"].iloc[0]:
-            chosen.append(str(item))
-            scope = new
+        if scope is not None and new.sum() < MIN_SCOPE_SHARE * c["in_scope"].iloc[0]:
+            continue
+        if _r_squared(mframe.values.loc[new], chosen, str(item)) >= MAX_R_SQUARED:
+            continue
+        chosen.append(str(item))
+        scope = new
     if scope is None:
         return chosen
     # complete items answered by every chosen case add power at no cost in cases
     for item in counts.index:
         if (item not in chosen and counts.loc[item, "nonresponse"] == 0
                 and bool(mframe.values.loc[scope, item].notna().all())
-                and mframe.values.loc[scope, item].nunique() > 1):
+                and _r_squared(mframe.values.loc[scope], chosen, str(item)) < MAX_R_SQUARED):
             chosen.append(str(item))
     return chosen
 
@@ -132,6 +167,15 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
     progress
         Called with a short label before each step.
 
+    Notes
+    -----
+    Flag rule: an item shows evidence against MCAR ("flagged", association
+    "weak" or "strong") when it has at least ``min_nonrespondents``
+    nonrespondents and the likelihood-ratio p-value of its nonresponse model
+    on the auxiliaries, adjusted across all such items (``options.adjust``,
+    Holm by default), is below ``alpha``.  The AUC only grades the size of a
+    flagged item's effect.
+
     Returns
     -------
     DiagnosticsReport
@@ -139,6 +183,7 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
         recorded in ``notes``; they do not stop the others.
     """
     opt = options or DiagnoseOptions()
+    adjust_pvalues(pd.Series(dtype=float), opt.adjust)  # an unknown method fails before any work
     tell = progress or (lambda _label: None)
     items = list(opt.items) if opt.items is not None else list(mframe.items)
     problems = _unknown(items, mframe.items, "item")
@@ -162,6 +207,17 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
         frame = joint.frame
         if opt.little_with_aux:
             num_aux = [c for c in aux.columns if str(c) not in cat and str(c) not in frame.columns]
+            # like the items, a numeric auxiliary (almost) determined by the variables already in the
+            # test would make the covariance matrix singular (an item asked twice, a design variable)
+            base = frame.join(aux.loc[frame.index, num_aux].astype(float)) if num_aux else frame
+            kept: list = []
+            for c in num_aux:
+                if _r_squared(base, [*map(str, frame.columns), *map(str, kept)], str(c)) < MAX_R_SQUARED:
+                    kept.append(c)
+                else:
+                    notes.append(("Little's test", str(c), f"auxiliary left out: R² ≥ {MAX_R_SQUARED} on the "
+                                  "variables already in the test (a near-duplicate)"))
+            num_aux = kept
             if num_aux:
                 frame = frame.join(aux.loc[frame.index, num_aux].astype(float))
                 before = len(frame)
@@ -214,22 +270,33 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
                     row["model_p"], row["auc"] = res.lr_p_value, res.auc
             try:
                 rinds.append(r_indicator(~ind, own_aux, weights=None if weights is None else weights.loc[ind.index],
-                                         categorical=item_cat, target=f"response to {item}"))
+                                         categorical=item_cat, target=f"response to {item}",
+                                         nonresponse_model=models.get(item)))
             except SkipwiseError as err:
                 notes.append(("R-indicator", item, err.render()))
-        ev = ItemEvidence(item=item, n_in_scope=row["in_scope"], n_nonresponse=n_m,
+        summary_rows.append(row)
+    th = opt.thresholds
+    family = pd.Series({r["item"]: r["model_p"] for r in summary_rows
+                        if r["nonresponse"] >= th.min_nonrespondents}, dtype=float)
+    adjusted = adjust_pvalues(family, opt.adjust)
+    for row in summary_rows:
+        item = row["item"]
+        adj = adjusted.get(item, np.nan)
+        row["model_p_adjusted"] = float(adj) if opt.adjust != "none" else np.nan
+        ev = ItemEvidence(item=item, n_in_scope=row["in_scope"], n_nonresponse=row["nonresponse"],
                           little_p=None if np.isnan(row["little_p"]) else row["little_p"],
                           model_p=None if np.isnan(row["model_p"]) else row["model_p"],
+                          adjusted_p=None if np.isnan(row["model_p_adjusted"]) else row["model_p_adjusted"],
                           auc=None if np.isnan(row["auc"]) else row["auc"],
                           min_compare_p=None if np.isnan(row["min_compare_p"]) else row["min_compare_p"])
-        sug = suggest_handling(ev, opt.thresholds)
+        sug = suggest_handling(ev, th)
         suggestions.append(sug)
         row["association"] = sug.association
+        row["flagged"] = flagged(sug.association)
         row["suggested"] = sug.headline()
-        summary_rows.append(row)
     summary = pd.DataFrame(summary_rows, columns=["item", "in_scope", "nonresponse", "nonresponse_rate",
                                                   "little_p", "model_p", "auc", "min_compare_p",
-                                                  "association", "suggested"])
+                                                  "model_p_adjusted", "association", "flagged", "suggested"])
     with np.errstate(divide="ignore"):
         summary.insert(6, "neg_log10_model_p", -np.log10(summary["model_p"].clip(lower=1e-300)))
 

@@ -10,7 +10,7 @@ import math
 from dataclasses import dataclass
 
 __all__ = ["CAUTIONS", "ItemEvidence", "Option", "Suggestion", "SuggestionThresholds", "suggest_handling",
-           "ACTIONS"]
+           "ACTIONS", "flagged"]
 
 #: Shown with every set of suggestions.
 CAUTIONS = (
@@ -32,10 +32,10 @@ class SuggestionThresholds:
 
     low_rate: float = 0.05      #: below this, nonresponse is small
     high_rate: float = 0.40     #: at or above this, consider dropping or reporting with strong caution
-    alpha: float = 0.05         #: significance level for tests against MCAR
-    auc_weak: float = 0.60      #: AUC from which auxiliaries predict nonresponse noticeably
-    auc_strong: float = 0.70    #: AUC from which they predict it strongly
-    min_nonrespondents: int = 10  #: fewer nonrespondents than this: tests have little power
+    alpha: float = 0.05         #: level of the (multiplicity-adjusted) test against MCAR
+    auc_weak: float = 0.60      #: AUC from which the effect of a flagged item is described as moderate
+    auc_strong: float = 0.70    #: AUC from which a flagged item's association is "strong"
+    min_nonrespondents: int = 10  #: fewer nonrespondents than this: the item is not tested
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -47,6 +47,7 @@ class ItemEvidence:
     n_nonresponse: int
     little_p: float | None = None    #: Little's test over the items it was run on (None: not in it)
     model_p: float | None = None     #: likelihood-ratio p-value of the nonresponse model
+    adjusted_p: float | None = None  #: ``model_p`` adjusted for testing many items (None: not adjusted)
     auc: float | None = None         #: AUC of the nonresponse model
     min_compare_p: float | None = None  #: smallest p-value among respondent/nonrespondent comparisons
 
@@ -69,7 +70,7 @@ class Suggestion:
     """All options for one item, the evidence summary and the association level."""
 
     item: str
-    association: str   #: "none", "none detected", "weak", "strong" or "untested"
+    association: str   #: "none", "none detected", "weak", "strong" (both: flagged) or "untested"
     evidence: str
     options: tuple[Option, ...]
 
@@ -89,31 +90,40 @@ def _ok(x: float | None) -> bool:
 
 
 def _association(ev: ItemEvidence, th: SuggestionThresholds) -> str:
+    """The flag rule.
+
+    Untested: fewer than ``min_nonrespondents`` nonrespondents, or no model.
+    Flagged (evidence against MCAR): the model's likelihood-ratio p-value,
+    adjusted across items when ``adjusted_p`` is given, is below ``alpha``.
+    The AUC is only the size of the effect of a flagged item: "strong" from
+    ``auc_strong``, "weak" below.  Little's joint p-value never flags one item.
+    """
     if ev.n_nonresponse == 0:
         return "none"
-    tested = [_ok(ev.model_p), _ok(ev.auc), _ok(ev.little_p), _ok(ev.min_compare_p)]
-    if not any(tested) or ev.n_nonresponse < th.min_nonrespondents:
+    if ev.n_nonresponse < th.min_nonrespondents or not _ok(ev.model_p):
         return "untested"
-    # Little's test is joint over several items: it speaks for one item only when the item's own
-    # model is missing
-    own = ev.model_p if _ok(ev.model_p) else ev.little_p
-    sig = _ok(own) and own < th.alpha
-    auc = ev.auc if _ok(ev.auc) else 0.5
-    if sig and auc >= th.auc_strong:
-        return "strong"
-    if sig or auc >= th.auc_weak:
-        return "weak"
-    return "none detected"
+    p = ev.adjusted_p if _ok(ev.adjusted_p) else ev.model_p
+    if p >= th.alpha:
+        return "none detected"
+    return "strong" if _ok(ev.auc) and ev.auc >= th.auc_strong else "weak"
 
 
-def _evidence_text(ev: ItemEvidence) -> str:
+def flagged(association: str) -> bool:
+    """True when an association level means evidence against MCAR ("weak" or "strong")."""
+    return association in ("weak", "strong")
+
+
+def _evidence_text(ev: ItemEvidence, th: SuggestionThresholds) -> str:
     parts = [f"nonresponse {ev.n_nonresponse:,} of {ev.n_in_scope:,} in scope ({ev.rate:.1%})"]
     if _ok(ev.little_p):
         parts.append(f"Little's test p = {ev.little_p:.3g}")
     if _ok(ev.model_p):
         parts.append(f"nonresponse model p = {ev.model_p:.3g}")
+    if _ok(ev.adjusted_p):
+        parts.append(f"adjusted for the number of items p = {ev.adjusted_p:.3g}")
     if _ok(ev.auc):
-        parts.append(f"AUC = {ev.auc:.2f}")
+        size = "small" if ev.auc < th.auc_weak else ("moderate" if ev.auc < th.auc_strong else "large")
+        parts.append(f"AUC = {ev.auc:.2f} ({size} effect)")
     if _ok(ev.min_compare_p):
         parts.append(f"smallest comparison p = {ev.min_compare_p:.3g}")
     return "; ".join(parts)
@@ -155,7 +165,7 @@ def suggest_handling(ev: ItemEvidence, thresholds: SuggestionThresholds | None =
         add("leave as is", "suggested", "no item nonresponse in scope")
         for a in ACTIONS[1:]:
             add(a, "not advised", "nothing to handle")
-        return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev), options=tuple(opts))
+        return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev, th), options=tuple(opts))
 
     add("leave as is",
         "suggested" if low and not related else ("possible" if low else "not advised"),
@@ -191,4 +201,4 @@ def suggest_handling(ev: ItemEvidence, thresholds: SuggestionThresholds | None =
         "weighting classes or propensities from the auxiliaries that predict nonresponse; best "
         "when many items share the same nonrespondents" if related
         else "the auxiliaries do not predict nonresponse, so weighting on them would change little")
-    return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev), options=tuple(opts))
+    return Suggestion(item=ev.item, association=assoc, evidence=_evidence_text(ev, th), options=tuple(opts))

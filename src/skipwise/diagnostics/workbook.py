@@ -39,8 +39,11 @@ DEFINITIONS = (
     ("Little's test", "Chi-square test of MCAR comparing each missingness pattern's means with the EM estimates "
                       "(Little 1988, JASA 83:1198–1202). Assumes multivariate normality."),
     ("AUC", "Area under the ROC curve of the nonresponse model: 0.5 = auxiliaries do not tell respondents from "
-            "nonrespondents; 1 = they tell them apart perfectly. Evidence against MCAR and for the usefulness "
-            "of the auxiliaries under MAR."),
+            "nonrespondents; 1 = they tell them apart perfectly. The size of an effect, not a test: with few "
+            "nonrespondents a high AUC can arise by chance."),
+    ("Flagged", "Evidence against MCAR for one item: at least the minimum number of nonrespondents, and the "
+                "likelihood-ratio p-value of its nonresponse model on the auxiliaries, adjusted for the number "
+                "of items tested (Holm 1979 by default; Benjamini & Hochberg 1995 on request), is below alpha."),
     ("R-indicator", "R = 1 − 2·S(ρ̂), S the standard deviation of estimated response propensities (Schouten, "
                     "Cobben & Bethlehem 2009). 1 = representative response with respect to the variables."),
     ("Partial indicator", "Between-category spread of propensities for one variable (Schouten, Shlomo & Skinner "
@@ -129,14 +132,16 @@ def _glance(ws, rep: DiagnosticsReport) -> None:
     c = rep.counts.reset_index()
     df = rep.summary.merge(c[["item", "out_of_universe", "set_aside"]], on="item", how="left")
     cols = ["item", "in_scope", "nonresponse", "nonresponse_rate", "auc", "neg_log10_model_p", "model_p",
-            "little_p", "min_compare_p", "out_of_universe", "set_aside", "association", "suggested"]
+            "model_p_adjusted", "flagged", "little_p", "min_compare_p", "out_of_universe", "set_aside",
+            "association", "suggested"]
     ws.cell(row=1, column=1, value="Item nonresponse and evidence against MCAR, per item").font = _TITLE
     ws.cell(row=2, column=1, value="Rates over in-scope cells; AUC and p-values from the nonresponse model "
                                    "on the auxiliaries (blank: not estimable).")
     end = _table(ws, df[cols], 4, formats={"nonresponse_rate": PCT, "auc": NUM, "neg_log10_model_p": "0.00",
-                                         "model_p": P, "little_p": P, "min_compare_p": P})
+                                         "model_p": P, "model_p_adjusted": P, "little_p": P,
+                                         "min_compare_p": P})
     ws.freeze_panes = "B5"
-    _widths(ws, {1: 18, 12: 14, 13: 60})
+    _widths(ws, {1: 18, 14: 14, 15: 60})
     n = len(df)
     if n:
         bar = BarChart()

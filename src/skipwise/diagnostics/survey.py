@@ -1,0 +1,168 @@
+"""From a survey file and its questionnaire to the inputs of :func:`run_diagnostics`.
+
+One place decides which cells are in scope, which columns serve as
+auxiliaries and which items enter Little's test, so that the command line and
+library users (and the tests) diagnose the same thing.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Sequence
+
+import numpy as np
+import pandas as pd
+
+from skipwise.diagnostics.frame import MissingnessFrame, missingness_frame
+from skipwise.diagnostics.report import choose_little_items
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+
+__all__ = ["SurveyInputs", "survey_inputs", "default_auxiliaries", "CORE_ITEMS", "WELL_ANSWERED", "MAX_LEVELS"]
+
+#: Respondent items used as auxiliaries by default, when the questionnaire has them: the core
+#: demographics that item nonresponse most often depends on (common practice, no source).
+CORE_ITEMS: tuple[str, ...] = ("age", "sex")
+#: A core item serves as a default auxiliary only if at most this share of its in-scope cells is
+#: item nonresponse (common practice, no source).
+WELL_ANSWERED = 0.02
+#: Context columns with 2 to this many values are default auxiliaries (common practice, no source).
+MAX_LEVELS = 10
+
+
+@dataclass(frozen=True, kw_only=True, eq=False)
+class SurveyInputs:
+    """What :func:`run_diagnostics` needs, built from a classified survey file.
+
+    Attributes
+    ----------
+    mframe
+        In-scope values and indicators of every single-column item.
+    aux
+        Auxiliaries over every case of the data (item auxiliaries: their answers, NaN elsewhere).
+    aux_left_out
+        Candidate auxiliaries not used, each with the reason.
+    little_items
+        Variables of Little's test.
+    """
+
+    mframe: MissingnessFrame
+    aux: pd.DataFrame
+    aux_left_out: tuple[str, ...]
+    little_items: tuple[str, ...]
+
+
+def default_auxiliaries(data: pd.DataFrame, context: Sequence[str], *, mframe: MissingnessFrame | None = None,
+                        core_items: Sequence[str] = CORE_ITEMS,
+                        max_levels: int = MAX_LEVELS) -> tuple[list[str], list[str]]:
+    """Default auxiliaries, and the candidates left out (with the reason).
+
+    Context columns are kept when fully observed with 2..``max_levels``
+    values, or numeric with fractional values; left out when they have blanks,
+    a single value, many whole-number codes (identifiers such as PSU numbers,
+    or code lists) or many text values.  The ``core_items`` (respondent's age
+    and sex) are added when the questionnaire has them, they are asked of
+    every case, their answers vary and at most :data:`WELL_ANSWERED` of their
+    in-scope cells are item nonresponse.  The cut-offs are common practice, no
+    source; ``--aux`` overrides the choice.
+    """
+    keep, left = [], []
+    for col in context:
+        s = data[col]
+        levels = s.nunique(dropna=True)
+        whole = pd.api.types.is_numeric_dtype(s) and bool(np.all(np.mod(s.dropna().to_numpy(float), 1) == 0))
+        if s.isna().any():
+            left.append(f"{col} (has blanks)")
+        elif levels < 2:
+            left.append(f"{col} (constant)")
+        elif levels <= max_levels or (pd.api.types.is_numeric_dtype(s) and not whole):
+            keep.append(col)
+        elif whole:
+            left.append(f"{col} ({levels} whole-number codes: an identifier or a code list?)")
+        else:
+            left.append(f"{col} ({levels} text values: too many categories)")
+    if mframe is not None:
+        c = mframe.counts
+        for item in core_items:
+            if item not in c.index:
+                continue
+            rate = float(c.loc[item, "nonresponse_rate"])
+            if int(c.loc[item, "out_of_universe"]) > 0:
+                left.append(f"{item} (not asked of every case)")
+            elif not rate <= WELL_ANSWERED:
+                left.append(f"{item} ({rate:.1%} item nonresponse, more than {WELL_ANSWERED:.0%})")
+            elif mframe.values[item].nunique() < 2:
+                left.append(f"{item} (no varying numeric answers)")
+            else:
+                keep.append(item)
+    return keep, left
+
+
+def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, items: Sequence[str] | None = None,
+                  aux: Sequence[str] | None = None, little_items: Sequence[str] | None = None,
+                  rows: pd.Series | None = None, exclude: Sequence[str] = ()) -> SurveyInputs:
+    """Classify the data and build the in-scope frame, the auxiliaries and Little's variables.
+
+    Parameters
+    ----------
+    data
+        Survey data, one row per case.
+    questionnaire
+        The loaded questionnaire.
+    classification
+        Result of ``skipwise.classify.classify(data, questionnaire)`` (computed if omitted).
+    items
+        Items to diagnose (default: all); Little's default variables come from these.
+    aux
+        Auxiliary columns or items (default: :func:`default_auxiliaries`).
+    little_items
+        Variables of Little's test (default: :func:`~skipwise.diagnostics.report.choose_little_items`
+        over the numeric (``integer``/``number``) items).
+    rows
+        True for the cases to diagnose (for example unit respondents); default all.
+    exclude
+        Columns never used as default auxiliaries (case id, weight, response column).
+    """
+    from skipwise.classify import classify
+    from skipwise.classify import statuses as S
+    from skipwise.questionnaire import ItemType
+
+    q = questionnaire
+    cls = classification if classification is not None else classify(data, q)
+    values = pd.DataFrame(np.nan, index=data.index, columns=list(q.item_names))
+    av = cls.analysis_values(data)
+    for name in q.item_names:
+        item = q.item(name)
+        if item.type is not ItemType.MULTI and len(item.columns) == 1:
+            values[name] = av[item.columns[0]]
+    keep = rows if rows is not None else pd.Series(True, index=data.index)
+    mf = missingness_frame(values.loc[keep], cls.universe_mask().loc[keep], cls.nonresponse_mask().loc[keep],
+                           answered_mask=cls.mask(S.ANSWERED).loc[keep])
+
+    left: list[str] = []
+    if aux is None:
+        context = [c for c in q.context if c in data.columns and c not in (q.case_id, *exclude)]
+        aux_names, left = default_auxiliaries(data, context, mframe=mf)
+    else:
+        aux_names = list(aux)
+    bad = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=a,
+                   message="auxiliary is neither a data column nor an item",
+                   hint=did_you_mean(a, [*map(str, data.columns), *q.item_names]))
+           for a in aux_names if a not in data.columns and a not in q.item_names]
+    if bad:
+        raise SkipwiseError(bad)
+    if not aux_names:
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
+                                    message="no auxiliary variables to compare respondents with",
+                                    hint="name fully observed columns with --aux"))
+    # an item auxiliary contributes its analysis values (answers only; NaN for codes and skips)
+    aux_frame = pd.DataFrame({a: (values[a] if a in q.item_names else data[a]) for a in aux_names},
+                             index=data.index)
+    aux_frame = aux_frame.apply(lambda s: s if pd.api.types.is_numeric_dtype(s) else s.astype(str).where(s.notna()))
+
+    if little_items is not None:
+        l_items = list(little_items)
+    else:
+        numeric = [n for n in (items or q.item_names)
+                   if q.item(n).type in (ItemType.INTEGER, ItemType.NUMBER) and n in mf.items]
+        l_items = choose_little_items(mf, numeric) if numeric else []
+    return SurveyInputs(mframe=mf, aux=aux_frame, aux_left_out=tuple(left), little_items=tuple(l_items))
