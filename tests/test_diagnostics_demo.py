@@ -61,11 +61,6 @@ def test_strong_mar_item_is_flagged(demo):
     assert "life_sat" in _flagged(rep)
 
 
-@pytest.mark.xfail(strict=True, reason=(
-    "power, not the rule: on the default seed hours_week's nonresponse model has raw LR p ≈ 0.05 "
-    "(72 nonrespondents; the generator's effects are log-odds 0.6 for sex and ≤ 0.5 for district), "
-    "no smaller than that of some MCAR items, so no rule monotone in the p-value can flag it "
-    "without flagging MCAR items; strengthen the generator's effect to make this pass"))
 def test_every_mar_item_is_flagged(demo):
     s, _, rep = demo
     mar = {k for k, v in s.mechanisms.items() if v == "MAR"}

@@ -77,8 +77,8 @@ def nonresponse_probs(item: str, cov: Mapping[str, np.ndarray]) -> tuple[np.ndar
         rate = _expit(-3.4 + 0.03 * (cov["age"] - 50) + 0.5 * (cov["sex"] == 2)
                       + np.array([0.0, -0.3, 0.2, 0.6])[cov["district"].astype(int) - 1])
         return 0.5 * rate, 0.2 * rate, 0.3 * rate
-    if item == "hours_week":  # MAR: women and Fennick answer less often
-        rate = _expit(-3.0 + 0.6 * (cov["sex"] == 1) + np.array([0.5, 0.0, -0.3, -0.2])[cov["district"].astype(int) - 1])
+    if item == "hours_week":  # MAR: women and Fennick answer less often (strong enough to be seen)
+        rate = _expit(-3.2 + 1.2 * (cov["sex"] == 1) + np.array([0.8, 0.0, -0.4, -0.3])[cov["district"].astype(int) - 1])
         return 0.6 * rate, 0.1 * rate, 0.3 * rate
     if item in ("income", "income_band"):  # MNAR: the higher the true income, the more refusals
         shift = 0.0 if item == "income" else -0.8
