@@ -1,6 +1,8 @@
 """The diagnose step of a run: the same analysis as ``skipwise diagnose``, from plan options.
 
-It reuses the already computed classification instead of classifying again.
+It reuses the already computed classification instead of classifying again, and builds the
+in-scope frame, auxiliaries and Little's variables with the same library function as the command
+(:func:`skipwise.diagnostics.survey.survey_inputs`).
 """
 
 from __future__ import annotations
@@ -25,19 +27,6 @@ def _unknown(names: list[str], valid: list[str], what: str, plan: RunPlan, key: 
             for n in names if n not in valid]
 
 
-def _values(data: pd.DataFrame, q: Questionnaire, cl: Classification) -> pd.DataFrame:
-    """Analysis values of every single-column item (codes and skips made blank)."""
-    from skipwise.questionnaire import ItemType
-
-    values = pd.DataFrame(np.nan, index=data.index, columns=list(q.item_names))
-    av = cl.analysis_values(data)
-    for name in q.item_names:
-        item = q.item(name)
-        if item.type is not ItemType.MULTI and len(item.columns) == 1:
-            values[name] = av[item.columns[0]]
-    return values
-
-
 def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan: RunPlan, target: Path,
                   reporter: Reporter):
     """Run the diagnostics the plan asks for and write the workbook to ``target``.
@@ -49,13 +38,10 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
     Little, R. J. A. (1988). A test of missing completely at random for multivariate data with
     missing values. *JASA* 83(404), 1198-1202 (the test itself lives in ``skipwise.diagnostics``).
     """
-    from skipwise.classify import statuses as S
-    # The choice of default auxiliaries is the diagnose command's; shared, not copied.
-    from skipwise.cli.cmd_diagnose import default_auxiliaries
-    from skipwise.diagnostics import SuggestionThresholds, missingness_frame
-    from skipwise.diagnostics.report import DiagnoseOptions, choose_little_items, run_diagnostics
+    from skipwise.diagnostics import SuggestionThresholds
+    from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
+    from skipwise.diagnostics.survey import survey_inputs
     from skipwise.diagnostics.workbook import write_diagnostics_workbook
-    from skipwise.questionnaire import ItemType
 
     o: DiagnoseOptionsSpec = plan.diagnose  # type: ignore[assignment]
     items = list(q.item_names)
@@ -76,9 +62,7 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
     if problems:
         raise SkipwiseError(problems)
 
-    values = _values(data, q, cl)
-    rows = pd.Series(True, index=data.index)
-    resp_ind = None
+    rows = resp_ind = None
     if o.response is not None:
         wanted = [str(v) for v in (o.responded or ("1",))]
         col = data[o.response]
@@ -87,21 +71,12 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
             pd.to_numeric(pd.Series(wanted), errors="coerce").dropna())
         rows = resp_ind
         reporter.info(f"unit respondents: {int(rows.sum()):,} of {len(rows):,}")
-    mf = missingness_frame(values.loc[rows], cl.universe_mask().loc[rows], cl.nonresponse_mask().loc[rows],
-                           answered_mask=cl.mask(S.ANSWERED).loc[rows])
-    aux_names = list(o.aux) if o.aux else None
-    if aux_names is None:
-        context = [c for c in q.context if c in data.columns and c not in (q.case_id, o.weight, o.response)]
-        aux_names, left = default_auxiliaries(data, context)
-        if left:
-            reporter.info("context columns not used as auxiliaries: " + ", ".join(left)
-                          + " (name them in diagnose.aux to use them)")
-    if not aux_names:
-        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file),
-                                    line=plan.line("diagnose"), message="no auxiliary variables to compare "
-                                    "respondents with", hint="name fully observed columns in diagnose.aux"))
-    aux = pd.DataFrame({a: (values[a] if a in q.item_names else data[a]) for a in aux_names}, index=data.index)
-    aux = aux.apply(lambda s: s if pd.api.types.is_numeric_dtype(s) else s.astype(str).where(s.notna()))
+    inputs = survey_inputs(data, q, classification=cl, items=o.items, aux=o.aux, little_items=o.little_items,
+                           rows=rows, exclude=[c for c in (o.weight, o.response) if c])
+    if inputs.aux_left_out:
+        reporter.info("not used as auxiliaries: " + ", ".join(inputs.aux_left_out)
+                      + " (name them in diagnose.aux to use them)")
+    mf, aux = inputs.mframe, inputs.aux
     weights = None
     if o.weight:
         weights = pd.to_numeric(data[o.weight], errors="coerce").astype(float)
@@ -109,14 +84,9 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
             raise SkipwiseError(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=o.weight,
                                         file=str(plan.file), line=plan.line("diagnose", "weight"),
                                         message="weight column holds no numbers"))
-    if o.little_items:
-        l_items = list(o.little_items)
-    else:
-        numeric = [n for n in (o.items or q.item_names) if q.item(n).type in (ItemType.INTEGER, ItemType.NUMBER)]
-        l_items = choose_little_items(mf, [n for n in numeric if n in mf.items]) if numeric else []
     opts = DiagnoseOptions(
-        items=o.items, little_items=tuple(l_items), categorical=o.categorical,
-        sensitivity_item=o.sensitivity, threshold=o.threshold, deltas=o.deltas, alpha=o.alpha,
+        items=o.items, little_items=inputs.little_items, categorical=o.categorical,
+        sensitivity_item=o.sensitivity, threshold=o.threshold, deltas=o.deltas, alpha=o.alpha, adjust=o.adjust,
         thresholds=SuggestionThresholds(low_rate=o.low_rate, high_rate=o.high_rate, alpha=o.alpha,
                                         auc_weak=o.auc_weak, auc_strong=o.auc_strong))
     todo = list(o.items or mf.items)

@@ -32,7 +32,7 @@ REPORT_KEYS = {"weight": "str", "by": "names", "case_ids": "bool", "top_items": 
                "fault_rows": "int"}
 DIAGNOSE_KEYS = {"items": "names", "aux": "names", "categorical": "names", "little_items": "names",
                  "weight": "str", "response": "str", "responded": "values", "sensitivity": "str",
-                 "threshold": "float", "deltas": "floats", "alpha": "float", "low_rate": "float",
+                 "threshold": "float", "deltas": "floats", "alpha": "float", "adjust": "str", "low_rate": "float",
                  "high_rate": "float", "auc_weak": "float", "auc_strong": "float"}
 WEIGHTING_KEYS = {"plan": "path", "data": "path"}
 IMPUTATION_KEYS = {"plan": "path"}
@@ -67,6 +67,7 @@ class DiagnoseOptionsSpec:
     threshold: float | None = None
     deltas: tuple[float, ...] | None = None
     alpha: float = 0.05
+    adjust: str = "holm"
     low_rate: float = 0.05
     high_rate: float = 0.40
     auc_weak: float = 0.60
@@ -277,6 +278,9 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
     check = r.values(r.section(doc, "check", CHECK_KEYS), CHECK_KEYS, "check")
     report_on, report = r.switchable(doc, "report", REPORT_KEYS)
     diagnose_on, diagnose = r.switchable(doc, "diagnose", DIAGNOSE_KEYS)
+    if diagnose.get("adjust", "holm") not in ("holm", "bh", "none"):
+        r.add(ProblemCode.BAD_VALUE, f"'diagnose.adjust' must be holm, bh or none, found {diagnose['adjust']!r}",
+              r.lines.get(("diagnose", "adjust")), did_you_mean(diagnose["adjust"], ("holm", "bh", "none")))
     weighting = r.values(r.section(doc, "weighting", WEIGHTING_KEYS), WEIGHTING_KEYS, "weighting")
     if "weighting" in doc and isinstance(doc["weighting"], LineDict) and "plan" not in doc["weighting"]:
         r.add(ProblemCode.MISSING_KEY, "'weighting' needs 'plan' (the weighting plan file)", doc.key_line("weighting"),
