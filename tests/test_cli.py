@@ -14,7 +14,7 @@ from typer.testing import CliRunner
 from skipwise.cli import app
 
 runner = CliRunner()
-COMMANDS = ["draft", "check", "classify", "report", "diagnose", "weigh", "impute", "demo"]
+COMMANDS = ["draft", "check", "classify", "report", "diagnose", "weigh", "impute", "run", "demo"]
 
 Q = textwrap.dedent("""\
     format: 1
@@ -103,3 +103,20 @@ def test_real_subprocess_smoke(files):
     assert "bad.yaml:6" in proc.stderr and "integer" in proc.stderr and "Traceback" not in proc.stderr
     ok = subprocess.run([sys.executable, "-m", "skipwise", "--version"], capture_output=True, text=True)
     assert ok.returncode == 0 and ok.stdout.startswith("skipwise ")
+
+
+@pytest.mark.parametrize("command,extra", [
+    ("classify", []), ("report", []), ("diagnose", []),
+], ids=["classify", "report", "diagnose"])
+def test_output_never_replaces_an_input(files, command, extra):
+    tmp, q, data = files
+    before = data.read_bytes()
+    target = data if command == "classify" else data.with_suffix(".xlsx")
+    if command != "classify":
+        target.write_bytes(b"not a workbook")  # pretend the input were this file
+        data = target
+    result = runner.invoke(app, [command, str(data), "-q", str(q), "-o", str(target), "--overwrite", *extra])
+    assert result.exit_code == 1
+    assert "would replace an input file" in result.output
+    if command == "classify":
+        assert data.read_bytes() == before

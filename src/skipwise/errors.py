@@ -36,6 +36,7 @@ class ProblemCode(str, Enum):
     FILE_UNREADABLE = "file-unreadable"
     FILE_FORMAT = "file-format"
     OUTPUT_EXISTS = "output-exists"
+    OUTPUT_IS_INPUT = "output-is-input"
     # definition files (questionnaire, plans)
     YAML_SYNTAX = "yaml-syntax"
     FORMAT_VERSION = "format-version"

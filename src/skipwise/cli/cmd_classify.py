@@ -44,8 +44,9 @@ def classify_command(
         except ValueError:
             raise SkipwiseError(f"--form must be 'columns' or 'recoded', not {form!r}") from None
         faults_path = sibling(out, "_faults", ".csv")
-        check_writable(out, overwrite=overwrite)
-        check_writable(faults_path, overwrite=overwrite)
+        inputs = (data, questionnaire)
+        check_writable(out, overwrite=overwrite, inputs=inputs)
+        check_writable(faults_path, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
         cl = classify_with_progress(frame, q)
         meta = get_meta(frame)

@@ -82,7 +82,7 @@ def diagnose(
         from skipwise.io.atomic import check_writable
         from skipwise.questionnaire import load_questionnaire
 
-        check_writable(output, overwrite=overwrite)
+        check_writable(output, overwrite=overwrite, inputs=(data_path, questionnaire))
         if threshold is not None and sensitivity is None:
             raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
                                         message="--threshold needs --sensitivity ITEM",

@@ -50,7 +50,7 @@ def report_command(
     try:
         if out.suffix.lower() != ".xlsx":
             raise SkipwiseError(f"output {out} must end in .xlsx")
-        check_writable(out, overwrite=overwrite)
+        check_writable(out, overwrite=overwrite, inputs=(data, questionnaire))
         frame, q = load_inputs(data, questionnaire)
         cl = classify_with_progress(frame, q)
         path = write_item_report(

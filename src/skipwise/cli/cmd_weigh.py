@@ -51,7 +51,7 @@ def weigh_command(
             raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
         targets = [out] + ([parquet] if parquet != out else []) + [book]
         for path in targets:
-            check_writable(path, overwrite=overwrite)
+            check_writable(path, overwrite=overwrite, inputs=[data, plan, *([questionnaire] if questionnaire else [])])
         frame = read_survey(data)
         share = None
         if questionnaire is not None:

@@ -6,16 +6,22 @@ import contextlib
 import os
 import tempfile
 from pathlib import Path
-from typing import Iterator
+from typing import Iterable, Iterator
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["atomic_output", "check_writable"]
 
 
-def check_writable(path: str | Path, *, overwrite: bool = True) -> Path:
-    """Refuse to replace an existing output unless ``overwrite`` is set."""
+def check_writable(path: str | Path, *, overwrite: bool = True, inputs: Iterable[str | Path] = ()) -> Path:
+    """Refuse to replace an existing output unless ``overwrite`` is set, and never an input file."""
     path = Path(path)
+    for source in inputs:
+        if Path(source).resolve() == path.resolve():
+            raise SkipwiseError(Problem(
+                code=ProblemCode.OUTPUT_IS_INPUT, category=Category.USAGE, file=str(path),
+                message="the output would replace an input file",
+                hint="inputs are never modified: choose another output name"))
     if path.exists() and not overwrite:
         raise SkipwiseError(Problem(
             code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
