@@ -40,6 +40,15 @@ _LAZY = {
     "weigh": "skipwise.weighting",
     "little_mcar_test": "skipwise.diagnostics",
     "run_diagnostics": "skipwise.diagnostics",
+    "write_item_report": "skipwise.report",
+    "check_data": "skipwise.checkdata",
+    "draft_questionnaire": "skipwise.draft",
+    "impute_skipaware": "skipwise.impute",
+    "chained_impute": "skipwise.impute",
+    "hotdeck": "skipwise.impute",
+    "rubin_pool": "skipwise.impute",
+    "run_plan": "skipwise.pipeline",
+    "load_run_plan": "skipwise.pipeline",
 }
 
 __all__ = ["__version__", "Problem", "ProblemCode", "SkipwiseError", *_LAZY]
