@@ -32,12 +32,14 @@ __all__ = ["apply_breakoff", "last_activity"]
 
 
 def last_activity(kinds: np.ndarray) -> np.ndarray:
-    """Index of each case's last item with an answer, code of nonresponse or invalid value (-1: none)."""
-    active = kinds >= K.NONRESP  # NONRESP, SUBST, INVALID
-    p = kinds.shape[1]
-    any_active = active.any(axis=1)
-    last = p - 1 - np.argmax(active[:, ::-1], axis=1)
-    return np.where(any_active, last, -1)
+    """Index of each case's last item with an answer, code of nonresponse or invalid value (-1: none).
+
+    One pass over the item columns (contiguous in the Fortran-ordered matrix), never over cases.
+    """
+    last = np.full(kinds.shape[0], -1, dtype=np.int32)
+    for j in range(kinds.shape[1]):
+        np.copyto(last, np.int32(j), where=kinds[:, j] >= K.NONRESP)  # NONRESP, SUBST, INVALID
+    return last
 
 
 def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q: Questionnaire,
@@ -47,22 +49,28 @@ def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q:
     n, p = status.shape
     if n == 0 or p == 0:
         return
-    candidate = (status == code_of[S.ITEM_MISSING]) | (status == code_of[S.GATE_UNKNOWN])
-    last = last_activity(kinds)
-    after = np.arange(p)[None, :] > last[:, None]
-    trailing = candidate & after
+    missing, unknown, breakoff = code_of[S.ITEM_MISSING], code_of[S.GATE_UNKNOWN], code_of[S.BREAKOFF]
+
+    def candidate(j: int) -> np.ndarray:
+        col = status[:, j]
+        return (col == missing) | (col == unknown)
+
+    # `end` is the position after which a broken-off case's blank cells become break-offs.
+    end = last_activity(kinds)
     if spec.disposition:
         broke = data[spec.disposition].isin(list(spec.breakoff_codes)).to_numpy()
-        mask = trailing & broke[:, None]
     else:
-        broke = trailing.sum(axis=1) >= spec.min_run
-        mask = trailing & broke[:, None]
+        trailing = np.zeros(n, dtype=np.int32)
+        for j in range(p):
+            trailing += candidate(j) & (end < j)
+        broke = trailing >= spec.min_run
         if spec.last_item:
             reached = _position_of_last_item(data[spec.last_item], q)
             given = reached >= -1
-            by_paradata = candidate & (np.arange(p)[None, :] > reached[:, None])
-            mask = np.where(given[:, None], by_paradata, mask)
-    status[mask] = code_of[S.BREAKOFF]
+            end = np.where(given, reached, end)
+            broke = broke | given
+    for j in range(p):
+        status[:, j][candidate(j) & broke & (end < j)] = breakoff
 
 
 def _position_of_last_item(column: pd.Series, q: Questionnaire) -> np.ndarray:
