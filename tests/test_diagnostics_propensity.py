@@ -2,11 +2,19 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
+import pytest
+import statsmodels.api as sm
 from numpy.testing import assert_allclose
 
 from skipwise.diagnostics import r_indicator
+from skipwise.diagnostics.model import ROBUST_COV_TYPE, SE_MODEL_BASED, SE_ROBUST
+from skipwise.diagnostics.propensity import _groups
+
+DOCS = Path(__file__).resolve().parents[1] / "docs" / "diagnostics.md"
 
 
 def _sample(seed=7, n=600):
@@ -15,6 +23,18 @@ def _sample(seed=7, n=600):
     age = rng.uniform(18, 80, n)
     p = 1 / (1 + np.exp(-(-0.5 + 0.02 * (age - 50) + np.where(region == "c", -0.8, 0.2))))
     return pd.Series(rng.random(n) < p), pd.DataFrame({"region": region, "age": age})
+
+
+def _design(frame):
+    """Constant, region indicators (most frequent region as reference, as the code does) and age."""
+    ref = frame.region.value_counts().index[0]
+    dummies = pd.get_dummies(frame.region, prefix="region", prefix_sep="=", dtype=float)
+    return pd.concat([pd.Series(1.0, index=frame.index, name="const"),
+                      dummies.drop(columns=f"region={ref}"), frame.age], axis=1)
+
+
+def _weights(n, seed=5):
+    return pd.Series(np.random.default_rng(seed).uniform(0.5, 4.0, n))
 
 
 def test_r_indicator_is_one_minus_twice_sd():
@@ -32,7 +52,9 @@ def test_partial_indicators_by_hand():
     # Schouten, Shlomo & Skinner (2011): P_U(X,k) = √(N_k/N)(ρ̄_k − ρ̄), P_U(X) = √Σ_k P_U(X,k)² [memory]
     resp, frame = _sample()
     res = r_indicator(resp, frame, categorical=["region"])
-    rho = res.propensities
+    # propensities anchored outside the code: statsmodels Logit fitted here on the same design
+    rho = pd.Series(sm.Logit(resp.astype(float), _design(frame)).fit(disp=0).predict(), index=resp.index)
+    assert_allclose(res.propensities.to_numpy(), rho.to_numpy(), rtol=1e-7)
     cats = res.categories[res.categories.variable == "region"].set_index("category")
     for k in ["a", "b", "c"]:
         in_k = (frame.region == k).to_numpy()
@@ -88,3 +110,92 @@ def test_reused_nonresponse_model_equals_a_refit():
     assert_allclose(b.propensities.to_numpy(), a.propensities.to_numpy(), rtol=1e-6)
     assert_allclose(b.model["coef"].to_numpy(), a.model["coef"].to_numpy(), rtol=1e-5, atol=1e-8)
     assert_allclose(b.model["or_low"].to_numpy(), a.model["or_low"].to_numpy(), rtol=1e-5)
+
+
+def test_unweighted_model_is_labelled_model_based_and_equals_logit():
+    # statsmodels Logit fitted directly: model-based (inverse information) SEs and p-values
+    resp, frame = _sample(n=400)
+    res = r_indicator(resp, frame, categorical=["region"])
+    x = _design(frame)
+    direct = sm.Logit(resp.astype(float), x).fit(disp=0)
+    model = res.model.set_index("term").loc[list(x.columns)]
+    assert res.model_se == SE_MODEL_BASED
+    assert_allclose(model["std_err"], direct.bse, rtol=1e-6)
+    assert_allclose(model["p_value"], direct.pvalues, rtol=1e-5, atol=1e-12)
+
+
+def test_weighted_model_uses_robust_sandwich_as_documented():
+    resp, frame = _sample(n=500)
+    w = _weights(len(resp))
+    res = r_indicator(resp, frame, categorical=["region"], weights=w)
+    x = _design(frame)
+    model = res.model.set_index("term").loc[list(x.columns)]
+    assert res.model_se == SE_ROBUST and ROBUST_COV_TYPE == "HC0"
+    # the docs name this covariance and print the label the results carry
+    text = " ".join(DOCS.read_text(encoding="utf-8").split())
+    assert 'cov_type="HC0"' in text and SE_ROBUST in text
+    # statsmodels GLM fitted directly with the same cov_type on the design weights
+    direct = sm.GLM(resp.astype(float), x, family=sm.families.Binomial(), var_weights=w).fit(cov_type="HC0")
+    assert_allclose(model["coef"], direct.params, rtol=1e-6)
+    assert_allclose(model["std_err"], direct.bse, rtol=1e-6)
+    assert_allclose(model["p_value"], direct.pvalues, rtol=1e-5, atol=1e-12)
+    assert_allclose(res.propensities.to_numpy(), direct.predict(), rtol=1e-7)
+    # Binder (1983) linearization variance A⁻¹BA⁻¹, A = Σ d ρ(1−ρ) x xᵀ, B = Σ d² (y−ρ)² x xᵀ, by hand
+    xv, d, y, rho = x.to_numpy(float), w.to_numpy(), resp.to_numpy(float), res.propensities.to_numpy()
+    a_inv = np.linalg.inv(xv.T @ (xv * (d * rho * (1 - rho))[:, None]))
+    b = xv.T @ (xv * ((d * (y - rho)) ** 2)[:, None])
+    assert_allclose(model["std_err"], np.sqrt(np.diag(a_inv @ b @ a_inv)), rtol=1e-5)
+    # not the model-based SEs of the same weighted fit (the old, unlabelled ones)
+    naive = sm.GLM(resp.astype(float), x, family=sm.families.Binomial(), freq_weights=w * len(w) / w.sum()).fit()
+    assert not np.allclose(model["std_err"], naive.bse, rtol=1e-3)
+
+
+def test_robust_standard_errors_do_not_depend_on_the_weight_scale():
+    # sandwich A⁻¹BA⁻¹ is invariant to d → c·d (A scales by c, B by c²) (Binder 1983)
+    resp, frame = _sample(n=300)
+    w = _weights(len(resp))
+    a = r_indicator(resp, frame, categorical=["region"], weights=w)
+    b = r_indicator(resp, frame, categorical=["region"], weights=w * 250.0)
+    assert_allclose(b.model["std_err"].to_numpy(), a.model["std_err"].to_numpy(), rtol=1e-7)
+
+
+@pytest.mark.parametrize("values", [
+    [3.0, 1.0, 3.0, 2.0, 1.0, 1.0],
+    [0.5, 1e-7, 0.5, 250000.0, 1e-7],
+    [0.0, -0.0, 1.25, 0.0, 1.25],
+    [7.0, 7.0, 7.0],
+], ids=["integers", "fractions-and-exponents", "signed-zero", "one-value"])
+def test_numeric_groups_format_like_per_case_g(values):
+    # reference: Python's own "g" format applied to every case (the former per-case implementation)
+    s = pd.Series(values, index=pd.RangeIndex(10, 10 + len(values)), name="v")
+    got = _groups(s, False, 5)
+    expected = s.map(lambda v: f"{v:g}")
+    assert got.tolist() == expected.tolist()
+    assert got.index.equals(s.index)
+
+
+@pytest.mark.parametrize("weighted, label", [(False, SE_MODEL_BASED), (True, SE_ROBUST)],
+                         ids=["unweighted", "weighted"])
+def test_model_standard_errors_labelled_in_the_workbook(tmp_path, weighted, label):
+    # invented data: item x answered by the cases of _sample that "responded", nonresponse otherwise
+    from openpyxl import load_workbook
+
+    from skipwise.diagnostics import missingness_frame, run_diagnostics, write_diagnostics_workbook
+
+    resp, frame = _sample(n=200)
+    values = pd.DataFrame({"x": np.where(resp, frame.age.round(), np.nan)})
+    mframe = missingness_frame(values, pd.DataFrame({"x": True}, index=values.index),
+                               pd.DataFrame({"x": ~resp.to_numpy()}, index=values.index))
+    rep = run_diagnostics(mframe, frame[["region"]], weights=_weights(len(resp)) if weighted else None)
+    assert [r.model_se for r in rep.r_indicators] == [label]
+    path = tmp_path / "d.xlsx"
+    write_diagnostics_workbook(rep, path)
+    rows = list(load_workbook(path)["Representativeness"].iter_rows(values_only=True))
+    headers = [r for r in rows if r and "model_std_errors" in r]
+    assert len(headers) == 2  # R-indicator table and propensity model table
+    overall = dict(zip(headers[0], rows[rows.index(headers[0]) + 1]))
+    assert overall["model_std_errors"] == label
+    start = rows.index(headers[1])
+    coefs = [dict(zip(headers[1], r)) for r in rows[start + 1:start + 1 + len(rep.r_indicators[0].model)]]
+    assert {c["model_std_errors"] for c in coefs} == {label}
+    assert_allclose([c["std_err"] for c in coefs], rep.r_indicators[0].model["std_err"], rtol=1e-12)

@@ -16,7 +16,16 @@ from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit",
-           "coefficient_table", "fitted_probabilities", "unstable_terms", "UNSTABLE_NOTE"]
+           "coefficient_table", "fitted_probabilities", "unstable_terms", "UNSTABLE_NOTE",
+           "SE_MODEL_BASED", "SE_ROBUST", "ROBUST_COV_TYPE"]
+
+#: Label of standard errors from the inverse information matrix (unweighted maximum likelihood).
+SE_MODEL_BASED = "model-based (maximum likelihood, unweighted)"
+#: statsmodels covariance type used with design weights (sandwich without small-sample factor).
+ROBUST_COV_TYPE = "HC0"
+#: Label of standard errors of a design-weighted fit.
+SE_ROBUST = ("robust sandwich (HC0) with design weights: design-based for a single-stage sample "
+             "drawn with replacement; strata, clusters and finite-population corrections ignored")
 
 
 def auc_mann_whitney(scores: np.ndarray | pd.Series, labels: np.ndarray | pd.Series) -> float:
@@ -101,9 +110,22 @@ def _collinear_columns(x: np.ndarray, names: list[str]) -> list[str]:
 def fit_logit(y: pd.Series, x: pd.DataFrame, *, weights: pd.Series | None = None):
     """Fit the logistic regression of ``y`` on ``x``; return (result, notes).
 
-    Unweighted: statsmodels ``Logit``.  Weighted: a binomial GLM with
-    frequency weights rescaled to sum to n, which gives the weighted
-    (pseudo-)maximum-likelihood estimates.
+    Unweighted: statsmodels ``Logit``, with model-based standard errors
+    (:data:`SE_MODEL_BASED`).  Weighted: a binomial GLM with the weights
+    d_i (rescaled to sum to n; neither estimates nor standard errors depend
+    on that scale) as variance weights, which gives the weighted
+    (pseudo-)maximum-likelihood estimates solving Σ d_i (y_i − ρ_i) x_i = 0,
+    and the robust sandwich covariance ``cov_type="HC0"`` (:data:`SE_ROBUST`)
+    A⁻¹ B A⁻¹, A = Σ d_i ρ_i(1 − ρ_i) x_i x_iᵀ, B = Σ d_i² (y_i − ρ_i)² x_i x_iᵀ.
+    That is the linearization variance of a single-stage with-replacement
+    design; strata and clusters are not taken into account.
+
+    References
+    ----------
+    Binder, D. A. (1983). On the variances of asymptotically normal estimators
+    from complex surveys. *International Statistical Review*, 51, 279–292.
+    White, H. (1980). A heteroskedasticity-consistent covariance matrix estimator
+    and a direct test for heteroskedasticity. *Econometrica*, 48, 817–838.
     """
     xv = x.to_numpy(float)
     if np.linalg.matrix_rank(xv) < xv.shape[1]:
@@ -122,7 +144,8 @@ def fit_logit(y: pd.Series, x: pd.DataFrame, *, weights: pd.Series | None = None
             else:
                 w = weights.to_numpy(float)
                 w = w * len(w) / w.sum()
-                res = sm.GLM(y.astype(float), x, family=sm.families.Binomial(), freq_weights=w).fit(maxiter=200)
+                res = sm.GLM(y.astype(float), x, family=sm.families.Binomial(),
+                             var_weights=w).fit(maxiter=200, cov_type=ROBUST_COV_TYPE)
         except (np.linalg.LinAlgError, ValueError) as exc:
             raise SkipwiseError(Problem(
                 code=ProblemCode.SINGULAR, category=Category.DATA,

@@ -17,7 +17,8 @@ from scipy import special
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.diagnostics.model import (
-    UNSTABLE_NOTE, coefficient_table, design_matrix, fit_logit, fitted_probabilities, unstable_terms,
+    SE_MODEL_BASED, SE_ROBUST, UNSTABLE_NOTE, coefficient_table, design_matrix, fit_logit, fitted_probabilities,
+    unstable_terms,
 )
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
@@ -55,7 +56,13 @@ class RIndicatorResult:
         ``response_rate``, ``mean_propensity``, ``partial_unconditional``
         (signed; negative = under-represented among respondents).
     model
-        Coefficient table of the propensity model.
+        Coefficient table of the propensity model: ``term``, ``coef``,
+        ``std_err``, ``p_value``, ``odds_ratio``, ``or_low``, ``or_high``.
+    model_se
+        How ``std_err``, ``p_value`` and the limits of ``model`` were computed:
+        :data:`~skipwise.diagnostics.model.SE_MODEL_BASED` without weights,
+        :data:`~skipwise.diagnostics.model.SE_ROBUST` (sandwich, ``HC0``) with
+        design weights.
     notes
         Remarks.
     """
@@ -72,6 +79,7 @@ class RIndicatorResult:
     partial: pd.DataFrame
     categories: pd.DataFrame
     model: pd.DataFrame
+    model_se: str
     notes: tuple[str, ...]
 
 
@@ -80,7 +88,10 @@ def _groups(s: pd.Series, is_cat: bool, bins: int) -> pd.Series:
         return s.astype(str)
     x = s.astype(float)
     if x.nunique() <= bins:
-        return x.map(lambda v: f"{v:g}")
+        # format each distinct value once; factorizing the bit patterns keeps −0.0 apart from 0.0, as before
+        codes, uniques = pd.factorize(np.ascontiguousarray(x.to_numpy(float)).view(np.int64))
+        labels = np.array([f"{v:g}" for v in uniques.view(np.float64)], dtype=object)
+        return pd.Series(labels[codes], index=s.index, name=s.name, dtype="str")
     q = pd.qcut(x, bins, duplicates="drop")
     return q.astype(str)
 
@@ -119,7 +130,9 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
 
     Notes
     -----
-    ρ̂ from a (design-weighted) logistic regression; with N = Σ d_i and
+    ρ̂ from a (design-weighted) logistic regression.  Its standard errors are
+    model-based without weights and robust sandwich (``HC0``) with design
+    weights (see :func:`~skipwise.diagnostics.model.fit_logit` and ``model_se``).  With N = Σ d_i and
     ρ̄ = Σ d_i ρ̂_i / N, S(ρ̂) = √(Σ d_i (ρ̂_i − ρ̄)² / (N − 1)) and R = 1 − 2 S(ρ̂).
     Unconditional partial indicator of a variable X with categories k:
     P_U(X, k) = √(N_k/N) (ρ̄_k − ρ̄) and P_U(X) = √(Σ_k (N_k/N)(ρ̄_k − ρ̄)²), the
@@ -208,5 +221,5 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         partial=pd.DataFrame(part_rows, columns=["variable", "partial_unconditional"]),
         categories=pd.DataFrame(cat_rows, columns=["variable", "category", "n", "share", "response_rate",
                                                    "mean_propensity", "partial_unconditional"]),
-        model=model, notes=tuple(notes),
+        model=model, model_se=SE_MODEL_BASED if weights is None else SE_ROBUST, notes=tuple(notes),
     )

@@ -234,9 +234,10 @@ def _representativeness(ws, rep: DiagnosticsReport) -> None:
     overall = pd.DataFrame([{"response": r.target, "n": r.n, "responded": r.n_responded,
                              "response_rate": r.response_rate, "sd_propensity": r.sd_propensity,
                              "r_indicator": r.r_indicator, "max_abs_bias": r.max_abs_bias,
+                             "model_std_errors": r.model_se,
                              "notes": " ".join(r.notes)} for r in rep.r_indicators],
                            columns=["response", "n", "responded", "response_rate", "sd_propensity",
-                                    "r_indicator", "max_abs_bias", "notes"])
+                                    "r_indicator", "max_abs_bias", "model_std_errors", "notes"])
     ws.cell(row=2, column=1, value="max_abs_bias: upper bound (1 − R)/(2ρ̄) on the absolute standardized bias of a "
                                    "respondent mean. Category values < 0: under-represented among respondents.")
     row = _table(ws, overall, 4, formats={"response_rate": PCT, "sd_propensity": "0.0000", "r_indicator": "0.000",
@@ -250,8 +251,16 @@ def _representativeness(ws, rep: DiagnosticsReport) -> None:
         cats = cats.rename(columns={"partial_unconditional_variable": "partial_variable",
                                     "partial_unconditional": "partial_category"})
     ws.cell(row=row, column=1, value="Unconditional partial indicators by variable and category").font = _BOLD
-    _table(ws, cats, row + 1, formats={"partial_variable": "0.0000", "partial_category": "0.0000", "share": PCT,
-                                        "response_rate": PCT, "mean_propensity": "0.000"})
+    row = _table(ws, cats, row + 1, formats={"partial_variable": "0.0000", "partial_category": "0.0000",
+                                              "share": PCT, "response_rate": PCT, "mean_propensity": "0.000"})
+    ws.cell(row=row, column=1, value="Propensity models (odds ratios of responding with 95% limits); "
+                                     "model_std_errors says how std_err, p_value and the limits were computed"
+            ).font = _BOLD
+    models = [r.model.assign(response=r.target, model_std_errors=r.model_se) for r in rep.r_indicators if len(r.model)]
+    coefs = pd.concat(models, ignore_index=True) if models else pd.DataFrame({"response": []})
+    coefs = coefs[["response", *[c for c in coefs.columns if c != "response"]]]
+    _table(ws, coefs, row + 1, formats={c: NUM for c in ("coef", "std_err", "odds_ratio", "or_low", "or_high")}
+           | {"p_value": P})
     _widths(ws, {1: 24, 8: 14})
 
 
