@@ -185,3 +185,20 @@ def test_write_unknown_extension(tmp_path):
         write_survey(pd.DataFrame({"a": [1]}), tmp_path / "out.sas7bdat")
     assert info.value.codes == [ProblemCode.FILE_FORMAT]
     assert os.listdir(tmp_path) == []
+
+
+def test_writer_modules_keep_the_public_import_path(tmp_path):
+    # The writers are split by format family; the documented import path stays, with one
+    # MetadataWarning class wherever it is imported from.
+    import skipwise.io as io_package
+    from skipwise.io.writers import MetadataWarning, write_survey as direct
+    from skipwise.io.writers_common import MetadataWarning as common_warning
+
+    assert direct is write_survey and MetadataWarning is io_package.MetadataWarning is common_warning
+    meta = SurveyMeta(missing_values={"x": [-1, -2, -3, -4]})
+    df = pd.DataFrame({"x": [1.0, -1.0, 2.0]})
+    with pytest.warns(MetadataWarning, match="wrote the range"):  # SPSS: >3 codes become one range
+        direct(df, tmp_path / "x.sav", meta)
+    from skipwise.io import get_meta
+
+    assert get_meta(read_survey(tmp_path / "x.sav")).missing_ranges == {"x": [(-4.0, -1.0)]}

@@ -80,6 +80,25 @@ def test_kish_errors():
     assert info.value.codes == [ProblemCode.BAD_WEIGHTS]
 
 
+@pytest.mark.parametrize("fn", [kish_deff, effective_n, weight_cv, weight_summary],
+                         ids=["kish_deff", "effective_n", "weight_cv", "weight_summary"])
+@pytest.mark.parametrize("weights, fragment", [
+    (["a"], "'a'"),
+    ([1.0, "x", 2.0], "'x'"),
+    ([1.0, None], "missing"),
+    ([1.0, np.inf], "finite"),
+    ([1.0, -2.0], "non-negative"),
+    ([0.0, 0.0], "no positive weight"),
+], ids=["text", "text-among-numbers", "none", "infinite", "negative", "all-zero"])
+def test_weight_diagnostics_reject_non_weights(fn, weights, fragment):
+    # Kish (1992): deff and n_eff are defined for positive weights only; anything else is a
+    # user error, never a ValueError/TypeError from numpy.
+    with pytest.raises(SkipwiseError) as info:
+        fn(weights)
+    assert info.value.codes == [ProblemCode.BAD_WEIGHTS]
+    assert fragment in info.value.problems[0].message
+
+
 def test_class_without_carrier_is_infeasible():
     codes = np.array([0, 0, 1, 1])
     with pytest.raises(SkipwiseError) as info:
@@ -114,6 +133,24 @@ def test_trim_then_keep_total():
     res = trim_weights(w, median_multiple=3.5)
     assert res.cap == 3.5 and res.weights.max() <= 3.5 * (1 + 1e-6)
     assert_allclose(res.weights.sum(), w.sum(), rtol=1e-12)
+    # Potter (1990) [memory]: the weight cut off is redistributed over the untrimmed cases in
+    # proportion to their weights.  By hand: 20 is capped at 3.5 exactly and the nine others
+    # share the rest of the total 29, (29 - 3.5)/9 each.
+    assert_allclose(res.weights, [25.5 / 9] * 9 + [3.5], rtol=1e-12)
+    assert res.iterations == 1 and res.cases_capped == 1 and res.weight_removed_first_pass == 16.5
+
+
+def test_trim_spreads_excess_over_uncapped_cases_only():
+    # Worked by hand (method: Potter 1990 [memory]), total 30, cap 7:
+    # round 1 [1,2,3,4,7] -> others x 23/10 = [2.3, 4.6, 6.9, 9.2]; 9.2 > 7 is capped;
+    # round 2 [2.3,4.6,6.9,7,7] -> others x 16/13.8 = [2.667, 5.333, 8]; 8 > 7 is capped;
+    # round 3 [2.667,5.333,7,7,7] -> others x 9/8 = [3, 6].
+    w = np.array([1.0, 2.0, 3.0, 4.0, 20.0])
+    res = trim_weights(w, cap=7.0)
+    assert_allclose(res.weights, [3.0, 6.0, 7.0, 7.0, 7.0], rtol=1e-12)
+    assert res.iterations == 3 and res.max_after == 7.0
+    # the capped cases sit exactly at the cap; the uncapped keep their ratio (1 : 2 here)
+    assert res.weights[1] / res.weights[0] == pytest.approx(2.0, rel=1e-12)
     with pytest.raises(SkipwiseError) as info:
         trim_weights(w, cap=1.0)
     assert info.value.codes == [ProblemCode.INFEASIBLE]

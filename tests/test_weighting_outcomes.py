@@ -101,3 +101,29 @@ def test_count_outcomes_is_mergeable():
     a, b = count_outcomes(cats[:3], np.arange(1, 4)), count_outcomes(cats[3:], np.arange(4, 7))
     assert full == {k: a[k] + b[k] for k in full}
     assert full["I"] == 3.0 and full["NE"] == 4.0
+
+
+@pytest.mark.parametrize("cats, fragment", [
+    (["I", "breakoff", "R", "breakoff"], "'breakoff' (2 case(s))"),
+    (["I", np.nan, "NC"], "missing (1 case(s))"),
+    (["I", "X", "X", "X", np.nan], "'X' (3 case(s)), missing (1 case(s))"),
+], ids=["breakoff", "missing", "unknown-and-missing"])
+def test_count_outcomes_refuses_cases_outside_the_categories(cats, fragment):
+    # Every case counts in some rate's denominator (AAPOR Standard Definitions: I, P, R, NC, O,
+    # UH, UO, NE); a dropped case would silently raise RR1, so it must be an error.
+    with pytest.raises(SkipwiseError) as info:
+        count_outcomes(pd.Series(cats, dtype=object))
+    assert info.value.codes == [ProblemCode.BAD_DATA]
+    problem = info.value.problems[0]
+    assert fragment in problem.message
+    assert ("breakoff_to" in problem.hint) == ("breakoff" in cats)
+
+
+def test_breakoffs_mapped_as_the_plan_says_are_counted():
+    # The weighting pipeline replaces "breakoff" by the plan's breakoff_to (default R, the
+    # standard's 2.10 "refusal and break-off") before counting.
+    share = pd.Series([0.9, 0.6, 0.2, 0.1])
+    split = interview_outcome(share).replace({"breakoff": "R"})
+    counts = count_outcomes(split)
+    assert (counts["I"], counts["P"], counts["R"]) == (1.0, 1.0, 2.0)
+    assert sum(counts.values()) == len(share)

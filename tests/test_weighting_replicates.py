@@ -94,3 +94,29 @@ def test_single_psu_stratum_is_an_error():
     with pytest.raises(SkipwiseError) as info:
         jackknife_design(df, psu="u", strata="h")
     assert info.value.codes == [ProblemCode.INFEASIBLE]
+
+
+def test_estimate_labels_are_computed_per_distinct_value(monkeypatch):
+    # Weighted proportions by hand (the weighted-mean formula Σwy/Σw of a 0/1 variable):
+    # respondents' answers 1, 1.0, "2", 2, -9 (special code), missing; weights 1..6.
+    # Labels 1 and 1.0 are one category, "2" and 2 another; -9 and the missing case are left out.
+    import skipwise.weighting.replicates as rep
+
+    calls = []
+    real = rep.category_label
+    monkeypatch.setattr(rep, "category_label", lambda v: calls.append(v) or real(v))
+    n_cases = 600
+    answers = pd.Series(np.tile(np.array([1, 1.0, "2", 2, -9, None], dtype=object), n_cases // 6))
+    df = pd.DataFrame({"q": answers, "y": np.tile([1.0, 2.0, 3.0, 4.0, 99.0, np.nan], n_cases // 6)})
+    w = np.tile(np.arange(1.0, 7.0), n_cases // 6)
+    design = jackknife_design(df.iloc[:6])
+    reps = np.tile(w[:, None], (1, design.count))
+    table = replicate_standard_errors(df, np.ones(n_cases, dtype=bool), w, reps, design, means=("y",),
+                                      proportions=("q",), exclude_values=(-9, 99))
+    assert len(calls) <= 2 + 2 * 6  # the exclusions, then each column's distinct values, not 600 cases
+    props = table[table["kind"] == "proportion"].set_index("category")["estimate"]
+    assert list(props.index) == ["1", "2"]
+    assert_allclose(props.to_numpy(), [(1 + 2) / 10, (3 + 4) / 10], rtol=1e-12)
+    mean = table.loc[table["kind"] == "mean", "estimate"].iloc[0]
+    assert_allclose(mean, (1 * 1 + 2 * 2 + 3 * 3 + 4 * 4) / 10, rtol=1e-12)
+    assert table.loc[table["kind"] == "mean", "n"].iloc[0] == 4 * n_cases // 6

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
+import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
@@ -12,11 +13,27 @@ __all__ = ["kish_deff", "effective_n", "weight_cv", "weight_summary", "SUMMARY_P
 SUMMARY_PERCENTILES: tuple[float, ...] = (1.0, 5.0, 25.0, 75.0, 95.0, 99.0)
 
 
+def _first_non_number(weights: object) -> object:
+    """The first value that is not a number (for the message), found without a loop over cases."""
+    try:
+        values = pd.Series(np.asarray(weights, dtype=object).ravel(), dtype=object)
+    except (TypeError, ValueError):
+        return weights
+    bad = values.notna() & pd.to_numeric(values, errors="coerce").isna()
+    return values[bad].iloc[0] if bad.any() else weights
+
+
 def _positive(weights: object) -> np.ndarray:
-    w = np.asarray(weights, dtype=float).ravel()
-    if np.isnan(w).any() or (w < 0).any():
+    try:
+        w = np.asarray(weights, dtype=float).ravel()
+    except (TypeError, ValueError):  # text such as ['a'], or objects that are no numbers
         raise SkipwiseError(Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA,
-                                    message="weights must be non-negative numbers without missing values"))
+                                    message="weights must be numbers; got values that are not "
+                                            f"(e.g. {_first_non_number(weights)!r})",
+                                    hint="convert the weight column to numbers first")) from None
+    if np.isnan(w).any() or (w < 0).any() or np.isinf(w).any():
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA,
+                                    message="weights must be finite, non-negative numbers without missing values"))
     w = w[w > 0]
     if w.size == 0:
         raise SkipwiseError(Problem(code=ProblemCode.BAD_WEIGHTS, category=Category.DATA,

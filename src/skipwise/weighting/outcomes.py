@@ -186,12 +186,33 @@ def count_outcomes(categories: pd.Series, weights: np.ndarray | pd.Series | None
     Parameters
     ----------
     categories
-        Per-case outcome category (one of :data:`OUTCOME_CATEGORIES`).
+        Per-case outcome category (one of :data:`OUTCOME_CATEGORIES`).  A
+        ``"breakoff"`` from :func:`interview_outcome` must first be replaced by
+        the category the plan assigns it (``breakoff_to``: R, P or O).
     weights
         Optional per-case weights (e.g. base weights for weighted rates).
+
+    Raises
+    ------
+    SkipwiseError
+        ``bad-data`` naming every value that is not an outcome category
+        (including missing ones) with its number of cases: no case is dropped
+        silently, since a dropped case would change every rate.
     """
     w = np.ones(len(categories)) if weights is None else np.asarray(weights, dtype=float)
-    cats = pd.Categorical(categories.astype(object), categories=list(OUTCOME_CATEGORIES))
-    codes = cats.codes
-    sums = np.bincount(codes[codes >= 0], weights=w[codes >= 0], minlength=len(OUTCOME_CATEGORIES))
+    codes = pd.Index(list(OUTCOME_CATEGORIES), dtype=object).get_indexer(categories.astype(object))
+    if (codes < 0).any():
+        raw = categories.astype(object)[codes < 0]
+        counts = raw.value_counts(dropna=False)
+        listing = ", ".join(f"{'missing' if pd.isna(v) else repr(v)} ({int(n)} case(s))"
+                            for v, n in counts.iloc[:10].items())
+        if len(counts) > 10:
+            listing += f" and {len(counts) - 10} more value(s)"
+        hint = (f"use one of {', '.join(OUTCOME_CATEGORIES)}"
+                + ("; map 'breakoff' to R, P or O first (the plan's interview_split.breakoff_to)"
+                   if "breakoff" in set(counts.index) else ""))
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item="outcome",
+                                    message=f"{int((codes < 0).sum())} case(s) have no outcome category: {listing}",
+                                    hint=hint))
+    sums = np.bincount(codes, weights=w, minlength=len(OUTCOME_CATEGORIES))
     return {k: float(v) for k, v in zip(OUTCOME_CATEGORIES, sums)}

@@ -1,21 +1,25 @@
-"""The weighting plan file (YAML): loading, validation with line numbers, typed specs.
+"""The weighting plan file (YAML): loading and validation with line numbers.
 
-The keys are documented in ``docs/weighting.md``.  Every problem found is
-reported together, each with the file and line, and an unknown key with the
-nearest valid key.
+The keys are documented in ``docs/weighting.md``; the typed specs built here
+live in :mod:`skipwise.weighting.specs`.  Every problem found is reported
+together, each with the file and line: an unknown key with the nearest valid
+key, a key given twice (which YAML would otherwise resolve silently by keeping
+the second) as ``duplicate-name``.
 """
 
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any
 
-import yaml
-
-from skipwise.errors import Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
+from skipwise.errors import ProblemCode, ProblemList, SkipwiseError, did_you_mean
+from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
 from skipwise.weighting.outcomes import OUTCOME_CATEGORIES
+from skipwise.weighting.specs import (
+    CalibrationSpec, DispositionSpec, EstimateSpec, NonresponseSpec, ReplicateSpec, SplitSpec, TrimSpec,
+    WeightingPlan, nearest_line,
+)
 
 __all__ = ["WeightingPlan", "DispositionSpec", "SplitSpec", "NonresponseSpec", "CalibrationSpec",
            "TrimSpec", "ReplicateSpec", "EstimateSpec", "load_plan", "parse_plan"]
@@ -23,145 +27,26 @@ __all__ = ["WeightingPlan", "DispositionSpec", "SplitSpec", "NonresponseSpec", "
 PLAN_FORMAT = 1
 
 
-@dataclass(frozen=True, kw_only=True)
-class SplitSpec:
-    """Complete / partial / break-off from the share of applicable items answered."""
+# --- line map ------------------------------------------------------------------------------
 
-    applies_to: tuple[str, ...] = ("I", "P")
-    breakoff_below: float = 0.5
-    complete_above: float = 0.8
-    breakoff_to: str = "R"
+def _line_map(doc: Any) -> tuple[dict[tuple, int], list[tuple[tuple, int]]]:
+    """Key path -> line of every key and list entry, and (path, line) of every repeated key."""
+    lines: dict[tuple, int] = {}
+    duplicates: list[tuple[tuple, int]] = []
 
+    def walk(node: Any, path: tuple) -> None:  # the plan's keys, never the data's cases
+        if isinstance(node, LineDict):
+            duplicates.extend((path + (key,), line) for key, line in node.duplicate_keys)
+            for key, value in node.items():
+                lines[path + (key,)] = node.key_line(key)
+                walk(value, path + (key,))
+        elif isinstance(node, LineList):
+            for i, value in enumerate(node):
+                lines[path + (i,)] = node.item_line(i)
+                walk(value, path + (i,))
 
-@dataclass(frozen=True, kw_only=True)
-class DispositionSpec:
-    column: str
-    codes: Mapping[str, str]  # normalised disposition label -> outcome category
-    split: SplitSpec | None = None
-    partials_respond: bool = True
-
-
-@dataclass(frozen=True, kw_only=True)
-class NonresponseSpec:
-    method: str = "classes"
-    classes: tuple[str, ...] = ()
-    min_respondents: int = 20
-    max_factor: float = 2.0
-    covariates: tuple[str, ...] = ()
-    categorical: tuple[str, ...] = ()
-    propensity_use: str = "inverse"
-    propensity_classes: int = 5
-
-
-@dataclass(frozen=True, kw_only=True)
-class CalibrationSpec:
-    method: str = "rake"
-    margins: Mapping[str, Mapping[Any, float]] = field(default_factory=dict)
-    totals: Mapping[str, float] = field(default_factory=dict)
-    bounds: tuple[float, float] = (0.5, 2.0)
-    tolerance: float = 1e-10
-    max_iterations: int = 1000
-
-
-@dataclass(frozen=True, kw_only=True)
-class TrimSpec:
-    median_multiple: float | None = None
-    percentile: float | None = None
-    tolerance: float = 1e-6
-    max_iterations: int = 50
-
-
-@dataclass(frozen=True, kw_only=True)
-class ReplicateSpec:
-    method: str = "jackknife"
-    psu: str | None = None
-    strata: str | None = None
-    count: int = 200
-    seed: int = 12345
-
-
-@dataclass(frozen=True, kw_only=True)
-class EstimateSpec:
-    means: tuple[str, ...] = ()
-    proportions: tuple[str, ...] = ()
-    exclude_values: tuple[Any, ...] = ()
-
-
-@dataclass(frozen=True, kw_only=True)
-class WeightingPlan:
-    """A validated weighting plan; ``lines`` maps key paths to plan-file lines."""
-
-    file: str | None
-    dispositions: DispositionSpec
-    case_id: str | None = None
-    e: float | None = None
-    base_probability: str | None = None
-    base_weight: str | None = None
-    eligibility_classes: tuple[str, ...] | None = None
-    nonresponse: NonresponseSpec | None = None
-    calibration: CalibrationSpec | None = None
-    trimming: TrimSpec | None = None
-    replicates: ReplicateSpec | None = None
-    estimates: EstimateSpec | None = None
-    workbook: str | None = None
-    prefix: str = "wt_"
-    lines: Mapping[tuple, int] = field(default_factory=dict)
-
-    def line(self, *path: object) -> int | None:
-        """Plan-file line of a key path, or of its nearest known parent."""
-        p = tuple(path)
-        while p:
-            if p in self.lines:
-                return self.lines[p]
-            p = p[:-1]
-        return None
-
-    def locate(self, variable: str, category: object | None) -> dict:
-        """Location of a calibration margin (or one of its categories) for problem records."""
-        from skipwise.weighting.margins import category_label
-
-        line = None
-        if category is not None:
-            for key, ln in self.lines.items():
-                if key[:3] == ("calibration", "margins", variable) and len(key) == 4 \
-                        and category_label(key[3]) == category_label(category):
-                    line = ln
-        return {"file": self.file, "line": line or self.line("calibration", "margins", variable)}
-
-
-# --- YAML with line numbers -----------------------------------------------------------------
-
-def _compose(text: str, file: str | None) -> tuple[Any, dict[tuple, int]]:
-    loader = yaml.SafeLoader(text)
-    try:
-        node = loader.get_single_node()
-        if node is None:
-            return None, {}
-        lines: dict[tuple, int] = {}
-
-        def walk(n: yaml.Node, path: tuple) -> None:
-            if isinstance(n, yaml.MappingNode):
-                for k, v in n.value:
-                    key = loader.construct_object(k, deep=True)
-                    lines[path + (key,)] = k.start_mark.line + 1
-                    walk(v, path + (key,))
-            elif isinstance(n, yaml.SequenceNode):
-                for i, v in enumerate(n.value):
-                    lines[path + (i,)] = v.start_mark.line + 1
-                    walk(v, path + (i,))
-
-        walk(node, ())
-        data = loader.construct_document(node)
-        return data, lines
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        raise SkipwiseError(Problem(code=ProblemCode.YAML_SYNTAX, file=file,
-                                    line=mark.line + 1 if mark else None,
-                                    column=mark.column + 1 if mark else None,
-                                    message=f"not valid YAML: {getattr(exc, 'problem', exc)}",
-                                    hint="check indentation, colons and quotes")) from None
-    finally:
-        loader.dispose()
+    walk(doc, ())
+    return lines, sorted(duplicates, key=lambda d: d[1])
 
 
 class _Checker:
@@ -170,11 +55,7 @@ class _Checker:
         self.lines = lines
 
     def line(self, path: tuple) -> int | None:
-        while path:
-            if path in self.lines:
-                return self.lines[path]
-            path = path[:-1]
-        return None
+        return nearest_line(self.lines, path)
 
     def add(self, code: ProblemCode, path: tuple, message: str, hint: str | None = None) -> None:
         self.problems.add(code, message, line=self.line(path), item=".".join(map(str, path)) or None, hint=hint)
@@ -305,7 +186,7 @@ def _margins(c: _Checker, raw: Any, path: tuple) -> dict:
                       "YAML reads yes/no/on/off as true/false: quote the key, e.g. \"yes\": 120")
             if isinstance(tot, bool) or not isinstance(tot, (int, float)) or tot < 0:
                 c.add(ProblemCode.BAD_VALUE, path + (var, cat), f"target of {var}={cat} must be a non-negative number")
-        out[str(var)] = cats
+        out[str(var)] = dict(cats)
     totals = {v: sum(float(t) for t in cs.values() if isinstance(t, (int, float)) and not isinstance(t, bool))
               for v, cs in out.items()}
     if len(totals) > 1 and max(totals.values()) - min(totals.values()) > 1e-6 * max(max(totals.values()), 1.0):
@@ -316,8 +197,18 @@ def _margins(c: _Checker, raw: Any, path: tuple) -> dict:
 
 
 def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | None = None) -> WeightingPlan:
-    """Validate a plan already read from YAML (``raw``) and build a :class:`WeightingPlan`."""
-    c = _Checker(file, lines or {})
+    """Validate a plan already read from YAML (``raw``) and build a :class:`WeightingPlan`.
+
+    ``raw`` read by :func:`skipwise.questionnaire.yamlread.load_yaml_text` knows
+    the line of every key, used when ``lines`` is not given, and its repeated
+    keys, reported as ``duplicate-name``.
+    """
+    found, duplicates = _line_map(raw)
+    lines = found if lines is None else lines
+    c = _Checker(file, lines)
+    for path, line in duplicates:
+        c.problems.add(ProblemCode.DUPLICATE_NAME, f"key '{path[-1]}' is given twice", line=line,
+                       item=".".join(map(str, path)), hint="keep one of them (the second would silently win)")
     top = c.mapping(raw, (), TOP_KEYS, required=("format", "dispositions"))
     if "format" in top and top["format"] != PLAN_FORMAT:
         c.add(ProblemCode.FORMAT_VERSION, ("format",), f"plan format {top['format']!r} is not supported",
@@ -414,18 +305,14 @@ def load_plan(path: str | Path | None = None, *, text: str | None = None) -> Wei
     Raises
     ------
     SkipwiseError
-        ``file-not-found``, ``yaml-syntax``, or every plan problem at once
-        (unknown keys with the nearest valid key, missing keys, bad values),
-        each with its line.
+        ``file-not-found``, ``file-unreadable`` (a folder, or text that is not
+        UTF-8), ``yaml-syntax``, or every plan problem at once (unknown keys with
+        the nearest valid key, repeated keys, missing keys, bad values), each
+        with its line.
     """
     file = None if path is None else str(path)
     if text is None:
         if path is None:
             raise SkipwiseError("give a plan path or text")
-        try:
-            text = Path(path).read_text(encoding="utf-8")
-        except FileNotFoundError:
-            raise SkipwiseError(Problem(code=ProblemCode.FILE_NOT_FOUND, file=file,
-                                        message="weighting plan file not found")) from None
-    raw, lines = _compose(text, file)
-    return parse_plan(raw, file=file, lines=lines)
+        text = read_text_file(path)
+    return parse_plan(load_yaml_text(text, file), file=file)

@@ -173,6 +173,18 @@ def run_replicates(prep: Prepared, design: ReplicateDesign, structure: Structure
     return out
 
 
+def _label_codes(col: pd.Series) -> tuple[np.ndarray, list[str]]:
+    """Per-case index into the column's distinct category labels (-1 where missing).
+
+    Labels are computed once per distinct value, not once per case; values that
+    share a label (``1`` and ``1.0``) share a code.
+    """
+    raw, uniques = pd.factorize(col, use_na_sentinel=True)
+    lab_codes, labels = pd.factorize(pd.Series([category_label(u) for u in uniques], dtype=object))
+    lookup = np.append(lab_codes.astype(np.intp), -1)  # raw code -1 (missing) maps to -1
+    return lookup[raw], [str(x) for x in labels]
+
+
 def _estimate_columns(frame: pd.DataFrame, respondent: np.ndarray, means: tuple[str, ...],
                       proportions: tuple[str, ...], exclude: tuple) -> tuple[list[dict], np.ndarray, np.ndarray]:
     excl = {category_label(v) for v in exclude}
@@ -187,18 +199,20 @@ def _estimate_columns(frame: pd.DataFrame, respondent: np.ndarray, means: tuple[
         raise SkipwiseError(problems)
     for name in means:
         col = pd.to_numeric(frame[name], errors="coerce")
-        labels = col.map(category_label, na_action="ignore")
-        valid = respondent & col.notna().to_numpy() & ~labels.isin(excl).to_numpy()
+        codes, labels = _label_codes(col)
+        keep = np.array([lab not in excl for lab in labels] + [False], dtype=bool)  # last: code -1
+        valid = respondent & (codes >= 0) & keep[codes]
         rows.append({"variable": name, "category": "", "kind": "mean"})
         ys.append(np.where(valid, col.fillna(0).to_numpy(dtype=float), 0.0))
         valids.append(valid)
     for name in proportions:
-        col = frame[name]
-        labels = col.map(category_label, na_action="ignore")
-        valid = respondent & col.notna().to_numpy() & ~labels.isin(excl).to_numpy()
-        for cat in sorted(labels[valid].unique(), key=str):
-            rows.append({"variable": name, "category": cat, "kind": "proportion"})
-            ys.append((valid & (labels == cat).to_numpy()).astype(float))
+        codes, labels = _label_codes(frame[name])
+        keep = np.array([lab not in excl for lab in labels] + [False], dtype=bool)  # last: code -1
+        valid = respondent & (codes >= 0) & keep[codes]
+        present = np.unique(codes[valid])
+        for i in sorted(present, key=lambda k: labels[k]):
+            rows.append({"variable": name, "category": labels[i], "kind": "proportion"})
+            ys.append((valid & (codes == i)).astype(float))
             valids.append(valid)
     return rows, np.column_stack(ys) if ys else np.zeros((len(frame), 0)), \
         np.column_stack(valids) if valids else np.zeros((len(frame), 0), dtype=bool)

@@ -47,10 +47,15 @@ def trim_cap(w: np.ndarray, *, median_multiple: float | None = None, percentile:
     return float(np.percentile(pos, percentile)), f"{percentile:g}th percentile"
 
 
-def _keep_total(total: float) -> Callable[[np.ndarray], np.ndarray]:
-    def rescale(v: np.ndarray) -> np.ndarray:
-        return v * (total / v.sum())
-    return rescale
+def _spread_excess(total: float, cap: float) -> Callable[[np.ndarray], np.ndarray]:
+    """Give the weight cut off the capped cases to the cases below the cap, pro rata."""
+    def spread(v: np.ndarray) -> np.ndarray:
+        at_cap = v >= cap
+        free = float(v[~at_cap].sum())
+        if free <= 0:  # every positive case is at the cap: nothing left to carry the excess
+            return v
+        return np.where(at_cap, v, v * ((total - cap * int(at_cap.sum())) / free))
+    return spread
 
 
 def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percentile: float | None = None,
@@ -60,8 +65,10 @@ def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percent
 
     The cap is computed once from the weights entering trimming (or given as
     ``cap``, as replicates do), so the iteration aims at a fixed target.  With no
-    calibration step, trimmed weight is spread over the other cases in
-    proportion to their weights (the total is kept).
+    calibration step, the weight cut off the capped cases is spread over the
+    cases below the cap in proportion to their weights; the capped cases stay
+    exactly at the cap and the total is kept.  A case pushed over the cap by
+    that share is capped in the next round (Potter 1990's iterative trimming).
 
     Parameters
     ----------
@@ -93,7 +100,7 @@ def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percent
         raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item="trimming",
                                     message=f"a cap of {cap:,.6g} on {int(pos.sum())} case(s) cannot carry the "
                                             f"total weight {total:,.6g}", hint="raise the cap"))
-    fix = recalibrate or _keep_total(total)
+    fix = recalibrate or _spread_excess(total, cap)
     max_before = float(w.max())
     capped_first = int((w > cap).sum())
     removed = float(np.sum(np.maximum(w - cap, 0.0)))

@@ -1,0 +1,167 @@
+"""What every survey-file writer shares: problem records, column names, notes, pyreadstat columns.
+
+The format families live in :mod:`skipwise.io.writers_spss`,
+:mod:`skipwise.io.writers_stata` and :mod:`skipwise.io.writers_plain`;
+:func:`skipwise.io.writers.write_survey` dispatches to them.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode
+from skipwise.io.meta import SurveyMeta
+
+__all__ = ["MetadataWarning", "Job", "Prepared", "problem", "check_names", "note", "drain_notes",
+           "prepare_columns", "STATA_LETTER", "SPSS_DATE_FORMAT", "SPSS_DATETIME_FORMAT"]
+
+#: Prepares one write and returns the job that writes the temporary file.
+Job = Callable[[Path], None]
+
+# Stata naming rules [memory: Stata User's Guide, "Naming conventions"]: 1-32 characters,
+# letters, digits and underscores, not starting with a digit, not a reserved word.
+_STATA_NAME = re.compile(r"[A-Za-z_][A-Za-z0-9_]{0,31}")
+_STATA_RESERVED = {"_all", "_b", "byte", "_coef", "_cons", "double", "float", "if", "in", "int", "long",
+                   "_n", "_N", "_pi", "_pred", "_rc", "_skip", "strL", "using", "with"}
+# SPSS naming rules [memory: SPSS Command Syntax Reference, "Variable names"]: start with a letter
+# or @, then letters, digits, . _ $ # @; at most 64 bytes; not ending in "."; not a reserved word.
+_SPSS_NAME = re.compile(r"[\w.@#$]+")
+_SPSS_RESERVED = {"ALL", "AND", "BY", "EQ", "GE", "GT", "LE", "LT", "NE", "NOT", "OR", "TO", "WITH"}
+SPSS_DATE_FORMAT = re.compile(r"(DATE|ADATE|EDATE|SDATE|JDATE)\d+")
+SPSS_DATETIME_FORMAT = re.compile(r"(DATETIME|YMDHMS)\d+(\.\d+)?")
+STATA_LETTER = re.compile(r"\.[a-z]")
+
+
+class MetadataWarning(UserWarning):
+    """Metadata was adapted to what the target format can hold (e.g. codes written as a range)."""
+
+
+def problem(path: Path, message: str, *, item: str | None = None, hint: str | None = None,
+            code: ProblemCode = ProblemCode.BAD_DATA) -> Problem:
+    return Problem(code=code, category=Category.DATA, file=str(path), item=item, message=message, hint=hint)
+
+
+def check_names(df: pd.DataFrame, path: Path, fmt: str) -> list[Problem]:
+    problems: list[Problem] = []
+    names = list(df.columns)
+    for dup in sorted({str(n) for n in names if names.count(n) > 1}):
+        problems.append(problem(path, f"column name '{dup}' occurs more than once", item=dup,
+                                hint="rename the columns so every name is unique"))
+    for name in names:
+        if not isinstance(name, str) or not name:
+            problems.append(problem(path, f"column name {name!r} is not a text name", item=str(name),
+                                    hint="rename the column"))
+        elif fmt == "dta" and (not _STATA_NAME.fullmatch(name) or name in _STATA_RESERVED
+                               or re.fullmatch(r"str\d+", name)):
+            problems.append(problem(path, f"column name '{name}' is not allowed in Stata files", item=name,
+                                    hint="use 1-32 letters, digits or underscores, not starting with a "
+                                         "digit and not a reserved word; rename before writing .dta"))
+        elif fmt in ("sav", "zsav") and (not name[0].isalpha() and name[0] != "@"
+                                         or not _SPSS_NAME.fullmatch(name) or name.endswith(".")
+                                         or len(name.encode("utf-8")) > 64 or name.upper() in _SPSS_RESERVED):
+            problems.append(problem(path, f"column name '{name}' is not allowed in SPSS files", item=name,
+                                    hint="start with a letter; use letters, digits, '.', '_', '@', '#', '$'; "
+                                         "at most 64 bytes; not a reserved word such as AND, BY, TO"))
+    return problems
+
+
+_NOTES: list[str] = []  # filled while one write is prepared, emitted by write_survey
+
+
+def note(message: str) -> None:
+    """Remember a metadata adaptation, to be warned about once the write is prepared."""
+    _NOTES.append(message)
+
+
+def drain_notes() -> list[str]:
+    """The notes gathered since the last call (and forget them)."""
+    notes = list(_NOTES)
+    _NOTES.clear()
+    return notes
+
+
+# -- column preparation for pyreadstat -----------------------------------------------------------
+@dataclass
+class Prepared:
+    """Columns converted to what pyreadstat writes, and what each holds."""
+
+    frame: pd.DataFrame
+    kinds: dict[str, str] = field(default_factory=dict)  # number, text, date, datetime, extmiss, other
+    letters: dict[str, set[str]] = field(default_factory=dict)  # bare Stata letters used per column
+    stata_formats: dict[str, str] = field(default_factory=dict)
+
+
+_STATA_EPOCH = pd.Timestamp("1960-01-01")
+
+
+def _date_kind(s: pd.Series, fmt: str) -> str:
+    if fmt.startswith("%td") or SPSS_DATE_FORMAT.fullmatch(fmt):
+        return "date"
+    if fmt.startswith("%tc") or SPSS_DATETIME_FORMAT.fullmatch(fmt):
+        return "datetime"
+    valid = s.dropna()
+    return "date" if bool((valid == valid.dt.normalize()).all()) else "datetime"
+
+
+def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: list[Problem], *,
+                    ext_missing_ok: bool) -> Prepared:
+    out = Prepared(frame=pd.DataFrame(index=pd.RangeIndex(len(df))))
+    for col in df.columns:
+        s = df[col].reset_index(drop=True)
+        if isinstance(s.dtype, pd.CategoricalDtype):
+            s = pd.Series(s.to_numpy(dtype=object), dtype=object)
+        kind = "other"
+        if pd.api.types.is_timedelta64_dtype(s):  # durations are written as seconds
+            kind, s = "number", s.dt.total_seconds()
+        elif pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
+            kind, s = "number", pd.Series(s.to_numpy(dtype=float, na_value=np.nan))
+        elif pd.api.types.is_datetime64_any_dtype(s):
+            kind = "datetime"
+        elif pd.api.types.is_string_dtype(s) and s.dtype != object:
+            kind, s = "text", pd.Series(s.to_numpy(dtype=object, na_value=None), dtype=object)
+        elif s.dtype == object:
+            inferred = pd.api.types.infer_dtype(s, skipna=True)
+            if inferred == "empty":
+                kind, s = "number", pd.Series(np.full(len(s), np.nan))
+            elif inferred == "string":
+                kind, s = "text", s.where(s.notna(), None)
+            elif inferred in ("integer", "floating", "mixed-integer-float", "decimal", "boolean"):
+                kind, s = "number", pd.to_numeric(s).astype(float)
+            elif inferred in ("date", "datetime", "datetime64"):
+                kind, s = "datetime", pd.to_datetime(s)
+            elif inferred in ("mixed", "mixed-integer"):
+                num = pd.to_numeric(s, errors="coerce")
+                rest = s.notna() & num.isna()
+                text = s[rest].astype(str)
+                odd = text[~text.str.fullmatch(STATA_LETTER.pattern)]
+                if len(odd):
+                    problems.append(problem(path, "column mixes numbers and text, or holds values that are neither "
+                                                  f"numbers, text nor dates (e.g. {odd.iloc[0]!r})", item=str(col),
+                                            hint="make the column all numbers or all text"))
+                elif not ext_missing_ok:
+                    problems.append(problem(path, "column holds Stata extended missing values (.a-.z), "
+                                                  "which SPSS cannot store", item=str(col),
+                                            hint="recode them to numeric codes declared as user-missing"))
+                else:
+                    kind = "extmiss"
+                    mixed = num.astype(object)
+                    mixed[rest] = text.str[1:]
+                    out.letters[col] = set(pd.unique(text.str[1:]))
+                    s = mixed
+        if kind == "datetime":
+            if isinstance(s.dtype, pd.DatetimeTZDtype):
+                s = s.dt.tz_localize(None)
+            kind = _date_kind(s, meta.formats.get(col, ""))
+            if ext_missing_ok:  # Stata: elapsed days (%td) or milliseconds (%tc) since 1960
+                unit = pd.Timedelta(days=1) if kind == "date" else pd.Timedelta(milliseconds=1)
+                s = (s - _STATA_EPOCH) / unit
+                out.stata_formats[col] = "%td" if kind == "date" else "%tc"
+        out.kinds[col] = kind
+        out.frame[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s
+    return out

@@ -1,0 +1,74 @@
+"""Stata ``.dta`` writing: labels, extended missing values (.a-.z), date formats."""
+
+from __future__ import annotations
+
+import re
+from pathlib import Path
+
+import pandas as pd
+
+from skipwise.errors import SkipwiseError
+from skipwise.io.meta import SurveyMeta, normalize_value
+from skipwise.io.writers_common import STATA_LETTER, Job, check_names, note, prepare_columns, problem
+
+__all__ = ["prepare_dta"]
+
+_STATA_NUM_FORMAT = re.compile(r"%-?\d+\.\d+[gfe]c?")
+# Stata value labels must be integers in this range [memory: Stata manual, "label"].
+_STATA_LABEL_MIN, _STATA_LABEL_MAX = -2_147_483_647, 2_147_483_620
+
+
+def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job:
+    import pyreadstat
+
+    problems = check_names(df, path, fmt)
+    p = prepare_columns(df, meta, path, problems, ext_missing_ok=True)
+    labels: dict[str, dict] = {}
+    for col, vl in meta.value_labels.items():
+        kind = p.kinds.get(col)
+        if kind not in ("number", "extmiss"):
+            problems.append(problem(path, f"Stata value labels need a numeric column, not a {kind} column",
+                                    item=col, hint="recode the text into numeric codes, or drop its labels"))
+            continue
+        out: dict = {}
+        for k, lab in vl.items():
+            k = normalize_value(k)
+            if isinstance(k, str) and STATA_LETTER.fullmatch(k):
+                out[k[1:]] = lab
+            elif isinstance(k, int) and not isinstance(k, bool) and _STATA_LABEL_MIN <= k <= _STATA_LABEL_MAX:
+                out[k] = lab
+            else:
+                problems.append(problem(path, f"value label key {k!r} cannot be stored in Stata "
+                                              "(keys must be whole numbers or .a-.z)", item=col,
+                                        hint="recode the value to a whole number, or drop its label"))
+        labels[col] = out
+    user: dict[str, list[str]] = {}
+    for col, kind in p.kinds.items():
+        declared = meta.missing_values.get(col, [])
+        letters = {v[1:] for v in declared if isinstance(v, str) and STATA_LETTER.fullmatch(v)}
+        others = [v for v in declared if not (isinstance(v, str) and STATA_LETTER.fullmatch(v))]
+        if others or meta.missing_ranges.get(col):
+            note(f"{col}: Stata has no user-missing declaration for ordinary values; "
+                 f"{others + meta.missing_ranges.get(col, [])} stay plain values (their value labels are kept)")
+        letters |= p.letters.get(col, set())
+        if letters and kind == "text":
+            problems.append(problem(path, "extended missing letters cannot be declared on a text column",
+                                    item=col, hint="drop them from the metadata"))
+        elif letters:
+            user[col] = sorted(letters)
+    formats = {c: f for c, f in p.stata_formats.items()}
+    for col, kind in p.kinds.items():
+        f = meta.formats.get(col, "")
+        if kind == "number" and _STATA_NUM_FORMAT.fullmatch(f):
+            formats[col] = f
+    if problems:
+        raise SkipwiseError(problems)
+
+    def job(tmp: Path) -> None:
+        pyreadstat.write_dta(
+            p.frame, str(tmp), file_label=meta.file_label or "",
+            column_labels={c: lab for c, lab in meta.column_labels.items() if lab},
+            variable_value_labels=labels or None, missing_user_values=user or None,
+            variable_format=formats or None,
+        )
+    return job
