@@ -48,3 +48,14 @@ def test_questionnaire_read_and_classify(tmp_path):
     cl = skipwise.classify(back, q)
     assert isinstance(cl, skipwise.Classification)
     assert list(cl.status.columns) == list(q.item_names) and cl.status.index.equals(back.index)
+
+
+def test_classify_stays_the_function_after_subpackage_imports():
+    import importlib
+
+    importlib.import_module("skipwise.classify.export")
+    importlib.import_module("skipwise.classify.result")
+    from skipwise import classify
+
+    assert callable(classify) and classify is skipwise.classify
+    assert classify.__module__ == "skipwise.classify.engine"

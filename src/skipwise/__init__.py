@@ -8,7 +8,7 @@ Public entry points (DESIGN §4; see README and DEVELOPERS.md):
 - :func:`outcome_rates`, :func:`rake`, :func:`kish_deff` — unit outcome rates and weighting
 - :func:`little_mcar_test` — Little's (1988) test of MCAR
 
-Heavier entry points are imported on first use, so ``import skipwise`` stays quick.
+Entry points other than :func:`classify` are imported on first use.
 """
 
 from __future__ import annotations
@@ -20,6 +20,11 @@ __version__ = "0.1.0"
 
 from skipwise.errors import Problem, ProblemCode, SkipwiseError  # noqa: E402
 
+# `classify` is both a subpackage and its main function. Importing the function here, eagerly,
+# makes `skipwise.classify` the function for good: a later import of the subpackage (or of one of
+# its modules) does not rebind the package attribute once the subpackage is loaded.
+from skipwise.classify import Classification, classify  # noqa: E402
+
 _LAZY = {
     "load_questionnaire": "skipwise.questionnaire",
     "loads_questionnaire": "skipwise.questionnaire",
@@ -29,8 +34,6 @@ _LAZY = {
     "SurveyMeta": "skipwise.io",
     "get_meta": "skipwise.io",
     "set_meta": "skipwise.io",
-    "classify": "skipwise.classify",
-    "Classification": "skipwise.classify",
     "outcome_rates": "skipwise.weighting",
     "rake": "skipwise.weighting",
     "poststratify": "skipwise.weighting",
@@ -51,7 +54,7 @@ _LAZY = {
     "load_run_plan": "skipwise.pipeline",
 }
 
-__all__ = ["__version__", "Problem", "ProblemCode", "SkipwiseError", *_LAZY]
+__all__ = ["__version__", "Problem", "ProblemCode", "SkipwiseError", "classify", "Classification", *_LAZY]
 
 
 def __getattr__(name: str) -> Any:
