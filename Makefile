@@ -23,7 +23,7 @@ test: $(STAMP)
 	$(BIN)/python -m pytest
 
 bench: $(STAMP)
-	for f in benchmarks/bench_*.py; do $(BIN)/python $$f || exit 1; done
+	for f in benchmarks/bench_*.py; do echo "== $$f"; $(BIN)/python $$f || exit 1; done
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .hypothesis
