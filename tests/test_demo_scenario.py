@@ -67,7 +67,7 @@ def test_sizes(n, q, sc):
     assert len(s.interviews) == interviewed.sum()
     assert list(s.interviews["case_id"]) == list(s.sample.loc[interviewed, "case_id"])
     assert list(s.interviews.columns) == [q.case_id, *CONTEXT, *q.columns]
-    assert list(s.truth_status.columns) == list(q.item_names) and len(q.item_names) == 47
+    assert list(s.truth_status.columns) == list(q.item_names) and len(q.item_names) == 56
     assert s.truth_status.shape[0] == len(s.interviews)
     assert list(s.truth_values.columns) == list(q.columns)
     assert set(s.sample["disposition"]) <= {110, 120, 211, 212, 220, 230, 310, 390, 410}

@@ -321,3 +321,33 @@ def test_meta_json_keeps_key_types(labels):
     assert back == meta
     for col, table in labels.items():
         assert [type(k) for k in back.value_labels[col]] == [type(k) for k in table]
+
+
+def test_dta_column_of_only_extended_missing_letters(tmp_path):
+    # A numeric item nobody answered, recoded by status: every cell is a letter.
+    df = pd.DataFrame({"id": [1.0, 2.0], "never": pd.Series([".a", ".a"], dtype=object)})
+    meta = SurveyMeta(value_labels={"never": {".a": "skipped"}}, missing_values={"never": [".a"]})
+    path = write_survey(df, tmp_path / "x.dta", meta)
+    # pandas' own Stata reader (independent implementation) sees extended missing .a in both cells.
+    back = pd.read_stata(path, convert_missing=True, convert_categoricals=False)
+    assert [v.string for v in back["never"]] == [".a", ".a"]
+
+
+def test_dta_string_dtype_column_of_only_letters(tmp_path):
+    df = pd.DataFrame({"id": [1.0, 2.0], "never": pd.Series([".b", None], dtype="str")})
+    path = write_survey(df, tmp_path / "y.dta", SurveyMeta(missing_values={"never": [".b"]}))
+    back = pd.read_stata(path, convert_missing=True, convert_categoricals=False)
+    # with convert_missing=True, system missing comes back as the missing value "."
+    assert [v.string for v in back["never"]] == [".b", "."]
+
+
+def test_dta_numeric_column_whose_first_100_values_are_letters(tmp_path):
+    # A rarely asked item recoded by status: letters in the first 100 rows, answers later.
+    cells = [".a"] * 120 + [13.0, 7.0, None, ".h"]
+    df = pd.DataFrame({"rare": pd.Series(cells, dtype=object)})
+    meta = SurveyMeta(value_labels={"rare": {".a": "skipped", ".h": "refused"}}, missing_values={"rare": [".a", ".h"]})
+    path = write_survey(df, tmp_path / "rare.dta", meta)
+    # pandas' own Stata reader (independent implementation) reads numbers and letters back.
+    back = pd.read_stata(path, convert_missing=True, convert_categoricals=False)
+    got = [getattr(v, "string", v) for v in back["rare"]]
+    assert got[118:] == [".a", ".a", 13.0, 7.0, ".", ".h"]

@@ -128,7 +128,9 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
             _check_no_collision(data[col], mapping, col, stata)
             values = out[col].to_numpy(dtype=object, na_value=np.nan).copy()
             values[replace] = lookup[codes[replace]]
-            out[col] = values if stata else pd.to_numeric(pd.Series(values, index=out.index), errors="coerce")
+            # dtype=object: a column of letters only must not be inferred as text
+            out[col] = pd.Series(values, index=out.index, dtype=object) if stata else \
+                pd.to_numeric(pd.Series(values, index=out.index), errors="coerce")
             # Keep the file's own labels for real answers; drop those of the old codes.
             kept = {k: v for k, v in meta.value_labels.get(col, {}).items()
                     if not any(_same(k, c.value) for c in item.codes if c.kind.value != "substantive")}

@@ -43,7 +43,7 @@ _MCAR: dict[str, tuple[float, float, float]] = {
     "smoker": (0.02, 0.1, 0.7), "cigs_day": (0.04, 0.5, 0.3), "exercise_days": (0.04, 0.375, 0.25),
     "savings": (0.03, 0.3, 0.5),
 }
-for _k in range(1, 6):
+for _k in range(1, 9):
     _MCAR[f"m_sex_{_k}"] = (0.005, 0.2, 0.4)
     _MCAR[f"m_age_{_k}"] = (0.02, 0.7, 0.2)
     _MCAR[f"m_works_{_k}"] = (0.015, 0.6, 0.2)
@@ -92,7 +92,7 @@ def nonresponse_probs(item: str, cov: Mapping[str, np.ndarray]) -> tuple[np.ndar
 OFF_ROUTE_RATE: dict[str, float] = {
     "rent_month": 0.01, "n_cars": 0.02, "years_valley": 0.01, "hours_week": 0.01, "commute_minutes": 0.01,
     "search_weeks": 0.01, "bus_rating": 0.01, "rail_rating": 0.01, "bike_safe": 0.01, "cigs_day": 0.01,
-    "income_band": 0.02, **{f"m_works_{k}": 0.005 for k in range(1, 6)},
+    "income_band": 0.02, **{f"m_works_{k}": 0.005 for k in range(1, 9)},
 }
 #: Share of answered in-universe cells of a leaf where the not-asked code -1 was stored instead.
 WRONG_CODE_RATE: dict[str, float] = {

@@ -115,7 +115,7 @@ def _build() -> tuple[DemoItem, ...]:
         DemoItem(name="n_cars", columns=("n_cars",), range=(1, 6), rule=lambda r: r.eq("has_car", 1)),
         DemoItem(name="internet", columns=("internet",), valid=YES_NO),
     ]
-    for k in range(1, 6):
+    for k in range(1, 9):
         def member(r: Record, k: int = k) -> np.ndarray:
             return r.ge("hh_size", k)
 

@@ -100,13 +100,13 @@ def _frame(rng: np.random.Generator, n_households: int) -> pd.DataFrame:
 
 def _members(rng: np.random.Generator, age: np.ndarray, sex: np.ndarray,
              works_p: Callable[[np.ndarray, int], np.ndarray]) -> dict[str, np.ndarray]:
-    """True roster values of members 1..5 (member 1 is the respondent)."""
+    """True roster values of members 1..8 (member 1 is the respondent)."""
     n = len(age)
     out: dict[str, np.ndarray] = {"m_sex_1": sex, "m_age_1": age}
     out["m_works_1"] = np.where(rng.random(n) < works_p(age, 3), 1, 2)
     partner = (rng.random(n) < 0.7) & (age >= 20)
     child_ok = (age >= 22) & (age < 65)
-    for k in range(2, 6):
+    for k in range(2, 9):
         u = rng.random(n)
         if k == 2:
             is_child = ~partner & child_ok & (u < 0.6)

@@ -123,14 +123,23 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
             kind, s = "number", pd.Series(s.to_numpy(dtype=float, na_value=np.nan))
         elif pd.api.types.is_datetime64_any_dtype(s):
             kind = "datetime"
-        elif pd.api.types.is_string_dtype(s) and s.dtype != object:
+        elif pd.api.types.is_string_dtype(s) and s.dtype != object and not (ext_missing_ok and _all_letters(s)):
             kind, s = "text", pd.Series(s.to_numpy(dtype=object, na_value=None), dtype=object)
-        elif s.dtype == object:
+        elif s.dtype == object or pd.api.types.is_string_dtype(s):
+            s = s.astype(object).where(s.notna(), None) if s.dtype != object else s
             inferred = pd.api.types.infer_dtype(s, skipna=True)
             if inferred == "empty":
                 kind, s = "number", pd.Series(np.full(len(s), np.nan))
-            elif inferred == "string":
+            elif inferred == "string" and not (ext_missing_ok and _all_letters(s)):
                 kind, s = "text", s.where(s.notna(), None)
+            elif inferred == "string":
+                # Every stored value is an extended missing letter: a numeric column with no
+                # answers (e.g. an item nobody was asked, recoded by status).
+                rest = s.notna()
+                mixed = pd.Series(np.full(len(s), np.nan), index=s.index, dtype=object)
+                mixed[rest] = s[rest].astype(str).str[1:]
+                kind, s = "extmiss", mixed
+                out.letters[col] = set(pd.unique(mixed[rest]))
             elif inferred in ("integer", "floating", "mixed-integer-float", "decimal", "boolean"):
                 kind, s = "number", pd.to_numeric(s).astype(float)
             elif inferred in ("date", "datetime", "datetime64"):
@@ -165,3 +174,8 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
         out.kinds[col] = kind
         out.frame[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s
     return out
+
+
+def _all_letters(s: pd.Series) -> bool:
+    text = s[s.notna()].astype(str)
+    return bool(len(text)) and bool(text.str.fullmatch(STATA_LETTER.pattern).all())

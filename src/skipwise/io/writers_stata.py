@@ -64,11 +64,37 @@ def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
     if problems:
         raise SkipwiseError(problems)
 
+    frame = _numbers_first(p.frame, [c for c, k in p.kinds.items() if k == "extmiss"])
+
     def job(tmp: Path) -> None:
         pyreadstat.write_dta(
-            p.frame, str(tmp), file_label=meta.file_label or "",
+            frame, str(tmp), file_label=meta.file_label or "",
             column_labels={c: lab for c, lab in meta.column_labels.items() if lab},
             variable_value_labels=labels or None, missing_user_values=user or None,
             variable_format=formats or None,
         )
     return job
+
+
+def _numbers_first(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
+    """Keep numeric columns of extended missing letters numeric for pyreadstat.
+
+    pyreadstat's dataframe layer judges an object column's type by its first 100 values: a
+    numeric column whose first 100 stored values are all letters (an item rarely asked, recoded
+    by status) would be taken for text. As a categorical whose numeric categories come first it
+    is judged by those, and its cells are written unchanged.
+    """
+    out = frame
+    for col in columns:
+        s = frame[col]
+        present = s.notna().to_numpy()
+        is_letter = present & pd.to_numeric(s, errors="coerce").isna().to_numpy()  # letters are no numbers
+        head = slice(0, 100)
+        if not is_letter[head][present[head]].all() or is_letter[present].all():
+            continue
+        numbers = pd.unique(s[present & ~is_letter])
+        letters = pd.unique(s[is_letter])
+        if out is frame:
+            out = frame.copy()
+        out[col] = pd.Categorical(s, categories=[*numbers, *letters])
+    return out
