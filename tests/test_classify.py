@@ -216,7 +216,8 @@ def test_missing_columns_reported_together():
     with pytest.raises(SkipwiseError) as info:
         classify(frame, Q)
     assert info.value.codes == [ProblemCode.MISSING_COLUMN] * 6
-    assert {p.item for p in info.value.problems} == {"mode", "amount", "other", "negated", "fallback", "note"}
+    assert {p.item for p in info.value.problems} == {None, "amount", "other", "negated", "fallback", "note"}
+    assert "context column 'mode' is not in the data" in info.value.render()
 
 
 def test_stata_letters_and_text_codes():

@@ -52,8 +52,13 @@ def check_columns(data: pd.DataFrame, q: Questionnaire) -> None:
     """Raise one error listing every questionnaire column missing from the data."""
     missing = [c for c in (q.case_id, *q.context, *q.columns) if c not in data.columns]
     if missing:
+        def what(c: str) -> str:
+            return "the case id column" if c == q.case_id else \
+                "context column" if c in q.context else "column"
+
         problems = [Problem(code=ProblemCode.MISSING_COLUMN, category=Category.DATA, file=q.path,
-                            item=c, message=f"column '{c}' is not in the data",
+                            item=None if c == q.case_id or c in q.context else c,
+                            message=f"{what(c)} '{c}' is not in the data",
                             hint=did_you_mean(c, [str(x) for x in data.columns]) or
                             "add the column or remove it from the questionnaire") for c in missing]
         raise SkipwiseError(problems, headline=f"{len(missing)} questionnaire column(s) missing from the data")

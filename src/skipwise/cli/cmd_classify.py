@@ -55,10 +55,12 @@ def classify_command(
             result, meta = with_status_columns(frame, cl, meta)
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
-        with echo_warnings():
-            write_survey(result, out, meta, overwrite=overwrite)
-        with atomic_output(faults_path, overwrite=overwrite) as tmp:
-            cl.faults.to_csv(tmp, index=False)
+        # Both files appear together or not at all.
+        with atomic_output(out, overwrite=overwrite) as tmp_out, \
+                atomic_output(faults_path, overwrite=overwrite) as tmp_faults:
+            with echo_warnings():
+                write_survey(result, tmp_out, meta, overwrite=True)
+            cl.faults.to_csv(tmp_faults, index=False)
     except SkipwiseError as err:
         fail(err)
     shares = cl.counts().sum(axis=0)
