@@ -33,6 +33,9 @@ def test_demo_writes_every_output(demo):
                 "package/marrowby-2026_imputed.parquet"]:
         assert (out / rel).stat().st_size > 0, rel
     assert "statuses agree with the generator's truth in 100.00%" in output
+    flagged_line = next(line for line in output.splitlines() if line.startswith("diagnostics flag"))
+    assert "MCAR in the generator" not in flagged_line
+    assert "hours_week (MAR" in flagged_line and "life_sat (MAR" in flagged_line
 
 
 def test_status_file_matches_the_generators_truth(demo):

@@ -63,6 +63,12 @@ def _compare(result, scenario) -> None:
                f"{cl.codes.size:,} cells ({len(diff):,} disagreements)")
     typer.echo("generator's mechanisms: " + ", ".join(
         f"{k}={v}" for k, v in scenario.mechanisms.items() if v in ("MAR", "MNAR")) + " (all other items MCAR)")
+    rep = result.state.diagnostics
+    if rep is not None:
+        summary = rep.summary
+        flagged = summary.loc[summary["flagged"].astype(bool), "item"].tolist()
+        typer.echo("diagnostics flag evidence against MCAR for: " + (", ".join(
+            f"{item} ({scenario.mechanisms.get(item, '?')} in the generator)" for item in flagged) or "no item"))
 
     weighted = read_survey(result.files["weighted_frame"])
     w = weighted["wt_final"].to_numpy()
