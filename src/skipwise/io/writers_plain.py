@@ -62,7 +62,7 @@ def prepare_parquet(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) ->
         if s[rest].astype(str).str.fullmatch(STATA_LETTER.pattern).all():
             # Arrow columns hold one type: numbers mixed with ".a" letters are kept as text
             # (shortest round-trip repr of each float) and restored by read_survey.
-            text = num.map(repr, na_action="ignore").astype(object)
+            text = num.astype(str).astype(object)  # shortest round-trip text, like repr
             text[rest] = s[rest]
             frame[col] = text.where(s.notna(), None)
             mixed.append(col)
