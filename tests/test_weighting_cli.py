@@ -104,3 +104,36 @@ def test_weigh_subprocess_smoke(files):
                           "--plan", str(tmp / "nope.yaml"), "-o", str(tmp / "x.csv")],
                          capture_output=True, text=True, timeout=60)
     assert bad.returncode == 1 and "not found" in bad.stderr and "Traceback" not in bad.stderr
+
+
+def test_estimates_use_answered_cells_only_with_a_questionnaire(tmp_path):
+    df = make_frame(600)
+    # Invalid values (outside the range) and an answer given where the routing skips the item.
+    df.loc[[3, 7, 11], "score"] = 777.0
+    df["gate"] = 1
+    df.loc[20, "gate"] = 2
+    df.loc[20, "score"] = 99.0
+    data = tmp_path / "survey.parquet"
+    write_survey(df, data)
+    plan = tmp_path / "plan.yaml"
+    plan.write_text(PLAN)
+    q = tmp_path / "q.yaml"
+    q.write_text("format: 1\nsurvey: {name: t, case_id: rid}\n"
+                 "context: [dispo, region, agegrp, p_sel, stratum, psu]\n"
+                 "codes: [{value: -9, reason: refused, kind: nonresponse}]\n"
+                 "sections:\n  - name: s\n    items:\n"
+                 "      - {name: gate, type: categorical, values: {1: 'Yes', 2: 'No'}}\n"
+                 "      - {name: score, type: number, range: [0, 100], asked_if: gate == 1}\n"
+                 "      - {name: owns_car, type: categorical, values: {1: 'Yes', 2: 'No'}}\n")
+    out = tmp_path / "w.parquet"
+    result = runner.invoke(app, ["weigh", str(data), "--plan", str(plan), "-o", str(out), "-q", str(q)])
+    assert result.exit_code == 0, result.output
+    w = read_survey(out)["wt_final"].to_numpy()
+    x = df["score"].to_numpy(dtype=float)
+    # By hand: respondents (w > 0) whose score is a valid in-universe answer.
+    ok = (w > 0) & (x >= 0) & (x <= 100) & (df["gate"].to_numpy() == 1)
+    book = load_workbook(tmp_path / "w_weights.xlsx", read_only=True)
+    rows = [r for r in book["Estimates"].iter_rows(values_only=True)]
+    header = list(rows[0])
+    score = next(r for r in rows[1:] if "score" in r)
+    assert_allclose(score[header.index("estimate")], np.average(x[ok], weights=w[ok]), rtol=1e-9)

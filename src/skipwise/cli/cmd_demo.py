@@ -72,11 +72,14 @@ def _compare(result, scenario) -> None:
 
     weighted = read_survey(result.files["weighted_frame"])
     w = weighted["wt_final"].to_numpy()
-    table = mean_comparison(weighted, w, w > 0, scenario.true_means)
+    case_id = result.state.q.case_id
+    answered = cl.analysis_values().set_axis(result.state.data[case_id].to_numpy()).reindex(
+        weighted[case_id].to_numpy())
+    table = mean_comparison(answered, w, w > 0, scenario.true_means)
     typer.echo("\nrespondent means against the generator's true population means:")
     typer.echo(table.to_string(index=False, float_format=lambda v: f"{v:,.3f}"))
 
     imputed = read_survey(result.files["imputed_1"])
-    table = imputed_mean_comparison(imputed, scenario)
+    table = imputed_mean_comparison(imputed, scenario, cl, result.state.q)
     typer.echo("\nimputed means against the generator's true means of the interviewed cases:")
     typer.echo(table.to_string(index=False, float_format=lambda v: f"{v:,.3f}"))

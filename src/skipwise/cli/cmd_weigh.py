@@ -29,7 +29,8 @@ def weigh_command(
     out: Annotated[Path, typer.Option("--out", "-o", help="Weighted data file to write; its extension sets the format.")],
     questionnaire: Annotated[Optional[Path], typer.Option(
         "--questionnaire", "-q",
-        help="Questionnaire file; needed when the plan splits interviews by the share of items answered.")] = None,
+        help="Questionnaire file: needed when the plan splits interviews by the share of items answered; "
+             "with it, estimates use answered cells only (never invalid values or off-route answers).")] = None,
     workbook: Annotated[Optional[Path], typer.Option(
         "--workbook", help="Diagnostics workbook path (default: the plan's output.workbook, else OUT_weights.xlsx).")] = None,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
@@ -53,16 +54,19 @@ def weigh_command(
         for path in targets:
             check_writable(path, overwrite=overwrite, inputs=[data, plan, *([questionnaire] if questionnaire else [])])
         frame = read_survey(data)
-        share = None
+        from skipwise.cli.cmd_run import EchoReporter
+        from skipwise.pipeline.steps import answered_values, weigh_with_progress, weight_meta
+
+        share = values = None
         if questionnaire is not None:
             from skipwise.classify import classify
             from skipwise.questionnaire import load_questionnaire
 
-            share = classify(frame, load_questionnaire(questionnaire)).cases["share_answered"]
-        from skipwise.cli.cmd_run import EchoReporter
-        from skipwise.pipeline.steps import weigh_with_progress, weight_meta
-
-        res = weigh_with_progress(frame, spec, share_answered=share, reporter=EchoReporter())
+            cl = classify(frame, load_questionnaire(questionnaire))
+            share = cl.cases["share_answered"]
+            values = answered_values(cl, frame, spec)  # estimates from answered cells only
+        res = weigh_with_progress(frame, spec, share_answered=share, reporter=EchoReporter(),
+                                  estimate_values=values)
         meta = weight_meta(res)
         write_survey(res.data, out, meta, overwrite=overwrite)
         if parquet != out:

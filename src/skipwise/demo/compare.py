@@ -75,15 +75,19 @@ def weighting_plan_text(totals: Mapping[str, Mapping[object, float]]) -> str:
     ])
 
 
-def mean_comparison(frame: pd.DataFrame, weights: np.ndarray, respondent: np.ndarray,
+def mean_comparison(values: pd.DataFrame, weights: np.ndarray, respondent: np.ndarray,
                     true_means: Mapping[str, float]) -> pd.DataFrame:
-    """True population means beside unweighted and weighted respondent means."""
+    """True population means beside unweighted and weighted respondent means.
+
+    ``values`` holds answered cells only (NaN for every other status: codes, invalid values,
+    off-route answers), aligned with ``weights``.
+    """
     rows = []
     for item in ESTIMATE_ITEMS:
-        if item not in true_means:
+        if item not in true_means or item not in values.columns:
             continue
-        x = pd.to_numeric(frame[item], errors="coerce").to_numpy(dtype=float)
-        ok = respondent & np.isfinite(x) & ~np.isin(x, SPECIAL_CODES)
+        x = values[item].to_numpy(dtype=float)
+        ok = respondent & np.isfinite(x)
         unweighted = x[ok].mean()
         weighted = np.average(x[ok], weights=weights[ok])
         rows.append({"item": item, "true": true_means[item], "unweighted": unweighted, "weighted": weighted,

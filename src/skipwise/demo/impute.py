@@ -35,21 +35,26 @@ def _mean(values: pd.Series) -> float:
     return float(x.mean()) if x.size else float("nan")
 
 
-def imputed_mean_comparison(stacked: pd.DataFrame, scenario) -> pd.DataFrame:
+def imputed_mean_comparison(stacked: pd.DataFrame, scenario, cl, questionnaire) -> pd.DataFrame:
     """Per item: the true mean over cases the item applies to, the respondents' mean, the imputed mean.
 
-    The imputed mean averages, over the M completed files, the mean of every valid value
-    (answers and imputations); the true mean is the generator's, over the same interviews.
+    Respondents' and imputed means use answered cells only (the classification of the
+    interviews, and of each completed file), so invalid values and off-route answers never
+    count; the imputed mean averages the M completed files. The true mean is the generator's,
+    over the same interviews.
     """
+    from skipwise.classify import classify
+
     truth = scenario.truth_values
-    observed = scenario.interviews
+    observed = cl.analysis_values()
+    completed = [classify(group.drop(columns="imputation"), questionnaire).analysis_values()
+                 for _, group in stacked.groupby("imputation")]
     rows = []
     for item in IMPUTED_ITEMS:
         if item not in truth.columns:
             continue
-        per_m = [_mean(group[item]) for _, group in stacked.groupby("imputation")]
-        true_mean = _mean(truth[item])
-        rows.append({"item": item, "true": true_mean, "respondents": _mean(observed[item]),
-                     "imputed": float(np.mean(per_m)),
-                     "imputed_closer": abs(np.mean(per_m) - true_mean) <= abs(_mean(observed[item]) - true_mean)})
+        imputed = float(np.mean([_mean(values[item]) for values in completed]))
+        true_mean, respondents = _mean(truth[item]), _mean(observed[item])
+        rows.append({"item": item, "true": true_mean, "respondents": respondents, "imputed": imputed,
+                     "imputed_closer": abs(imputed - true_mean) <= abs(respondents - true_mean)})
     return pd.DataFrame(rows)

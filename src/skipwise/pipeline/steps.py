@@ -49,8 +49,28 @@ class RunState:
 
 # --- glue shared with the single commands -------------------------------------------------------
 
+def answered_values(cl, frame: pd.DataFrame, spec, *, case_id: str | None = None,
+                    source: pd.DataFrame | None = None) -> pd.DataFrame | None:
+    """The estimate items' answered values (NaN for every other status), aligned with ``frame``.
+
+    ``source`` is the classified data when ``frame`` is another file (e.g. all sampled cases):
+    the values are then matched by ``case_id``.
+    """
+    est = spec.estimates
+    if est is None:
+        return None
+    values = cl.analysis_values(source)
+    items = [c for c in (*est.means, *est.proportions) if c in values.columns and c in frame.columns]
+    if not items:
+        return None
+    values = values[items]
+    if source is not None:
+        values = values.set_axis(source[case_id].to_numpy()).reindex(frame[case_id].to_numpy())
+    return values.set_axis(frame.index)
+
+
 def weigh_with_progress(frame: pd.DataFrame, spec, *, share_answered: pd.Series | None = None,
-                        reporter: Reporter | None = None):
+                        reporter: Reporter | None = None, estimate_values: pd.DataFrame | None = None):
     """:func:`skipwise.weighting.weigh.weigh` with a progress bar over the replicates."""
     from skipwise.weighting.weigh import weigh
 
@@ -62,7 +82,7 @@ def weigh_with_progress(frame: pd.DataFrame, spec, *, share_answered: pd.Series 
             bar["advance"] = stack.enter_context(reporter.progress("replicates", count))
 
         return weigh(frame, spec, share_answered=share_answered, on_design=on_design,
-                     progress=lambda _done: bar["advance"](1))
+                     progress=lambda _done: bar["advance"](1), estimate_values=estimate_values)
 
 
 def weight_labels(res) -> dict[str, str]:
@@ -185,7 +205,10 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
                 message="the case id column must be in both the data file and the weighting file",
                 hint="set case_id in the weighting plan to the id the two files share"))
         share = frame[case_id].map(pd.Series(share.to_numpy(), index=st.data[case_id].to_numpy()))
-    st.weigh = res = weigh_with_progress(frame, spec, share_answered=share, reporter=reporter)
+    # Estimates use answered cells only: never invalid values, off-route answers or codes.
+    values = answered_values(st.cl, frame, spec, case_id=case_id, source=st.data if own else None)
+    st.weigh = res = weigh_with_progress(frame, spec, share_answered=share, reporter=reporter,
+                                         estimate_values=values)
     write_workbook(res, st.targets["weighting_workbook"], overwrite=True)
     cols = list(res.weight_columns)
     if own:

@@ -71,8 +71,8 @@ def _design(frame: pd.DataFrame, plan: WeightingPlan) -> ReplicateDesign | None:
 
 
 def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series | None = None,
-          progress: Callable[[int], None] | None = None, on_design: Callable[[int], None] | None = None
-          ) -> WeighResult:
+          progress: Callable[[int], None] | None = None, on_design: Callable[[int], None] | None = None,
+          estimate_values: pd.DataFrame | None = None) -> WeighResult:
     """Run the plan on ``frame``: weights of every stage, replicates, rates and estimates.
 
     Parameters
@@ -80,6 +80,10 @@ def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series
     share_answered
         Per-case share of applicable items answered, needed when the plan
         splits interviews into complete / partial / break-off.
+    estimate_values
+        Values of the estimate items aligned with ``frame`` (e.g. the classifier's
+        answered values, NaN for every other status), used instead of the stored
+        cells, so invalid values and off-route answers never enter an estimate.
     progress
         Called with the number of replicates done.
     on_design
@@ -98,7 +102,9 @@ def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series
         reps = run_replicates(prep, design, structure=chain.structure, progress=progress)
         est = plan.estimates
         if est is not None:
-            estimates = replicate_standard_errors(frame, prep.respondent, chain.final, reps, design,
+            source = frame if estimate_values is None else frame.assign(**{
+                c: estimate_values[c] for c in estimate_values.columns if c in frame.columns})
+            estimates = replicate_standard_errors(source, prep.respondent, chain.final, reps, design,
                                                   means=est.means, proportions=est.proportions,
                                                   exclude_values=est.exclude_values)
     data, cols = _output_frame(frame, plan, prep, chain, reps)
