@@ -180,3 +180,15 @@ def test_gate_whose_nonresponse_routes_a_follow_up_keeps_its_code():
     after = classify(d, q).status
     assert not after.isin(S.FAULT_STATUSES).any().any()
     assert res.table.loc["income", "left_unfilled"] == 2 and any("follow-up" in n for n in res.notes)
+
+
+def test_routing_faults_are_left_as_they_are_and_flagged(data):
+    res = impute_skipaware(data, Q, SkipAwareSpec(m=1, seed=3, default=ItemRule(method="hotdeck")))
+    flags = res.flags(0)
+    # The fixture put an answer off route in `hours` and an invalid 7 in `sat` (stated by hand above).
+    first_no = data.index[data["employed"] == 2][0]
+    assert res.datasets[0].loc[first_no, "hours"] == 30.0 and flags.loc[first_no, "hours_imp"] == 3
+    assert res.datasets[0].loc[data.index[0], "sat"] == 7.0 and flags.loc[data.index[0], "sat_imp"] == 3
+    # Every fault cell, and only those, carries flag 3.
+    faults = res.status[["age", "employed", "hours", "sat"]].isin(["off_route", "wrong_code", "invalid"])
+    assert ((flags.to_numpy() == 3) == faults.to_numpy()).all()

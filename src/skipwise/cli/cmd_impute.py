@@ -19,7 +19,7 @@ HELP = (
     "covariates, the number of imputations M, the seed and the output form come from the plan "
     "file (YAML; see docs/imputation.md). Writes M files (OUT_1, OUT_2, ...) or one stacked file "
     "with an imputation-number column, keeping labels and missing-value definitions, with one "
-    "flag column <item>_imp per item (0 not imputed, 1 imputed, 2 routed out by an imputed gate). "
+    "flag column <item>_imp per item (0 not imputed, 1 imputed, 2 routed out by an imputed gate, 3 a routing fault left as it is). "
     "The same seed gives the same files.\n\n"
     "Caution: imputation does not repair data missing not at random (MNAR). Analyse the M files "
     "with Rubin's rules. The files hold respondents' answers — follow your organization's data "

@@ -65,7 +65,8 @@ SKIP_METHODS = ("hotdeck", "nearest", "pmm", "regression", "logistic", "multinom
 #: Statuses that are never filled, whatever the plan says.
 NEVER_IMPUTED = (S.ANSWERED, S.SKIPPED, S.OFF_ROUTE, S.WRONG_CODE, S.INVALID, S.GATE_UNKNOWN)
 #: Meaning of the values of a ``<item>_imp`` flag column.
-FLAG_LABELS = {0: "not imputed", 1: "imputed", 2: "routed out by an imputed gate"}
+FLAG_LABELS = {0: "not imputed", 1: "imputed", 2: "routed out by an imputed gate",
+               3: "routing fault left as it is (off_route, wrong_code or invalid)"}
 IMPUTABLE_TYPES = (ItemType.INTEGER, ItemType.NUMBER, ItemType.CATEGORICAL)
 
 
@@ -154,9 +155,11 @@ class SkipAwareResult:
         return len(self.datasets)
 
     def flags(self, i: int = 0, suffix: str = "_imp") -> pd.DataFrame:
-        """``<item><suffix>`` int8 columns of dataset ``i``: 0 not imputed, 1 imputed, 2 routed out."""
+        """``<item><suffix>`` int8 columns of dataset ``i``: 0 not imputed, 1 imputed, 2 routed out,
+        3 a routing fault left as it is (see ``FLAG_LABELS``)."""
         imp, out = self.imputed[i], self.routed_out[i]
-        flag = imp.astype("int8") + 2 * out.astype("int8")
+        fault = self.status[list(imp.columns)].isin(S.FAULT_STATUSES).set_axis(imp.index)
+        flag = imp.astype("int8") + 2 * out.astype("int8") + 3 * fault.astype("int8")
         flag.columns = [f"{c}{suffix}" for c in imp.columns]
         return flag
 
