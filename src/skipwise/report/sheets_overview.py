@@ -14,8 +14,10 @@ __all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS"]
 DEFINITIONS: tuple[tuple[str, str], ...] = (
     ("Item nonresponse rate",
      "(cells with a nonresponse reason + item_missing cells) / (cases in the item's universe, excluding "
-     "breakoff). With a weight: the same ratio of weighted totals, Σw·[nonresponse] / Σw·[in universe, "
-     "not breakoff]."),
+     "breakoff). In universe: the routing rule held, or it was unknown but the cell shows the item was "
+     "asked (an answer or a nonresponse code). In-universe wrong_code and invalid cells are in the "
+     "denominator but not the numerator. With a weight: the same ratio of weighted totals, "
+     "Σw·[nonresponse] / Σw·[in universe, not breakoff]."),
     ("Reason rate (e.g. dont_know rate, refused rate)",
      "cells carrying that nonresponse reason / the same denominator as the item nonresponse rate."),
     ("item_missing rate", "blank in-universe cells with no code / the same denominator."),
