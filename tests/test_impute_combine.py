@@ -190,3 +190,21 @@ def test_skipaware_output_pools_without_codes():
     assert_allclose(p.estimate, [np.mean([d["hours"][d["hours"] >= 1].mean() for d in res.datasets])],
                     rtol=1e-12)
     assert pool_means(res.datasets, ["hours"]).estimate[0] < p.estimate[0]
+
+
+def test_pooling_with_the_questionnaire_leaves_out_invalid_and_off_route_values():
+    from tests.test_impute_skipaware import Q, make_data
+
+    d = make_data(7, n=120)
+    # hours: range [1, 80], asked only if employed == 1.
+    emp = d.index[d["employed"] == 1]
+    off = d.index[d["employed"] == 2]
+    d.loc[emp[0], "hours"] = 500.0   # invalid
+    d.loc[off[0], "hours"] = 40.0    # off route
+    datasets = [d, d.assign(hours=d["hours"].where(d.index != emp[1], 10.0))]
+    p = pool_means(datasets, ["hours"], questionnaire=Q)
+    # By hand: hours values of employed cases that are inside [1, 80].
+    def answered(x):
+        h = x["hours"]
+        return h[(x["employed"] == 1) & (h >= 1) & (h <= 80)].to_numpy()
+    assert_allclose(p.estimate, [np.mean([answered(x).mean() for x in datasets])], rtol=1e-12)

@@ -191,10 +191,23 @@ def excluded_values(items: Sequence[str], exclude_values: ExcludeValues = None,
     return out
 
 
-def _masked(datasets: Sequence[pd.DataFrame], items: Sequence[str], codes: Mapping[str, list]) -> list[pd.DataFrame]:
-    """The ``items`` of each dataset with the excluded values set to missing."""
+def _masked(datasets: Sequence[pd.DataFrame], items: Sequence[str], codes: Mapping[str, list],
+            questionnaire: Questionnaire | None = None) -> list[pd.DataFrame]:
+    """The ``items`` of each dataset with the excluded values set to missing.
+
+    With a questionnaire, a dataset holding every column it names is classified and only its
+    answered cells are kept, so invalid values and off-route answers are never pooled either;
+    a dataset holding only some items has just the codes left out.
+    """
     out = []
+    needed = () if questionnaire is None else (questionnaire.case_id, *questionnaire.context,
+                                                 *questionnaire.columns)
     for d in datasets:
+        if questionnaire is not None and all(c in d.columns for c in needed):
+            from skipwise.classify import classify
+
+            answered = classify(d, questionnaire).analysis_values()
+            d = d.assign(**{it: d[it].where(answered[it].notna()) for it in items})
         cols = {it: d[it].mask(d[it].isin(codes[it])) if codes[it] else d[it] for it in items}
         out.append(pd.DataFrame(cols, index=d.index))
     return out
@@ -224,10 +237,12 @@ def pool_means(datasets: Sequence[pd.DataFrame], items: Sequence[str], *,
         Stored values that are not answers (e.g. ``[-1, -9]``), for every item or as a
         mapping item → values; such cells are treated as missing before pooling.
     questionnaire
-        If given, each item's structural and nonresponse code values are excluded too
+        If given, each item's structural and nonresponse codes are left out
         (skip-consistent imputation keeps structural codes in routed-out cells and the
-        codes of cells it left unfilled). Without either argument every stored value
-        is averaged as it is.
+        codes of cells it left unfilled); and when a dataset holds every column the
+        questionnaire names, it is classified and only answered cells are pooled, so
+        invalid values and off-route answers are left out too. Without either argument
+        every stored value is averaged as it is.
     alpha
         For the confidence interval.
 
@@ -241,7 +256,7 @@ def pool_means(datasets: Sequence[pd.DataFrame], items: Sequence[str], *,
     Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley, ch. 3.
     """
     items = list(items)
-    frames = _masked(datasets, items, excluded_values(items, exclude_values, questionnaire))
+    frames = _masked(datasets, items, excluded_values(items, exclude_values, questionnaire), questionnaire)
     _check_observed(frames, items, 2)
     num = [d.astype("float64") for d in frames]
     est = np.array([[d[i].mean() for i in items] for d in num])
@@ -265,7 +280,8 @@ def pool_proportions(datasets: Sequence[pd.DataFrame], item: str, categories: Se
     ----------
     Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley, ch. 3.
     """
-    col = [d[item] for d in _masked(datasets, [item], excluded_values([item], exclude_values, questionnaire))]
+    col = [d[item] for d in _masked(datasets, [item], excluded_values([item], exclude_values, questionnaire),
+                                          questionnaire)]
     _check_observed([c.to_frame() for c in col], [item], 1)
     if categories is None:
         categories = sorted(pd.unique(pd.concat(col).dropna()))
