@@ -10,7 +10,6 @@ import pandas as pd
 import typer
 
 from skipwise.cli.app import app, fail
-from skipwise.diagnostics.survey import default_auxiliaries  # noqa: F401  (kept importable from here)
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
 _CAUTION = ("Caution: no test on the observed data can tell data missing at random from data missing "
@@ -73,7 +72,7 @@ def diagnose(
 ) -> None:
     """Diagnose the missingness mechanism (help text: ``_HELP``)."""
     try:
-        from skipwise.classify import classify
+        from skipwise.cli.common import classify_with_progress
         from skipwise.diagnostics import SuggestionThresholds
         from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
         from skipwise.diagnostics.survey import survey_inputs
@@ -96,7 +95,7 @@ def diagnose(
             raise SkipwiseError(unknown)
         data = read_survey(data_path)
         typer.echo(f"Classifying {len(data):,} cases against {len(q.item_names)} items ...", err=True)
-        cls = classify(data, q)
+        cls = classify_with_progress(data, q)
 
         rows = None
         resp_ind = None

@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
-import contextlib
 from pathlib import Path
-from typing import Annotated, Callable, Iterator
+from typing import Annotated
 
 import typer
 
 from skipwise.cli.app import app, fail
+from skipwise.cli.common import EchoReporter
 from skipwise.errors import SkipwiseError
 
 HELP = (
@@ -27,25 +27,6 @@ HELP = (
     "holds respondents' answers and the fault list names case ids — follow your organization's data "
     "protection rules and methodology standards."
 )
-
-
-class EchoReporter:
-    """Shows a run's progress on the terminal: one line per step, bars for long work."""
-
-    def __init__(self) -> None:
-        self.number = 0
-
-    def step(self, name: str, text: str) -> None:
-        self.number += 1
-        typer.echo(f"[{self.number}] {name}: {text}")
-
-    def info(self, text: str) -> None:
-        typer.echo(f"    {text}")
-
-    @contextlib.contextmanager
-    def progress(self, label: str, length: int) -> Iterator[Callable[[int], None]]:
-        with typer.progressbar(length=max(int(length), 1), label=f"    {label}", file=None) as bar:
-            yield bar.update
 
 
 def run_and_echo(plan: Path, *, overwrite: bool):

@@ -54,15 +54,14 @@ def weigh_command(
         for path in targets:
             check_writable(path, overwrite=overwrite, inputs=[data, plan, *([questionnaire] if questionnaire else [])])
         frame = read_survey(data)
-        from skipwise.cli.cmd_run import EchoReporter
+        from skipwise.cli.common import EchoReporter, classify_with_progress
         from skipwise.pipeline.steps import answered_values, weigh_with_progress, weight_meta
 
         share = values = None
         if questionnaire is not None:
-            from skipwise.classify import classify
             from skipwise.questionnaire import load_questionnaire
 
-            cl = classify(frame, load_questionnaire(questionnaire))
+            cl = classify_with_progress(frame, load_questionnaire(questionnaire))
             share = cl.cases["share_answered"]
             values = answered_values(cl, frame, spec)  # estimates from answered cells only
         res = weigh_with_progress(frame, spec, share_answered=share, reporter=EchoReporter(),

@@ -12,7 +12,7 @@ import typer
 
 from skipwise.questionnaire import Questionnaire, load_questionnaire
 
-__all__ = ["load_inputs", "classify_with_progress", "echo_warnings", "sibling"]
+__all__ = ["EchoReporter", "load_inputs", "classify_with_progress", "echo_warnings", "sibling"]
 
 
 def load_inputs(data_path: Path, questionnaire_path: Path) -> tuple[pd.DataFrame, Questionnaire]:
@@ -26,17 +26,29 @@ def load_inputs(data_path: Path, questionnaire_path: Path) -> tuple[pd.DataFrame
 def classify_with_progress(data: pd.DataFrame, q: Questionnaire, *, label: str = "classifying"):
     """Classify, with a progress bar over items when the file is large."""
     from skipwise.classify import classify
+    from skipwise.pipeline.reporting import classify_progress
 
-    if data.shape[0] * len(q.items) < 2_000_000:
-        return classify(data, q)
-    with typer.progressbar(length=len(q.items), label=label, file=None) as bar:
-        state = {"done": 0}
-
-        def step(done: int, total: int) -> None:
-            bar.update(done - state["done"])
-            state["done"] = done
-
+    with classify_progress(EchoReporter(), len(q.items), data.shape[0] * len(q.items), label) as step:
         return classify(data, q, progress=step)
+
+
+class EchoReporter:
+    """Shows a run's progress on the terminal: one line per step, bars for long work."""
+
+    def __init__(self) -> None:
+        self.number = 0
+
+    def step(self, name: str, text: str) -> None:
+        self.number += 1
+        typer.echo(f"[{self.number}] {name}: {text}")
+
+    def info(self, text: str) -> None:
+        typer.echo(f"    {text}")
+
+    @contextlib.contextmanager
+    def progress(self, label: str, length: int) -> Iterator[Callable[[int], None]]:
+        with typer.progressbar(length=max(int(length), 1), label=f"    {label}", file=None) as bar:
+            yield bar.update
 
 
 @contextlib.contextmanager
@@ -54,5 +66,3 @@ def sibling(path: Path, suffix: str, ext: str) -> Path:
     """``out/data.sav`` -> ``out/data_faults.csv`` style companion path."""
     return path.with_name(f"{path.stem}{suffix}{ext}")
 
-
-ProgressFn = Callable[[int, int], None]
