@@ -13,7 +13,6 @@ import json
 from pathlib import Path
 from typing import Callable
 
-import numpy as np
 import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean

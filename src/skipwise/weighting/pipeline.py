@@ -16,7 +16,7 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.weighting import calibrate as cal
 from skipwise.weighting.adjust import ClassAdjustment, CollapseRecord, class_adjust, class_codes
 from skipwise.weighting.base import base_weights
-from skipwise.weighting.margins import EncodedMargin, category_label, encode_margins, margin_table, max_margin_error
+from skipwise.weighting.margins import EncodedMargin, category_label, encode_margins, margin_table
 from skipwise.weighting.outcomes import interview_outcome
 from skipwise.weighting.plan import WeightingPlan
 from skipwise.weighting.propensity import PropensityFit, fit_propensity, propensity_classes, propensity_design
