@@ -251,3 +251,20 @@ def test_date_item_with_range():
                                                                  dtype=object)})
     assert list(classify(frame, q).status["visit"].astype(str)) == ["answered", "invalid", "item_missing",
                                                                      "refused"]
+
+
+def test_fault_inputs_of_a_rule_reading_a_whole_set():
+    q = loads_questionnaire(textwrap.dedent("""\
+        format: 1
+        survey: {name: t, case_id: id}
+        sections:
+          - name: s
+            items:
+              - {name: m, type: multi, options: {a: A, b: B}}
+              - {name: m_count, type: integer, asked_if: not answered(m)}
+        """))
+    frame = pd.DataFrame({"id": [1], "m_a": [1], "m_b": [0], "m_count": [2]})
+    faults = classify(frame, q).faults
+    # m_count is off route (the set was answered); its inputs are the set's option columns,
+    # not every column whose name merely starts with "m_".
+    assert faults[["item", "status", "inputs"]].values.tolist() == [["m_count", "off_route", "m_a=1; m_b=0"]]

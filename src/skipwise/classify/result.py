@@ -172,7 +172,7 @@ class Classification:
                 "status": np.asarray(self.categories, dtype=object)[self.codes[rows, j]],
                 "value": _stored_text(self.data, item.columns, rows, multi=item.type is ItemType.MULTI),
                 "rule": item.rule_text,
-                "inputs": _inputs_text(self.data, item.rule, rows),
+                "inputs": _inputs_text(self.data, self.questionnaire, item.rule, rows),
             }))
         cols = ["case_id", "item", "status", "value", "rule", "inputs"]
         if not frames:
@@ -219,26 +219,25 @@ def _cell_text(series: pd.Series) -> pd.Series:
     return series.astype(object).where(series.notna(), "").astype(str)
 
 
+def _joined(part: pd.DataFrame, columns: list[str]) -> np.ndarray:
+    """``col=value; col=value`` of each row of ``part`` (vectorized string concatenation)."""
+    joined = pd.Series("", index=part.index, dtype=object)
+    for k, col in enumerate(columns):
+        joined = joined + ("; " if k else "") + col + "=" + _cell_text(part[col])
+    return joined.to_numpy(dtype=object)
+
+
 def _stored_text(data: pd.DataFrame, columns: tuple[str, ...], rows: np.ndarray, *, multi: bool) -> np.ndarray:
     part = data.iloc[rows]
     if not multi:
         return _cell_text(part[columns[0]]).to_numpy(dtype=object)
-    joined = None
-    for col in columns:
-        piece = col + "=" + _cell_text(part[col])
-        joined = piece if joined is None else joined + "; " + piece
-    return joined.to_numpy(dtype=object)
+    return _joined(part, list(columns))
 
 
-def _inputs_text(data: pd.DataFrame, rule: ast.BoolNode | None, rows: np.ndarray) -> np.ndarray:
+def _inputs_text(data: pd.DataFrame, q: Questionnaire, rule: ast.BoolNode | None, rows: np.ndarray) -> np.ndarray:
+    """Stored values of the columns a rule reads (a set read as a whole shows its option columns)."""
     if rule is None:
         return np.full(rows.size, "", dtype=object)
-    names = list(dict.fromkeys(n for n, _ in ast.names(rule)))
-    part = data.iloc[rows]
-    joined = None
-    for name in names:
-        cols = [name] if name in data.columns else [c for c in data.columns if str(c).startswith(name + "_")]
-        for col in cols:
-            piece = col + "=" + _cell_text(part[col])
-            joined = piece if joined is None else joined + "; " + piece
-    return (joined if joined is not None else pd.Series("", index=part.index)).to_numpy(dtype=object)
+    names = dict.fromkeys(n for n, _ in ast.names(rule))
+    columns = [c for n in names for c in (q.item(n).columns if n in q else (n,))]
+    return _joined(data.iloc[rows], list(dict.fromkeys(columns)))
