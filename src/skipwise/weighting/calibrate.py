@@ -298,6 +298,16 @@ def _numeric(data: pd.DataFrame, totals: Mapping[str, float] | None) -> dict[str
     return out
 
 
+def _calibration_system(data: pd.DataFrame, margins: Mapping[str, Mapping[object, float]] | None,
+                        weight: str | None, totals: Mapping[str, float] | None
+                        ) -> tuple[np.ndarray, list[EncodedMargin], np.ndarray, np.ndarray]:
+    """Starting weights, encoded margins, design matrix and targets shared by the linear and logit methods."""
+    d = starting_weights(data, weight)
+    enc = encode_margins(data, margins) if margins else []
+    x, t, _ = design_matrix(enc, _numeric(data, totals))
+    return d, enc, x, t
+
+
 def calibrate_linear(data: pd.DataFrame, margins: Mapping[str, Mapping[object, float]] | None = None,
                      weight: str | None = None, *, totals: Mapping[str, float] | None = None) -> pd.Series:
     """Linear calibration (GREG weights) to categorical margins and numeric ``totals``.
@@ -307,9 +317,7 @@ def calibrate_linear(data: pd.DataFrame, margins: Mapping[str, Mapping[object, f
     Deville, J.-C. & Särndal, C.-E. (1992). Calibration estimators in survey
     sampling. *JASA* 87(418), 376–382.
     """
-    d = starting_weights(data, weight)
-    enc = encode_margins(data, margins) if margins else []
-    x, t, _ = design_matrix(enc, _numeric(data, totals))
+    d, _, x, t = _calibration_system(data, margins, weight, totals)
     return pd.Series(linear_weights(d, x, t), index=data.index, name="weight")
 
 
@@ -324,9 +332,7 @@ def calibrate_logit(data: pd.DataFrame, margins: Mapping[str, Mapping[object, fl
     Deville, J.-C. & Särndal, C.-E. (1992). Calibration estimators in survey
     sampling. *JASA* 87(418), 376–382.
     """
-    d = starting_weights(data, weight)
-    enc = encode_margins(data, margins) if margins else []
-    x, t, _ = design_matrix(enc, _numeric(data, totals))
+    d, enc, x, t = _calibration_system(data, margins, weight, totals)
     w, _ = logit_weights(d, x, t, lower=float(bounds[0]), upper=float(bounds[1]), tol=tol,
                          max_iter=max_iter, enc=enc or None)
     return pd.Series(w, index=data.index, name="weight")
