@@ -26,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from skipwise.classify import statuses as S
+from skipwise.classify.cells import column_views
 from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.io import SurveyMeta, get_meta
@@ -154,8 +155,8 @@ def _same(a: object, b: object) -> bool:
 def _check_no_collision(series: pd.Series, mapping: dict[str, object], col: str, stata: bool) -> None:
     if stata:
         return
-    codes = np.array([v for v in mapping.values()], dtype=np.float64)
-    num = pd.to_numeric(series, errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+    codes = np.array(list(mapping.values()), dtype=np.float64)
+    num, _, _ = column_views(series)
     if np.isin(num, codes).any():
         raise SkipwiseError(Problem(
             code=ProblemCode.CODE_COLLISION, category=Category.DATA, item=col,
