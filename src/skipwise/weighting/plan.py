@@ -15,7 +15,9 @@ from typing import Any
 
 from skipwise.errors import ProblemCode, ProblemList, SkipwiseError, did_you_mean
 from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
+from skipwise.weighting.adjust import DEFAULT_MAX_FACTOR, DEFAULT_MIN_RESPONDENTS
 from skipwise.weighting.outcomes import OUTCOME_CATEGORIES
+from skipwise.weighting.propensity import DEFAULT_PROPENSITY_CLASSES
 from skipwise.weighting.specs import (
     CalibrationSpec, DispositionSpec, EstimateSpec, NonresponseSpec, ReplicateSpec, SplitSpec, TrimSpec,
     WeightingPlan, nearest_line,
@@ -232,11 +234,11 @@ def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | N
         method = c.choice(m, "method", p, ("classes", "propensity"), "classes")
         nr = NonresponseSpec(
             method=method, classes=c.names(m, "classes", p),
-            min_respondents=c.number(m, "min_respondents", p, 20, low=1, integer=True),
-            max_factor=c.number(m, "max_factor", p, 2.0, low=1),
+            min_respondents=c.number(m, "min_respondents", p, DEFAULT_MIN_RESPONDENTS, low=1, integer=True),
+            max_factor=c.number(m, "max_factor", p, DEFAULT_MAX_FACTOR, low=1),
             covariates=c.names(m, "covariates", p), categorical=c.names(m, "categorical", p),
             propensity_use=c.choice(m, "propensity_use", p, ("inverse", "classes"), "inverse"),
-            propensity_classes=c.number(m, "propensity_classes", p, 5, low=1, integer=True))
+            propensity_classes=c.number(m, "propensity_classes", p, DEFAULT_PROPENSITY_CLASSES, low=1, integer=True))
         if method == "propensity" and not nr.covariates:
             c.add(ProblemCode.MISSING_KEY, p, "the propensity method needs 'covariates'")
     cal = None

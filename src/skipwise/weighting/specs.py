@@ -9,6 +9,9 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
+from skipwise.weighting.adjust import DEFAULT_MAX_FACTOR, DEFAULT_MIN_RESPONDENTS
+from skipwise.weighting.propensity import DEFAULT_PROPENSITY_CLASSES
+
 __all__ = ["WeightingPlan", "DispositionSpec", "SplitSpec", "NonresponseSpec", "CalibrationSpec",
            "TrimSpec", "ReplicateSpec", "EstimateSpec", "nearest_line"]
 
@@ -44,12 +47,12 @@ class DispositionSpec:
 class NonresponseSpec:
     method: str = "classes"
     classes: tuple[str, ...] = ()
-    min_respondents: int = 20
-    max_factor: float = 2.0
+    min_respondents: int = DEFAULT_MIN_RESPONDENTS
+    max_factor: float = DEFAULT_MAX_FACTOR
     covariates: tuple[str, ...] = ()
     categorical: tuple[str, ...] = ()
     propensity_use: str = "inverse"
-    propensity_classes: int = 5
+    propensity_classes: int = DEFAULT_PROPENSITY_CLASSES
 
 
 @dataclass(frozen=True, kw_only=True)
