@@ -30,6 +30,8 @@ def test_numeric_comparison_matches_welch_formula():
     a, b = aux.age[miss], aux.age[~miss]
     t = (a.mean() - b.mean()) / np.sqrt(a.var() / len(a) + b.var() / len(b))
     assert_allclose(row["statistic"], t, rtol=1e-10)
+    # Standardized difference with the pooled SD √((s²_m + s²_r)/2) (Austin 2009, Statistics in
+    # Medicine 28:3083–3107, balance diagnostics) [memory].
     assert_allclose(row["std_difference"], (a.mean() - b.mean()) / np.sqrt((a.var() + b.var()) / 2), rtol=1e-12)
     assert res.n_nonrespondents == int(miss.sum())
 
@@ -43,13 +45,16 @@ def test_categorical_comparison_matches_pearson_and_cramer():
     exp = obs.sum(1, keepdims=True) * obs.sum(0, keepdims=True) / obs.sum()
     chi2 = ((obs - exp) ** 2 / exp).sum()
     assert_allclose(row["statistic"], chi2, rtol=1e-10)
-    assert_allclose(row["cramers_v"], np.sqrt(chi2 / len(miss)), rtol=1e-10)
+    assert_allclose(row["cramers_v"], np.sqrt(chi2 / len(miss)), rtol=1e-10)  # min(3, 2) − 1 = 1
+    # the χ² itself against scipy's contingency test (no continuity correction for a 3×2 table)
+    from scipy.stats import chi2_contingency
+    assert_allclose(row["statistic"], chi2_contingency(obs, correction=False).statistic, rtol=1e-10)
     cats = res.categories.set_index("category")
     assert_allclose(cats.loc["east", "nonresponse_rate"], miss[aux.region == "east"].mean(), rtol=1e-12)
 
 
 def test_auc_equals_pairwise_count():
-    # AUC = P(score_pos > score_neg) + ½ P(tie): direct count over all pairs (Hanley & McNeil 1982).
+    # AUC = P(score_pos > score_neg) + ½ P(tie): direct count over all pairs (Hanley & McNeil 1982 [memory]).
     rng = np.random.default_rng(2)
     s = np.round(rng.normal(size=60), 1)  # rounding makes ties
     y = rng.random(60) < 0.4

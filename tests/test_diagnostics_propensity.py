@@ -43,8 +43,9 @@ def test_r_indicator_is_one_minus_twice_sd():
     res = r_indicator(resp, frame, categorical=["region"])
     rho = res.propensities.to_numpy()
     assert_allclose(res.r_indicator, 1 - 2 * np.std(rho, ddof=1), rtol=1e-12)
-    # logistic score equations: mean propensity equals the response rate (Hosmer & Lemeshow)
+    # logistic score equations: mean propensity equals the response rate (Hosmer & Lemeshow [memory])
     assert_allclose(res.mean_propensity, resp.mean(), rtol=1e-6)
+    # maximal absolute bias B_m = (1 − R)/(2 ρ̄) (Schouten, Cobben & Bethlehem 2009) [memory]
     assert_allclose(res.max_abs_bias, (1 - res.r_indicator) / (2 * resp.mean()), rtol=1e-6)
 
 
@@ -140,7 +141,7 @@ def test_weighted_model_uses_robust_sandwich_as_documented():
     assert_allclose(model["std_err"], direct.bse, rtol=1e-6)
     assert_allclose(model["p_value"], direct.pvalues, rtol=1e-5, atol=1e-12)
     assert_allclose(res.propensities.to_numpy(), direct.predict(), rtol=1e-7)
-    # Binder (1983) linearization variance A⁻¹BA⁻¹, A = Σ d ρ(1−ρ) x xᵀ, B = Σ d² (y−ρ)² x xᵀ, by hand
+    # Binder (1983) [memory] linearization variance A⁻¹BA⁻¹, A = Σ d ρ(1−ρ) x xᵀ, B = Σ d² (y−ρ)² x xᵀ, by hand
     xv, d, y, rho = x.to_numpy(float), w.to_numpy(), resp.to_numpy(float), res.propensities.to_numpy()
     a_inv = np.linalg.inv(xv.T @ (xv * (d * rho * (1 - rho))[:, None]))
     b = xv.T @ (xv * ((d * (y - rho)) ** 2)[:, None])

@@ -19,10 +19,11 @@ def test_worked_example_small_sample_df():
     assert_allclose(p.estimate, [3.0])
     assert_allclose(p.total, [4.0], rtol=1e-12)
     assert_allclose(p.r, [3.0], rtol=1e-12)
-    assert_allclose(p.lam, [0.75], rtol=1e-12)
+    assert_allclose(p.lam, [0.75], rtol=1e-12)  # λ = (1+1/m)B/T = 3/4 [computed]
     assert_allclose(p.df_old, [7.1111], atol=1e-4)
     assert_allclose(p.df, [1.6304], atol=1e-4)
-    # Rubin's gamma = (r + 2/(nu+3))/(r+1) with the reported nu [formula, REFERENCES.md / brief].
+    # Rubin's gamma = (r + 2/(nu+3))/(r+1) with the reported nu [memory: Rubin 1987, Multiple
+    # Imputation for Nonresponse in Surveys; the formula is not in REFERENCES.md].
     assert_allclose(p.fmi, [(3 + 2 / (1.6304 + 3)) / 4], atol=1e-4)
 
 
@@ -36,7 +37,8 @@ def test_df_old_484_for_m5_r010():
 
 
 def test_no_between_variance_gives_observed_df():
-    # Barnard & Rubin (1999): with B = 0, nu_old is infinite and nu = nu_obs = (nu_com+1)/(nu_com+3) nu_com.
+    # Barnard & Rubin (1999) [memory]: with B = 0, nu_old is infinite and
+    # nu = nu_obs = (nu_com+1)/(nu_com+3) nu_com = 21/23 * 20 [computed].
     p = rubin_pool([2.0, 2.0, 2.0], [0.5, 0.5, 0.5], df_com=20)
     assert_allclose(p.df, [21 / 23 * 20], rtol=1e-12)
     assert_allclose(p.total, [0.5])

@@ -90,7 +90,7 @@ def test_completed_data_obey_routing(data, method):
         assert set(d.loc[imp["employed"], "employed"]) <= {1.0, 2.0}
         ages = d.loc[imp["age"], "age"]
         assert ((ages >= 10) & (ages <= 90) & (ages == np.round(ages))).all()
-        assert (imp.sum() > 0).all() or method == "mode"
+        assert (imp.sum() > 0).all()  # every item has fillable cells here, whatever the method
 
 
 def test_gate_fill_respects_later_answers(data):

@@ -34,6 +34,11 @@ def test_kish_deff_and_little():
     frame.loc[rng.random(200) < 0.2, "b"] = np.nan
     res = skipwise.little_mcar_test(frame)
     assert res.df == 1 and 0 <= res.p_value <= 1 and res.statistic >= 0
+    # Two variables, one incomplete: Little (1988) reduces to the two-sample form
+    # d² = (ā_obs − ā_mis)² / (σ̂_aa (1/n_obs + 1/n_mis)), σ̂_aa divisor-n [seen, abstract; computed, derived]
+    a, miss = frame["a"].to_numpy(), frame["b"].isna().to_numpy()
+    d2 = (a[~miss].mean() - a[miss].mean()) ** 2 / (np.var(a) * (1 / (~miss).sum() + 1 / miss.sum()))
+    assert res.statistic == pytest.approx(d2, rel=1e-7)
 
 
 def test_questionnaire_read_and_classify(tmp_path):

@@ -33,7 +33,9 @@ def test_weighting_class_factors_raghunathan():
     assert_allclose(res.table["factor"].to_numpy(), [1.5, 4.0], rtol=1e-12)
     assert res.collapses == ()
     w = res.weights
-    assert_allclose(w[:40], 1.5) and assert_allclose(w[60:70], 4.0)
+    # assert_allclose returns None, so the two checks must be separate statements
+    assert_allclose(w[:40], 1.5, rtol=1e-12)  # 60/40 [seen: Raghunathan 2015]
+    assert_allclose(w[60:70], 4.0, rtol=1e-12)  # 40/10 [seen: Raghunathan 2015]
     assert (w[~df["resp"].to_numpy()] == 0).all()
     # Kish (1992): deff = n Σw²/(Σw)² = 1.25 and n_eff = 40 for these weights [computed]
     assert_allclose(kish_deff(w), 1.25, rtol=1e-12)

@@ -20,9 +20,12 @@ VECTOR = {"I": 400, "P": 50, "R": 200, "NC": 150, "O": 20, "UH": 100, "UO": 80, 
 
 def test_exact_test_vector_response_rates():
     r = outcome_rates(VECTOR)
-    # e = 82/105 by proportional allocation [computed from the formulas]
+    # e = 82/105 by proportional allocation: eligible share among known eligibility, 820/1050
+    # [method: memory; value computed]
     assert_allclose(r["e"], 82 / 105, rtol=1e-14)
     assert r["e_method"] == E_METHOD_ESTIMATED
+    # RR1..RR6 of AAPOR Standard Definitions (2016), with D = 820, U = 180 [computed from the
+    # formulas in REFERENCES.md], e.g. RR1 = 400/1000, RR3 = 400/(820 + (82/105)·180) = 700/1681.
     expected = [Fraction(2, 5), Fraction(9, 20), Fraction(700, 1681), Fraction(1575, 3362),
                 Fraction(20, 41), Fraction(45, 82)]
     got = [r[f"RR{i}"] for i in range(1, 7)]

@@ -112,11 +112,18 @@ def test_chain_meets_margins_cap_and_keeps_weight_sum():
 
 
 def _ne_weight(prep, res):
-    # weight that the eligibility step handed to not-eligible cases and then dropped
-    from skipwise.weighting.adjust import class_adjust
-    adj = class_adjust(res.stages["base"], prep.elig_codes, prep.elig_labels, prep.known | prep.unknown,
-                       prep.known, step="e")
-    return adj.weights[prep.outcome.to_numpy() == "NE"].sum()
+    # Weight that the eligibility step handed to not-eligible cases and then dropped, by hand
+    # with pandas (weighting-class adjustment, Raghunathan 2015 [seen]): within each eligibility
+    # class the unknown-eligibility cases' weight goes to the known cases in proportion to their
+    # weight, factor Σ_{known+unknown} d / Σ_known d; the NE cases' share is then dropped.
+    d = pd.Series(res.stages["base"])
+    outcome = prep.outcome.to_numpy()
+    unknown = np.isin(outcome, ["UH", "UO"])
+    known = ~unknown
+    cls = prep.frame["region"].to_numpy()  # the plan's eligibility classes: [region]
+    factor = d.groupby(cls).sum() / d[known].groupby(cls[known]).sum()
+    ne = outcome == "NE"
+    return float((d[ne] * factor.loc[cls[ne]].to_numpy()).sum())
 
 
 def test_chain_is_a_function_of_base_weights():

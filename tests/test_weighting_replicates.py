@@ -39,14 +39,15 @@ def test_jk1_se_of_mean_equals_textbook_under_srs():
     row = table[table["kind"] == "mean"].iloc[0]
     assert_allclose(row["estimate"], y.mean(), rtol=1e-12)
     assert_allclose(row["se"], y.std(ddof=1) / np.sqrt(len(y)), rtol=1e-10)
-    # proportion: SE = √(p(1−p)/(n−1)) under SRS (same formula with s² of a 0/1 variable)
+    # proportion: SE = √(p(1−p)/(n−1)) under SRS (Cochran 1977 [memory]: s² of a 0/1 variable is
+    # n p(1−p)/(n−1), so s/√n = √(p(1−p)/(n−1)) [computed])
     p = (df["b"] == "p").mean()
     prow = table[(table["kind"] == "proportion") & (table["category"] == "p")].iloc[0]
     assert_allclose(prow["se"], np.sqrt(p * (1 - p) / (len(df) - 1)), rtol=1e-10)
 
 
 def test_bootstrap_se_close_to_textbook_on_seeded_sample():
-    # Rao & Wu (1988) rescaling bootstrap; textbook s/√n (Cochran 1977 [memory]).
+    # Rao & Wu (1988) rescaling bootstrap [memory]; textbook s/√n (Cochran 1977 [memory]).
     # Tolerance: with R = 1000 replicates the Monte Carlo error of an SE is about 1/√(2R) ≈ 2.2 %;
     # we allow 10 %.
     df = _srs(200, seed=9)
@@ -60,11 +61,13 @@ def test_jkn_factors_and_variance_coefficients():
     df = pd.DataFrame({"h": [1, 1, 1, 2, 2], "u": [1, 2, 3, 1, 2]})
     d = jackknife_design(df, psu="u", strata="h")
     assert d.method == "JKn" and d.count == 5
-    # replicate deleting PSU 1 of stratum 1: factors 0, 3/2, 3/2 in h=1, 1 elsewhere (Wolter 2007)
+    # replicate deleting PSU 1 of stratum 1: factors 0, 3/2, 3/2 in h=1, 1 elsewhere (Wolter 2007,
+    # Introduction to Variance Estimation, JKn: n_h/(n_h − 1) in the deleted PSU's stratum) [memory]
     assert_allclose(d.factors[:, 0], [0, 1.5, 1.5, 1, 1])
     assert_allclose(d.factors[:, 3], [1, 1, 1, 0, 2])
     assert_allclose(d.coef, [2 / 3, 2 / 3, 2 / 3, 1 / 2, 1 / 2])
-    # JKn variance = Σ_h (n_h−1)/n_h Σ_j (θ_hj − θ̄_h)² on a hand-checked vector
+    # JKn variance = Σ_h (n_h−1)/n_h Σ_j (θ_hj − θ̄_h)² (Wolter 2007 [memory]) on a hand-checked
+    # vector: stratum 1 (1, 2, 3) has Σ dev² = 2, stratum 2 (5, 7) has Σ dev² = 2 [computed]
     theta = np.array([1.0, 2.0, 3.0, 5.0, 7.0])[:, None]
     assert_allclose(replicate_variance(theta, d), [2 / 3 * 2 + 1 / 2 * 2])
 
@@ -72,7 +75,7 @@ def test_jkn_factors_and_variance_coefficients():
 def test_bootstrap_factors_rao_wu():
     df = pd.DataFrame({"h": [1] * 4 + [2] * 3, "u": [1, 2, 3, 4, 1, 2, 3]})
     d = bootstrap_design(df, psu="u", strata="h", count=50, seed=1)
-    # Rao, Wu & Yue (1992): m_h = n_h − 1 draws, factor n_h/(n_h−1) · m*; so factors sum to n_h per stratum
+    # Rao, Wu & Yue (1992) [memory]: m_h = n_h − 1 draws, factor n_h/(n_h−1) · m*; so factors sum to n_h per stratum
     assert_allclose(d.factors[:4].sum(axis=0), 4.0)
     assert_allclose(d.factors[4:].sum(axis=0), 3.0)
     assert set(np.round(d.factors[:4].ravel() * 3 / 4, 10)) <= {0.0, 1.0, 2.0, 3.0}
