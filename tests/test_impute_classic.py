@@ -67,7 +67,7 @@ def test_drop_variables_reports_rate_and_reason():
 def test_mean_fill_shrinks_variance_and_says_so(holey):
     res = simple_impute(holey, ["a", "b"], statistic="mean")
     assert_allclose(res.data["a"][res.imputed["a"]], holey["a"].mean())
-    assert res.data["a"].var() < holey["a"].var()          # Little & Rubin (2019) sec. 4.2
+    assert res.data["a"].var() < holey["a"].var()          # Little & Rubin (2019) sec. 4.2 [memory]
     assert SIMPLE_CAUTION in res.cautions and "shrinks" in res.summary()
     assert res.n_imputed["a"] == holey["a"].isna().sum()
 

@@ -25,7 +25,7 @@ def mcar():
                          ids=["whole-file", "classes", "nearest", "donor-limit"])
 def test_mean_unbiased_under_mcar(mcar, kw):
     # Under MCAR the respondents are a random subsample, so a donor draw has the population
-    # distribution (Andridge & Little 2010, sec. 2). The full-data mean's SE here is about
+    # distribution (Andridge & Little 2010, sec. 2 [memory]). The full-data mean's SE here is about
     # 0.02; tolerance 0.08 (~4 SE) keeps the seeded test stable.
     df, y = mcar
     res = hotdeck(df, ["y"], seed=5, **kw)

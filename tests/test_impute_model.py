@@ -54,7 +54,7 @@ def test_matching_picks_among_k_nearest():
 @pytest.mark.parametrize("method", ["pmm", "regression"], ids=["pmm", "regression"])
 @pytest.mark.parametrize("proper", [False, True], ids=["improper", "proper"])
 def test_mean_unbiased_under_mcar(mcar, method, proper):
-    # Under MCAR a model fitted to observed cases is unbiased (Rubin 1987, ch. 2); the SE of
+    # Under MCAR a model fitted to observed cases is unbiased (Rubin 1987, ch. 2 [memory]); the SE of
     # the mean is about 0.013; tolerance 0.06.
     df, full = mcar
     res = model_impute(df, ["y"], predictors=["x"], method=method, proper=proper, seed=2)
@@ -69,7 +69,7 @@ def test_pmm_reproduces_only_observed_values(mcar):
     res = model_impute(df, ["y", "c"], predictors=["x"], method="pmm", seed=3)
     for col in ("y", "c"):
         filled = res.data.loc[res.imputed[col], col]
-        assert set(filled).issubset(set(df[col].dropna()))   # Little (1988): values come from donors
+        assert set(filled).issubset(set(df[col].dropna()))   # Little (1988) [memory]: values come from donors
 
 
 @pytest.mark.parametrize("residuals", ["normal", "observed"], ids=["normal", "observed"])

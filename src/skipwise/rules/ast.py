@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Iterator, Union
 
 __all__ = [
@@ -14,25 +14,25 @@ __all__ = [
 @dataclass(frozen=True)
 class Number:
     value: float
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class String:
     value: str
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class Name:
     name: str
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class Neg:
     operand: "ValueNode"
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
@@ -40,7 +40,7 @@ class Arith:
     op: str  # one of + - * /
     left: "ValueNode"
     right: "ValueNode"
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
@@ -48,7 +48,7 @@ class Compare:
     op: str  # one of == != < <= > >=
     left: "ValueNode"
     right: "ValueNode"
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
@@ -56,33 +56,33 @@ class InList:
     operand: "ValueNode"
     options: tuple[float | str, ...]
     negated: bool = False
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class Not:
     operand: "BoolNode"
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class BoolOp:
     op: str  # "and" | "or"
     operands: tuple["BoolNode", ...]
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class Answered:
     name: str
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 @dataclass(frozen=True)
 class HasCode:
     name: str
     reason: str
-    col: int = 0
+    col: int = field(default=0, compare=False)  # position in the rule text; not part of the meaning
 
 
 ValueNode = Union[Number, String, Name, Neg, Arith]
