@@ -311,3 +311,9 @@ def test_one_pass_figures_equal_classifier_methods(tiny):
     for name in ("applicable", "answered", "nonresponse", "faults"):
         assert getattr(fig, name).tolist() == cases[name].tolist(), name
     assert fig.broke_off.tolist() == cases["broke_off"].tolist()
+    # And against the statuses stated by hand (HAND), not only against the classifier's methods.
+    hand = pd.DataFrame(HAND, columns=ITEMS)
+    for item in ITEMS:
+        for status, n in hand[item].value_counts().items():
+            assert fig.counts.loc[item, status] == n, (item, status)
+    assert fig.answered.tolist() == (hand == "answered").sum(axis=1).tolist()
