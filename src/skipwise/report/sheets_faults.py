@@ -19,11 +19,7 @@ _LIST_HEADER = {"case_id": "Case id", "item": "Item", "status": "Status", "value
 
 def _clean_column(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
     """Cleaned text (vectorized) and a mask of cells that would read as a formula."""
-    text = values.astype(object).where(values.notna(), "").astype(str)
-    text = text.str.replace(r"[\x00-\x08\x0b\x0c\x0e-\x1f]", "\ufffd", regex=True)
-    long = text.str.len() > st.EXCEL_MAX_CELL_CHARS
-    if long.any():
-        text = text.where(~long, text.str.slice(0, st.EXCEL_MAX_CELL_CHARS - 1) + "\u2026")
+    text = st.clean_texts(values.astype(object).where(values.notna(), "").astype(str))
     arr = text.to_numpy(dtype=object)
     return arr, text.str.startswith("=").to_numpy(dtype=bool)
 

@@ -14,13 +14,14 @@ import re
 from typing import Any, Iterable, Sequence
 
 import numpy as np
+import pandas as pd
 from openpyxl.cell import WriteOnlyCell
 from openpyxl.styles import Alignment, Border, Font, PatternFill, Side
 from openpyxl.utils import get_column_letter
 
 __all__ = [
     "EXCEL_MAX_ROWS", "EXCEL_MAX_CELL_CHARS", "PCT", "INT", "DEC", "WEIGHTED",
-    "clean_text", "text_cell", "value_cell", "header_row", "title_row", "note_row",
+    "clean_text", "clean_texts", "text_cell", "value_cell", "header_row", "title_row", "note_row",
     "set_widths", "grid_cell", "table_ref",
 ]
 
@@ -57,6 +58,15 @@ def clean_text(value: object) -> str:
     text = _ILLEGAL.sub("\ufffd", str(value))
     if len(text) > EXCEL_MAX_CELL_CHARS:
         text = text[: EXCEL_MAX_CELL_CHARS - 1] + "\u2026"
+    return text
+
+
+def clean_texts(text: pd.Series) -> pd.Series:
+    """:func:`clean_text` over a whole column of strings at once."""
+    text = text.str.replace(_ILLEGAL.pattern, "\ufffd", regex=True)
+    long = text.str.len() > EXCEL_MAX_CELL_CHARS
+    if long.any():
+        text = text.where(~long, text.str.slice(0, EXCEL_MAX_CELL_CHARS - 1) + "\u2026")
     return text
 
 
