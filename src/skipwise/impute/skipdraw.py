@@ -108,7 +108,8 @@ def _hotdeck(work, status, q, name, rule, rows, donors, method, rng):
 
 def _single_value(work, status, q, name, rule, rows, donors, yv, method):
     obs = pd.Series(yv[donors])
-    keys = [pd.Series(a[donors]) for a in class_arrays(work, status, q, list(rule.classes))]
+    arrays = class_arrays(work, status, q, list(rule.classes))
+    keys = [pd.Series(a[donors]) for a in arrays]
 
     def stat(s: pd.Series):
         if method == "mode":
@@ -119,7 +120,7 @@ def _single_value(work, status, q, name, rule, rows, donors, yv, method):
     if not keys:
         return np.full(rows.size, overall, dtype=object)
     by = obs.groupby(keys, dropna=False).agg(stat)
-    rec_keys = pd.MultiIndex.from_arrays([a[rows] for a in class_arrays(work, status, q, list(rule.classes))])
+    rec_keys = pd.MultiIndex.from_arrays([a[rows] for a in arrays])
     vals = by.reindex(rec_keys if len(keys) > 1 else rec_keys.get_level_values(0)).to_numpy(dtype=object)
     vals[pd.isna(vals)] = overall
     return vals
