@@ -133,9 +133,9 @@ def encode_margins(data: pd.DataFrame, margins: Mapping[str, Mapping[object, flo
         raw_codes, uniques = pd.factorize(col, sort=False)
         lookup = {lab: i for i, lab in enumerate(labels)}
         mapped = np.array([lookup.get(category_label(u), -1) for u in uniques], dtype=np.intp)
-        for u, m in zip(uniques, mapped):
+        per_unique = np.bincount(raw_codes[raw_codes >= 0], minlength=len(uniques))
+        for u, m, n_u in zip(uniques, mapped, per_unique):
             if m < 0:
-                n_u = int((col == u).sum())
                 problems.append(Problem(code=ProblemCode.UNDECLARED_VALUE, category=Category.DATA,
                                         item=str(variable),
                                         message=f"category {category_label(u)!r} of '{variable}' occurs in "

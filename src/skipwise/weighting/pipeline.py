@@ -93,10 +93,11 @@ def outcome_categories(frame: pd.DataFrame, plan: WeightingPlan, share_answered:
     if (codes < 0).any():
         problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=spec.column,
                                 message=f"{int((codes < 0).sum())} case(s) have no disposition", **loc))
-    for u, m in zip(uniques, mapped):
+    per_unique = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    for u, m, n_u in zip(uniques, mapped, per_unique):
         if m is None:
             problems.append(Problem(code=ProblemCode.UNDECLARED_VALUE, category=Category.DATA, item=spec.column,
-                                    message=f"disposition {category_label(u)!r} ({int((col == u).sum())} case(s)) "
+                                    message=f"disposition {category_label(u)!r} ({n_u} case(s)) "
                                             f"is not mapped to an outcome category",
                                     hint="add it under dispositions.categories", file=plan.file,
                                     line=plan.line("dispositions", "categories")))
