@@ -14,7 +14,7 @@ from skipwise.classify import statuses as S
 from skipwise.errors import Category, Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
 from skipwise.questionnaire.model import ItemType, Questionnaire
-from skipwise.questionnaire.yamlread import LineDict, load_yaml_text, read_text_file
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 
 __all__ = ["ImputePlan", "OutputSpec", "load_plan", "check_plan", "TOP_KEYS", "RULE_KEYS", "OUTPUT_KEYS"]
 
@@ -94,12 +94,26 @@ class _Reader:
             return default
         return v
 
+    def text(self, m: dict, key: str, default: str) -> str:
+        """A name as the text written (YAML 1.2 rule); a list, mapping or empty text is refused."""
+        if key not in m:
+            return default
+        t = m.text(key) if isinstance(m, LineDict) else (m[key] if isinstance(m[key], str) else None)
+        if not t or not t.strip():
+            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a name, got {m[key]!r}")
+            return default
+        return t
+
     def names(self, m: dict, key: str) -> tuple[str, ...]:
         v = m.get(key)
         if v is None:
             return ()
+        if isinstance(m, LineDict) and not isinstance(v, (str, list, dict)):
+            v = m.text(key)  # a name is the text written (YAML 1.2 rule)
         if isinstance(v, str):
             v = [v]
+        if isinstance(v, LineList):
+            v = [v.text(i) if not isinstance(x, (list, dict)) else x for i, x in enumerate(v)]
         if not isinstance(v, list) or not all(isinstance(x, str) for x in v):
             self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a list of names")
             return ()
@@ -138,7 +152,7 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
     """Check a plan's structure and build it (names are checked by :func:`check_plan`)."""
     r = _Reader(file)
     top = r.mapping(doc if doc is not None else LineDict(), (), TOP_KEYS, 1) or LineDict()
-    if "format" in top and top["format"] != 1:
+    if "format" in top and not is_version(top["format"], 1):
         r.add(ProblemCode.FORMAT_VERSION, r.line_of(top, "format"), f"plan format {top['format']!r} is not supported",
               "use format: 1")
     seed = top.get("seed")
@@ -158,8 +172,8 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
     statuses = r.names(top, "statuses") or None
     out = r.mapping(top.get("output"), ("output",), OUTPUT_KEYS, r.line_of(top, "output")) or {}
     output = OutputSpec(form=r.choice(out, "form", FORMS, "files"),
-                        imputation_column=str(out.get("imputation_column", "imputation")),
-                        flag_suffix=str(out.get("flag_suffix", "_imp")))
+                        imputation_column=r.text(out, "imputation_column", "imputation"),
+                        flag_suffix=r.text(out, "flag_suffix", "_imp"))
     spec = SkipAwareSpec(
         default=default if default.method != "none" else ItemRule(), items=rules,
         include=r.names(top, "only") or None, exclude=tuple(excluded), statuses=statuses,
