@@ -26,6 +26,8 @@ FORMS = ("files", "stacked")
 SKIP_FILLS = ("auto", "blank", "code")
 NUMERIC_ONLY = ("regression", "mean", "median")
 CATEGORICAL_ONLY = ("logistic", "multinomial")
+#: Most imputations a plan may ask for (each is a full copy of the data in memory).
+MAX_IMPUTATIONS = 1000
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -85,12 +87,14 @@ class _Reader:
     def line_of(self, m: dict, key: str) -> int | None:
         return m.key_line(key) if isinstance(m, LineDict) else None
 
-    def integer(self, m: dict, key: str, default: int | None, low: int) -> int | None:
+    def integer(self, m: dict, key: str, default: int | None, low: int, high: int | None = None) -> int | None:
         if key not in m or m[key] is None:
             return default
         v = m[key]
-        if isinstance(v, bool) or not isinstance(v, int) or v < low:
-            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a whole number >= {low}, got {v!r}")
+        if isinstance(v, bool) or not isinstance(v, int) or v < low or (high is not None and v > high):
+            bound = f"from {low} to {high:,}" if high is not None else f">= {low}"
+            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a whole number {bound}, got {v!r}",
+                     "common practice: 5 to 100 imputations" if key == "imputations" else None)
             return default
         return v
 
@@ -177,7 +181,7 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
     spec = SkipAwareSpec(
         default=default if default.method != "none" else ItemRule(), items=rules,
         include=r.names(top, "only") or None, exclude=tuple(excluded), statuses=statuses,
-        m=r.integer(top, "imputations", 5, 1), seed=seed,
+        m=r.integer(top, "imputations", 5, 1, MAX_IMPUTATIONS), seed=seed,
         skip_fill=r.choice(top, "skip_fill", SKIP_FILLS, "auto"),
         max_redraws=r.integer(top, "max_redraws", 20, 0),
     )
@@ -249,4 +253,28 @@ def check_plan(plan: ImputePlan, q: Questionnaire, columns: Iterable[str]) -> No
             if bad:
                 pl.add(ProblemCode.TYPE_CLASH, bad, line=plan.line(*path), item=t,
                        hint="give the item its own method under items:")
+    _check_outputs(plan, q, columns, pl)
     pl.raise_if_any(headline=f"{len(pl)} problem(s) in imputation plan {plan.file or ''}".strip())
+
+
+def _check_outputs(plan: ImputePlan, q: Questionnaire, columns: list[str], pl: ProblemList) -> None:
+    """At least one item to impute, and flag / imputation-number names that clash with nothing."""
+    from skipwise.generated import Generated, generated_problems
+
+    targets = plan.spec.targets(q)
+    if not targets:
+        where = next((k for k in ("only", "exclude", "items", "default") if plan.line(k) is not None), None)
+        pl.add(ProblemCode.BAD_VALUE, "the plan leaves no item to impute", line=plan.line(where) if where else None,
+               hint="check 'only', 'exclude' and the items set to method: none (text, date and multi items "
+                    "are imputed only when named under items:)")
+        return
+    out = plan.output
+    names = []
+    if out.form == "stacked":
+        names.append(Generated(name=out.imputation_column, role="imputation column", file=plan.file,
+                               line=plan.line("output", "imputation_column"),
+                               hint="set output.imputation_column in the plan to a name the data does not use"))
+    names += [Generated(name=f"{t}{out.flag_suffix}", role=f"imputation flag of '{t}'", file=plan.file,
+                        line=plan.line("output", "flag_suffix"),
+                        hint="set output.flag_suffix in the plan to another suffix") for t in targets]
+    pl.extend(generated_problems(names, columns))
