@@ -77,7 +77,8 @@ def test_classify_recoded_dta_read_by_pandas(files):
     # pandas' own Stata reader (an independent implementation) sees the extended missing letters.
     back = pd.read_stata(out, convert_missing=True, convert_categoricals=False)
     cells = [v.string if hasattr(v, "string") else v for v in back["amount"]]
-    assert cells == [5, ".e", ".h", ".c"]  # answered, off_route, refused (first reason), gate_unknown
+    # DESIGN §3: off_route 6 -> .e, refused (built-in reason 12, docs/statuses.md) -> .j, gate_unknown 4 -> .c
+    assert cells == [5, ".e", ".j", ".c"]
 
 
 def test_user_error_exits_1_without_traceback(files):
