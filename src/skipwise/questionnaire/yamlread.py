@@ -299,7 +299,14 @@ def load_yaml_text(text: str, file: str | None = None) -> Any:
     """
     if len(text) > MAX_CHARS:
         raise _too_long(file, len(text), "characters")
-    loader = _Loader(text)
+    try:
+        loader = _Loader(text)
+    except yaml.reader.ReaderError as exc:
+        line = text.count("\n", 0, exc.position) + 1
+        raise SkipwiseError(Problem(
+            code=ProblemCode.YAML_SYNTAX, file=file, line=line,
+            message=f"not valid YAML: the control character U+{exc.character:04X} is not allowed",
+            hint="remove control characters (save the file as plain UTF-8 text)")) from None
     try:
         doc = loader.get_single_data()
     except _Limit as exc:
