@@ -16,7 +16,12 @@ from typing import Mapping
 
 from skipwise.rules import ast
 
-__all__ = ["CodeKind", "ItemType", "Code", "Item", "Section", "Roster", "BreakoffSpec", "Questionnaire"]
+__all__ = ["CodeKind", "ItemType", "Code", "Item", "Section", "Roster", "BreakoffSpec", "Questionnaire",
+           "STUDY_KEYS"]
+
+#: Keys of the optional ``study:`` block (study-level metadata for codebooks and the DDI export).
+STUDY_KEYS = ("title", "id", "producer", "population", "geography", "nation", "fieldwork_start",
+              "fieldwork_end", "mode", "sample_design", "weighting", "citation", "abstract")
 
 
 class CodeKind(str, Enum):
@@ -136,6 +141,7 @@ class Questionnaire:
     sections: tuple[Section, ...] = ()
     items: tuple[Item, ...] = ()
     breakoff: BreakoffSpec = field(default_factory=BreakoffSpec)
+    study: Mapping[str, str] = field(default_factory=dict)
     path: str | None = None
 
     def __post_init__(self) -> None:
