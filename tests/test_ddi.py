@@ -163,3 +163,29 @@ def test_codebook_command_writes_each_form(tmp_path):
     etree.XMLSchema(etree.parse(str(SCHEMA))).assertValid(etree.parse(str(tmp_path / "cb.xml")))
     bad = runner.invoke(app, ["codebook", str(data), "-q", str(q), "-o", str(tmp_path / "cb.pdf")])
     assert bad.exit_code == 1 and "must end in .xml" in bad.output
+
+
+def test_draft_from_a_ddi_document_round_trips_names_labels_categories_and_codes(case, tmp_path):
+    q, _, _, inp = case
+    xml = tmp_path / "cb.xml"
+    xml.write_bytes(ddi_bytes(inp))
+    out = tmp_path / "drafted.yaml"
+    res = CliRunner().invoke(app, ["draft", str(xml), "-o", str(out)])
+    assert res.exit_code == 0, res.output
+    drafted = loads_questionnaire(out.read_text())
+    assert drafted.case_id == "id" and drafted.name == "ddi-test"
+    for name in ("work", "hours"):
+        assert drafted.item(name).label == q.item(name).label
+    assert dict(drafted.item("work").values) == {1: "Yes", 2: "No"}  # NUL removed on export, spaces trimmed
+    assert {(c.value, c.reason, c.kind) for c in drafted.item("hours").codes} == \
+        {(c.value, c.reason, c.kind) for c in q.item("hours").codes}
+    assert "universe (from the DDI document, as free text): Asked if" in out.read_text()
+    assert drafted.item("hours").range == (1, 80)
+
+
+def test_draft_refuses_a_document_with_entities(tmp_path):
+    bomb = tmp_path / "bomb.xml"
+    bomb.write_text('<?xml version="1.0"?><!DOCTYPE x [<!ENTITY a "aaaa">]><codeBook xmlns="ddi:codebook:2_5"/>')
+    res = CliRunner().invoke(app, ["draft", str(bomb), "-o", str(tmp_path / "d.yaml")])
+    assert res.exit_code == 1 and "DOCTYPE" in res.output and "Traceback" not in res.output
+    assert not (tmp_path / "d.yaml").exists()
