@@ -26,7 +26,8 @@ def file_date(path: str | Path) -> date:
 
 def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=None, classification=None,
                    weight_prefix: str | None = None, weight: str | None = None, weight_labels: Mapping[str, str] | None = None,
-                   design=None, study: Mapping[str, str] | None = None, produced: date | None = None) -> CodebookInput:
+                   design=None, study: Mapping[str, str] | None = None, produced: date | None = None,
+                   min_base: int | None = None) -> CodebookInput:
     """A :class:`~skipwise.ddi.write.CodebookInput` for ``frame`` (the data file as delivered).
 
     ``weight_prefix`` marks the weight columns (``wt_``); replicate columns are
@@ -56,6 +57,12 @@ def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=N
         formula = (replicate_formula(method, len(replicates), coef) if design is not None
                    else f"{len(replicates)} replicate weights; see the weighting plan for the method.")
         rep = ReplicateGroup(columns=replicates, method=method, formula=formula)
+    rates = None
+    if classification is not None:
+        from skipwise.rates import DEFAULT_MIN_BASE, item_rates
+
+        w = pd.to_numeric(frame[weight], errors="coerce").to_numpy(float) if weight in cols else None
+        rates = item_rates(classification, w, min_base=DEFAULT_MIN_BASE if min_base is None else min_base)
     fmt = (meta.source_format or Path(file_name).suffix.lstrip(".")).lower()
     return CodebookInput(
         questionnaire=questionnaire, frame=frame, meta=meta, file_name=file_name,
@@ -63,4 +70,4 @@ def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=N
         statuses=classification.status if classification is not None else None,
         status_numbers=status_numbers(classification) if classification is not None else {},
         weight=weight, weight_columns=weights, replicates=rep,
-        study=study_metadata(getattr(questionnaire, "study", None), study), produced=produced)
+        study=study_metadata(getattr(questionnaire, "study", None), study), produced=produced, rates=rates)

@@ -22,7 +22,7 @@ from skipwise.pipeline.render import Block, to_html, to_markdown
 from skipwise.questionnaire.model import STUDY_KEYS, CodeKind, ItemType
 from skipwise.rules.words import universe_words
 
-__all__ = ["codebook_blocks", "codebook_markdown", "codebook_html", "fmt_number", "CAUTIONS"]
+__all__ = ["codebook_blocks", "codebook_markdown", "codebook_html", "fmt_number", "fmt_sum", "CAUTIONS"]
 
 CAUTIONS = (
     "Weights and imputation correct only for what the observed variables explain: they do not repair "
@@ -53,6 +53,14 @@ def fmt_number(v: object, digits: int = 4) -> str:
     return f"{f:,.{min(decimals, 10)}f}"
 
 
+def fmt_sum(v: object) -> str:
+    """A sum of weights: thousands separators and one decimal (whole numbers without)."""
+    f = float(v)  # type: ignore[arg-type]
+    if not math.isfinite(f):
+        return ""
+    return f"{int(f):,}" if f.is_integer() else f"{f:,.1f}"
+
+
 def codebook_markdown(inp: CodebookInput, extra: list[Block] | None = None) -> str:
     return to_markdown(codebook_blocks(inp, extra))
 
@@ -81,6 +89,13 @@ def codebook_blocks(inp: CodebookInput, extra: list[Block] | None = None) -> lis
         toc.append(("Status variables", "status-variables"))
     if rep_cols:
         toc.append(("Replicate weights", "replicate-weights"))
+    extra_blocks: list[Block] = []
+    for block in extra or []:
+        if block[0] == "h" and block[1] == 2:  # a section of the caller's: linked from the contents
+            name = f"x-{block[2]}"
+            toc.insert(toc.index(("Variables", "variables")), (str(block[2]), name))
+            extra_blocks.append(("anchor", name))
+        extra_blocks.append(block)
     b: list[Block] = [
         ("h", 1, f"Codebook: {title}"),
         ("p", f"Data file `{inp.file_name}` ({inp.file_format}): {len(frame):,} cases, {frame.shape[1]:,} "
@@ -93,7 +108,7 @@ def codebook_blocks(inp: CodebookInput, extra: list[Block] | None = None) -> lis
     study_rows = [[_STUDY_LABELS.get(k, k), inp.study[k]] for k in STUDY_KEYS if inp.study.get(k)]
     b.append(("table", ["", ""], study_rows) if study_rows else
              ("p", "No study block was given (add `study:` to the questionnaire or the run plan)."))
-    b += list(extra or [])
+    b += extra_blocks
     b += [("anchor", "variables"), ("h", 2, "Variables"),
           ("table", ["variable", "label", "type", "role"], [_overview_row(inp, c) for c in described])]
     if status_cols:
@@ -150,12 +165,12 @@ def _freq_table(inp: CodebookInput, col: str, values: dict, missing: dict) -> Bl
         kind = f"special code: {missing[v][0]} ({missing[v][1]})" if v in missing else "answer"
         row = [fmt_number(v) if not isinstance(v, str) else v, label, kind, fmt_number(counts.get(v, 0))]
         if w is not None:
-            row.append(fmt_number(round(wsum.get(v, 0.0), 1), 6))
+            row.append(fmt_sum(wsum.get(v, 0.0)))
         rows.append(row)
     blank = int(inp.frame[col].isna().sum())
     if blank:
         rows.append(["(blank)", "", "no value stored", fmt_number(blank)]
-                    + ([fmt_number(round(float(np.nansum(np.where(inp.frame[col].isna(), w, 0))), 1), 6)]
+                    + ([fmt_sum(np.nansum(np.where(inp.frame[col].isna(), w, 0)))]
                        if w is not None else []))
     return ("table", head, rows)
 
@@ -192,6 +207,8 @@ def _item_blocks(inp: CodebookInput, col: str) -> list[Block]:
         props.append(["set", f"a column of the check-all-that-apply set `{it.name}`"])
     out: list[Block] = [("anchor", col), ("h", 3, f"`{col}`: {label}" if label else f"`{col}`"),
                         ("table", ["property", "value"], props)]
+    if inp.rates is not None and it.name in inp.rates.items and it.columns[0] == col:
+        out += _rate_blocks(inp, it)
     values: dict = {}
     if it.type is ItemType.MULTI:
         values[normalize_value(it.selected)] = "Selected"
@@ -214,6 +231,34 @@ def _item_blocks(inp: CodebookInput, col: str) -> list[Block]:
     return out
 
 
+def _rate_blocks(inp: CodebookInput, it) -> list[Block]:
+    """The item's rates from the package's one rate function: shares of D that add up to 1."""
+    from skipwise.rates import format_rate
+
+    r = inp.rates
+    tables = [("cases", r.table(False).loc[it.name])]
+    if r.weighted:
+        tables.append((f"weighted ({inp.weight})", r.table(True).loc[it.name]))
+    head = ["", *[name for name, _ in tables]]
+    row0 = tables[0][1]
+    rows = [["D: in universe, excluding break-off and optional blanks", *[fmt_sum(t["D"]) for _, t in tables]],
+            ["answered rate", *[format_rate(t["answered_rate"]) for _, t in tables]],
+            ["item nonresponse rate", *[format_rate(t["nonresponse_rate"]) for _, t in tables]]]
+    for reason in (*r.reasons, "item_missing"):
+        if row0[reason]:
+            rows.append([f"  of which {reason.replace('_', ' ')}", *[format_rate(t[f"{reason}_rate"]) for _, t in tables]])
+    rows.append(["fault rate (wrong code, invalid)", *[format_rate(t["fault_rate"]) for _, t in tables]])
+    apart = [f"{k.replace('_', ' ')} {fmt_number(row0[k])}" for k in ("gate_unknown", "breakoff", "off_route",
+                                                                     "left_blank", "invalid_apart")
+             if k in row0.index and row0[k]]
+    out: list[Block] = [("p", "Item rates (the package's one set of rates, shares of D):"), ("table", head, rows)]
+    if apart:
+        out.append(("p", "Counted apart: " + "; ".join(apart) + "."))
+    if bool(row0["below_min_base"]):
+        out.append(("p", f"Fewer than {r.min_base} cases in D: too few to judge; left out of rankings."))
+    return out
+
+
 def _other_blocks(inp: CodebookInput, col: str) -> list[Block]:
     q, meta, frame = inp.questionnaire, inp.meta, inp.frame
     label = meta.column_labels.get(col) or inp.weight_columns.get(col, "")
@@ -229,7 +274,7 @@ def _other_blocks(inp: CodebookInput, col: str) -> list[Block]:
         x = pd.to_numeric(frame[col], errors="coerce").to_numpy(float)
         out.append(_stats_table(x, len(frame)))
         if col in inp.weight_columns:
-            out.append(("p", f"Sum of the weights: {fmt_number(round(float(np.nansum(x)), 1), 8)}."))
+            out.append(("p", f"Sum of the weights: {fmt_sum(np.nansum(x))}."))
     return out
 
 

@@ -26,7 +26,7 @@ import re
 import xml.etree.ElementTree as ET
 from dataclasses import dataclass, field
 from datetime import date
-from typing import Mapping, Sequence
+from typing import Any, Mapping, Sequence
 
 import numpy as np
 import pandas as pd
@@ -83,6 +83,7 @@ class CodebookInput:
     replicates: ReplicateGroup | None = None
     study: Mapping[str, str] = field(default_factory=dict)
     produced: date | None = None
+    rates: Any = None     # skipwise.rates.ItemRates of the classification (weighted with ``weight`` if given)
 
 
 def _sub(parent: ET.Element, tag: str, text: object = None, **attrs: str) -> ET.Element:
@@ -256,6 +257,28 @@ def _sum_stats(var: ET.Element, values: np.ndarray, n: int) -> None:
         _sub(var, "sumStat", _num(valid.max()), type="max")
 
 
+#: The package's item rates, written as ``sumStat type="other"`` (shares of D, DESIGN of the rates).
+RATE_STATS = (("base", "items-in-universe-D"), ("answered_rate", "answered-rate"),
+              ("nonresponse_rate", "item-nonresponse-rate"), ("fault_rate", "fault-rate"))
+
+
+def _rate_stats(var: ET.Element, inp: CodebookInput, item: str, wid: str | None) -> None:
+    """The item's rates from the package's one rate function (only an item's first column carries them)."""
+    r = inp.rates
+    if r is None or item not in r.items or inp.questionnaire.item(item).columns[0] != var.get("name"):
+        return
+    tables = [(r.table(False).loc[item], None)] + ([(r.table(True).loc[item], wid)] if r.weighted and wid else [])
+    for row, weight_id in tables:
+        for key, name in RATE_STATS:
+            if key == "base" and weight_id is not None:
+                continue
+            v = row[key]
+            if key != "base" and not np.isfinite(v):
+                continue
+            _sub(var, "sumStat", _num(round(float(v), 6)) if key != "base" else int(v), type="other",
+                 otherType=name, wgtd="wgtd" if weight_id else None, wgt_var=weight_id)
+
+
 def _item_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | None, wid: str | None) -> None:
     q, frame = inp.questionnaire, inp.frame
     it = q.item(q.column_owner[col])
@@ -279,6 +302,7 @@ def _item_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | Non
         if inp.statuses is not None and it.name in inp.statuses.columns:
             vals = np.where(inp.statuses[it.name].to_numpy() == "answered", vals, np.nan)
         _sum_stats(var, vals, len(frame))
+    _rate_stats(var, inp, it.name, wid)
     if not numeric:
         _sub(var, "txt", f"Type: {it.type.value}.")
     values: dict[object, str] = {}

@@ -290,28 +290,16 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
         weight_name = st.plan.report.weight
         weight = S.nan_to_zero(st.data[weight_name])
     files = [(st.targets[r].name, _describe(r)) for r in st.targets]
-    blocks = codebook_blocks(st, frame, meta, files, weight, weight_name)
+    from skipwise.ddi import ddi_bytes
     from skipwise.io.atomic import atomic_output
+    from skipwise.pipeline.codebook import package_input
 
+    inp = package_input(st, frame, meta, data_name, weight_name if weight_name in frame.columns else None)
+    blocks = codebook_blocks(st, frame, meta, files, weight, weight_name, inp=inp)
     with atomic_output(st.targets["codebook_md"], overwrite=True) as tmp:
         tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
     with atomic_output(st.targets["codebook_html"], overwrite=True) as tmp:
         tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
-    _codebook_xml(st, frame, meta, data_name)
-
-
-def _codebook_xml(st: S.RunState, frame, meta, data_name: str | None) -> None:
-    """The package's data file described in DDI-Codebook 2.5."""
-    from skipwise.ddi import ddi_bytes
-    from skipwise.ddi.build import codebook_input, file_date
-    from skipwise.io.atomic import atomic_output
-
-    res = st.weigh
-    inp = codebook_input(frame, st.q, meta=meta, file_name=data_name or st.plan.data.name, classification=st.cl,
-                         weight_prefix=res.plan.prefix if res is not None else None,
-                         weight_labels=S.weight_labels(res) if res is not None else None,
-                         design=res.design if res is not None else None, study=st.plan.study,
-                         produced=file_date(st.plan.data))
     with atomic_output(st.targets["codebook_xml"], overwrite=True) as tmp:
         tmp.write_bytes(ddi_bytes(inp))
 
