@@ -122,7 +122,8 @@ class _Builder:
             headline=f"{len(self.problems)} problem(s) in questionnaire {self.file or ''}".rstrip())
         return Questionnaire(name=survey["name"], title=survey.get("title", ""), case_id=survey["case_id"],
                              context=context, codes=global_codes, sections=tuple(sections),
-                             items=tuple(items), breakoff=breakoff, study=study, path=self.file)
+                             items=tuple(items), breakoff=breakoff, reason_numbers=numbers, study=study,
+                             path=self.file)
 
     def study(self, raw: Any, line: int, where: str) -> dict[str, str]:
         """The study-level metadata block: known keys, each a single text, number or date."""
@@ -138,7 +139,6 @@ class _Builder:
             elif key in STUDY_KEYS:
                 out[str(key)] = str(value)
         return out
-                             items=tuple(items), breakoff=breakoff, reason_numbers=numbers, path=self.file)
 
     def survey(self, doc: LineDict) -> dict[str, str]:
         raw = self.need_map(doc.get("survey"), "'survey'", doc.key_line("survey")) if "survey" in doc else None
