@@ -41,7 +41,7 @@ def codebook_command(
 ) -> None:
     from skipwise.cli.common import classify_with_progress, load_inputs
     from skipwise.ddi.build import codebook_input, file_date
-    from skipwise.io.atomic import atomic_output, check_writable
+    from skipwise.publish import check_writable, publish_file
 
     try:
         suffix = out.suffix.lower()
@@ -60,7 +60,7 @@ def codebook_command(
         inp = codebook_input(frame, q, file_name=data.name, classification=cl, weight_prefix=prefix,
                              weight=weight, weight_labels=wlabels, design=design, study=study,
                              produced=file_date(data))
-        with atomic_output(out, overwrite=overwrite) as tmp:
+        with publish_file(out, overwrite=overwrite) as tmp:
             if suffix == ".xml":
                 from skipwise.ddi import ddi_bytes
 
