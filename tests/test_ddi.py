@@ -189,3 +189,31 @@ def test_draft_refuses_a_document_with_entities(tmp_path):
     res = CliRunner().invoke(app, ["draft", str(bomb), "-o", str(tmp_path / "d.yaml")])
     assert res.exit_code == 1 and "DOCTYPE" in res.output and "Traceback" not in res.output
     assert not (tmp_path / "d.yaml").exists()
+
+
+def test_the_documented_study_block_loads_and_reaches_the_ddi_document():
+    import re
+
+    doc_text = (Path(__file__).parents[1] / "docs" / "codebook.md").read_text()
+    block = re.search(r"```yaml\n(study:\n.*?)```", doc_text, re.S).group(1)
+    text = Q.replace('study: {population: "Households of Orrin", mode: face to face, fieldwork_start: "2026-03-01"}\n',
+                     block)
+    q = loads_questionnaire(text)
+    assert q.study["fieldwork_end"] == "2026-05-29" and q.study["producer"] == "Marrowby Valley Statistics Unit"
+    frame = pd.DataFrame({"id": [1], "region": [1], "work": [1], "hours": [40]})
+    root = etree.fromstring(ddi_bytes(codebook_input(frame, q, file_name="x.csv", classification=classify(frame, q))))
+    assert root.findtext("d:stdyDscr/d:method/d:dataColl/d:sampProc", namespaces=NS).startswith("Stratified two-stage")
+    assert root.findtext("d:stdyDscr/d:citation/d:titlStmt/d:IDNo", namespaces=NS) == "marrowby-life-2026"
+    etree.XMLSchema(etree.parse(str(SCHEMA))).assertValid(root)
+
+
+def test_a_study_block_with_an_unknown_key_or_a_list_is_refused():
+    from skipwise.errors import SkipwiseError
+
+    bad = Q.replace('study: {population: "Households of Orrin", mode: face to face, fieldwork_start: "2026-03-01"}',
+                    "study: {populaton: x, mode: [a, b]}")
+    with pytest.raises(SkipwiseError) as err:
+        loads_questionnaire(bad)
+    text = err.value.render()
+    assert "unknown key 'populaton'" in text and "did you mean 'population'" in text
+    assert "study key 'mode' must be a single text" in text

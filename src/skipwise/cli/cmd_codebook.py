@@ -37,6 +37,9 @@ def codebook_command(
     weight: Annotated[Optional[str], typer.Option(
         "--weight", help="Column of weights for the weighted frequencies (default: the final weight, "
                          "when the data hold one).")] = None,
+    min_base: Annotated[Optional[int], typer.Option(
+        "--min-base", min=1, help="Items with fewer cases in D are marked 'too few to judge' (default 30, "
+                                  "common practice).")] = None,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing codebook.")] = False,
 ) -> None:
     from skipwise.cli.common import classify_with_progress, load_inputs
@@ -59,7 +62,7 @@ def codebook_command(
         cl = classify_with_progress(frame, q)
         inp = codebook_input(frame, q, file_name=data.name, classification=cl, weight_prefix=prefix,
                              weight=weight, weight_labels=wlabels, design=design, study=study,
-                             produced=file_date(data))
+                             produced=file_date(data), min_base=min_base)
         with publish_file(out, overwrite=overwrite) as tmp:
             if suffix == ".xml":
                 from skipwise.ddi import ddi_bytes
