@@ -14,13 +14,9 @@ from skipwise.classify import statuses as S
 from skipwise.errors import Category, Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
 from skipwise.impute.fit import method_misfit
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
-<<<<<<< HEAD
-from skipwise.questionnaire.model import ItemType, Questionnaire
-from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
-=======
-from skipwise.questionnaire.model import Questionnaire
-from skipwise.questionnaire.yamlread import LineDict, load_yaml_text, read_text_file
->>>>>>> main
+                       hint="give the item its own method under items:" if name is None
+                       else "choose one of the methods that fit")
+    _check_outputs(plan, q, columns, pl)
 
 __all__ = ["ImputePlan", "OutputSpec", "load_plan", "check_plan", "TOP_KEYS", "RULE_KEYS", "OUTPUT_KEYS"]
 
