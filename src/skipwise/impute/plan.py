@@ -14,9 +14,8 @@ from skipwise.classify import statuses as S
 from skipwise.errors import Category, Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
 from skipwise.impute.fit import method_misfit
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
-                       hint="give the item its own method under items:" if name is None
-                       else "choose one of the methods that fit")
-    _check_outputs(plan, q, columns, pl)
+from skipwise.questionnaire.model import Questionnaire
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 
 __all__ = ["ImputePlan", "OutputSpec", "load_plan", "check_plan", "TOP_KEYS", "RULE_KEYS", "OUTPUT_KEYS"]
 
@@ -26,13 +25,8 @@ RULE_KEYS = ("method", "classes", "covariates", "donors", "max_donor_use", "weig
 OUTPUT_KEYS = ("form", "imputation_column", "flag_suffix")
 FORMS = ("files", "stacked")
 SKIP_FILLS = ("auto", "blank", "code")
-<<<<<<< HEAD
-NUMERIC_ONLY = ("regression", "mean", "median")
-CATEGORICAL_ONLY = ("logistic", "multinomial")
 #: Most imputations a plan may ask for (each is a full copy of the data in memory).
 MAX_IMPUTATIONS = 1000
-=======
->>>>>>> main
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -243,13 +237,9 @@ def check_plan(plan: ImputePlan, q: Questionnaire, columns: Iterable[str]) -> No
             bad = method_misfit(q.item(t), rule.method)
             if bad:
                 pl.add(ProblemCode.TYPE_CLASH, bad, line=plan.line(*path), item=t,
-<<<<<<< HEAD
-                       hint="give the item its own method under items:")
-    _check_outputs(plan, q, columns, pl)
-=======
                        hint="give the item its own method under items:" if name is None
                        else "choose one of the methods that fit")
->>>>>>> main
+    _check_outputs(plan, q, columns, pl)
     pl.raise_if_any(headline=f"{len(pl)} problem(s) in imputation plan {plan.file or ''}".strip())
 
 
