@@ -61,6 +61,9 @@ class ProblemCode(str, Enum):
     NOT_CONVERGED = "not-converged"
     BAD_WEIGHTS = "bad-weights"
     SINGULAR = "singular"
+    # stable reason numbers (docs/statuses.md)
+    UNNUMBERED_REASON = "unnumbered-reason"
+    NO_STATA_LETTER = "no-stata-letter"
 
 
 @dataclass(frozen=True, kw_only=True)

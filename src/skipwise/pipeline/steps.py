@@ -179,6 +179,11 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
     reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
                   + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
     reporter.info(f"{len(st.cl.faults):,} routing faults (the fault list names case ids)")
+    from skipwise.classify.hints import invalid_hint
+
+    hint = invalid_hint(st.cl, data=str(st.plan.data), questionnaire=str(st.plan.questionnaire))
+    if hint:
+        reporter.info(hint)
 
 
 def report_step(st: RunState, reporter: Reporter) -> None:
