@@ -186,3 +186,22 @@ def test_check_notes_unnumbered_and_too_high_reasons():
     high = [p for p in found.problems if p.code is ProblemCode.NO_STATA_LETTER]
     assert [p.message.split("'")[1] for p in high] == ["far_away"]
     assert found.ok  # notes, not errors
+
+
+def test_docs_table_matches_the_code():
+    """docs/statuses.md is the users' reference: its tables must say what the code does."""
+    from pathlib import Path
+
+    from skipwise.classify.export import letter_of
+    from skipwise.classify.statuses import STATUS_NUMBERS
+
+    rows = {}
+    for line in (Path(__file__).parents[1] / "docs" / "statuses.md").read_text().splitlines():
+        cells = [c.strip() for c in line.strip().strip("|").split("|")]
+        if len(cells) >= 4 and cells[0].isdigit() and cells[1].startswith("`"):
+            rows[cells[1].strip("`")] = (int(cells[0]), cells[2].replace("−", "-"), cells[3].strip("`"))
+    assert {s: r[0] for s, r in rows.items() if r[0] < 10} == STATUS_NUMBERS
+    assert {s: r[0] for s, r in rows.items() if r[0] > 10} == dict(BUILTIN_REASON_NUMBERS)
+    for status, (number, sav, dta) in rows.items():
+        if number > 1:
+            assert int(sav) == -900 - number and dta == letter_of(number), status
