@@ -1,7 +1,7 @@
 """The codebook of a hand-over package: every output variable, in Markdown and HTML.
 
-Per variable: label, type, values, special codes with reason and kind, the
-routing rule, status counts, unweighted and weighted item nonresponse; then how
+Per variable: label, question text, type, values, special codes with reason,
+kind and stable status number, the routing rule, status counts, unweighted and weighted item nonresponse; then how
 the weights and the imputations were made (method summary from the plans).
 """
 
@@ -54,6 +54,10 @@ def _item_rows(st, col: str, item, summary: pd.DataFrame, weighted: pd.DataFrame
     rows = [["item", f"{item.name} (section {item.section})" + (f", a column of the set '{item.name}'"
                                                                     if len(item.columns) > 1 else "")],
             ["type", item.type.value]]
+    if item.text:
+        rows.insert(0, ["question text", item.text])
+    if item.optional:
+        rows.append(["answer", "optional: a blank in universe is left_blank, not item nonresponse"])
     if item.values:
         rows.append(["values", _pairs(dict(item.values))])
     if item.options:
@@ -61,7 +65,9 @@ def _item_rows(st, col: str, item, summary: pd.DataFrame, weighted: pd.DataFrame
     if item.range:
         rows.append(["range", f"{item.range[0]} to {item.range[1]}"])
     if item.codes:
-        rows.append(["codes", "; ".join(f"{c.value} {c.reason} ({c.kind.value})" + (f": {c.label}" if c.label else "")
+        rows.append(["codes", "; ".join(f"{c.value} {c.reason} ({c.kind.value}"
+                                        + (f", status {q.reason_numbers[c.reason]}" if c.reason in q.reason_numbers
+                                           else "") + ")" + (f": {c.label}" if c.label else "")
                                         for c in item.codes)])
     rows.append(["routing rule", f"`asked_if: {item.rule_text}`" if item.rule_text else "asked of every case"])
     if not first:
