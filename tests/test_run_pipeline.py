@@ -28,7 +28,7 @@ sections:
     items:
       - {name: pet, label: Keeps a pet, type: categorical, values: {1: "Yes", 2: "No"}}
       - {name: pets, label: Number of pets, type: integer, range: [1, 9], asked_if: pet == 1}
-      - {name: mood, label: Mood today, type: integer, range: [0, 10]}
+      - {name: mood, label: Mood today, type: integer, range: [0, 10], text: "How is your mood today, from 0 to 10?"}
 """
 WEIGHTS = """\
 format: 1
@@ -206,7 +206,10 @@ def test_codebook_lists_every_output_variable(ran):
     for col in columns:
         assert f"`{col}`" in md, col
         assert col in shown, col
-    assert "mood_imp" in md and "asked_if: pet == 1" in md and "-9 refused (nonresponse)" in md
+    # refused is status 12 by the built-in table of docs/statuses.md
+    assert "mood_imp" in md and "asked_if: pet == 1" in md and "-9 refused (nonresponse, status 12)" in md
+    assert "| question text | How is your mood today, from 0 to 10? |" in md
+    assert "How is your mood today, from 0 to 10?" in shown
     # mood: 40 cases in universe, 2 refused + 1 blank = 3 nonresponse -> 7.50% (DESIGN §3 rate, by hand)
     assert "3 = 7.50%" in md
     assert "item nonresponse (weighted)" in md and "Calibration (rake)" in md and "2 imputation(s), seed 11" in md
