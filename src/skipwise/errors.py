@@ -61,6 +61,10 @@ class ProblemCode(str, Enum):
     NOT_CONVERGED = "not-converged"
     BAD_WEIGHTS = "bad-weights"
     SINGULAR = "singular"
+    # the operating system and the publisher
+    OS_ERROR = "os-error"
+    OUT_OF_MEMORY = "out-of-memory"
+    OUTPUT_LOCKED = "output-locked"
     # stable reason numbers (docs/statuses.md)
     UNNUMBERED_REASON = "unnumbered-reason"
     NO_STATA_LETTER = "no-stata-letter"
