@@ -15,6 +15,7 @@ import pandas as pd
 from skipwise import __version__
 from skipwise.io import SurveyMeta
 from skipwise.pipeline.render import Block, to_html, to_markdown
+from skipwise.rates import format_rate, item_rates
 
 __all__ = ["codebook_blocks", "codebook_markdown", "codebook_html", "CAUTIONS"]
 
@@ -49,7 +50,7 @@ def _kind(series: pd.Series) -> str:
 
 
 def _item_rows(st, col: str, item, summary: pd.DataFrame, weighted: pd.DataFrame | None,
-               first: bool) -> list[list[str]]:
+               first: bool, min_base: int) -> list[list[str]]:
     q = st.q
     rows = [["item", f"{item.name} (section {item.section})" + (f", a column of the set '{item.name}'"
                                                                     if len(item.columns) > 1 else "")],
@@ -70,18 +71,27 @@ def _item_rows(st, col: str, item, summary: pd.DataFrame, weighted: pd.DataFrame
     s = summary.loc[item.name]
     cats = [c for c in st.cl.categories if c in s.index and s[c]]
     rows.append(["status counts", "; ".join(f"{c} {int(s[c]):,}" for c in cats)])
-    rows.append(["in universe (excl. breakoff)", _fmt(s["in_universe"])])
-    rows.append(["item nonresponse (unweighted)", f"{int(s['nonresponse']):,} = {_pct(s['nonresponse_rate'])}"])
-    reasons = [r for r in q.nonresponse_reasons if f"{r}_rate" in s.index and s[r]]
-    if reasons:
-        rows.append(["by reason (unweighted)", "; ".join(f"{r} {_pct(s[f'{r}_rate'])}" for r in reasons)])
+    rows.append(["D: in universe, excl. breakoff and left_blank", _fmt(int(s["D"]))
+                 + (f" (under the minimum base of {min_base}: read its rates with care)" if s["below_min_base"] else "")])
+    rows.append(["answered / item nonresponse / faults (unweighted)",
+                 f"{_pct(s['answered_rate'])} / {int(s['nonresponse']):,} = {_pct(s['nonresponse_rate'])} / "
+                 f"{_pct(s['fault_rate'])}"])
+    parts = [r for r in (*q.nonresponse_reasons, "item_missing") if s[r]]
+    if parts:
+        rows.append(["item nonresponse by reason (unweighted)", "; ".join(f"{r} {_pct(s[f'{r}_rate'])}" for r in parts)])
     if weighted is not None:
-        rows.append(["item nonresponse (weighted)", _pct(weighted.loc[item.name, "nonresponse_rate"])])
+        v = weighted.loc[item.name]
+        rows.append(["answered / item nonresponse / faults (weighted)",
+                     f"{_pct(v['answered_rate'])} / {_pct(v['nonresponse_rate'])} / {_pct(v['fault_rate'])}"])
+        if parts:
+            rows.append(["item nonresponse by reason (weighted)",
+                         "; ".join(f"{r} {_pct(v[f'{r}_rate'])}" for r in parts)])
     return rows
 
 
 def _pct(v: float) -> str:
-    return "n/a" if v is None or np.isnan(v) else f"{100 * float(v):.2f}%"
+    """The package's one printed form of a rate (as in the workbooks: one decimal)."""
+    return format_rate(v) or "n/a"
 
 
 def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[tuple[str, str]],
@@ -100,8 +110,10 @@ def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[t
         Case weights for the weighted nonresponse rates (None: unweighted only).
     """
     q, cl = st.q, st.cl
-    summary = cl.item_summary()
-    weighted = cl.item_summary(weight) if weight is not None else None
+    min_base = st.plan.min_base
+    rates = item_rates(cl, weight, min_base=min_base)
+    summary = rates.table(False)
+    weighted = rates.table(True) if weight is not None else None
     owner = q.column_owner
     status_of = {f"{name}_status": name for name in cl.items}
     weight_cols = set(st.weights.columns) if st.weights is not None else set()
@@ -113,9 +125,14 @@ def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[t
         ("h", 2, "Cautions"), ("ul", list(CAUTIONS)),
         ("h", 2, "Files"), ("table", ["file", "what it holds"], [list(f) for f in files]),
         ("h", 2, "Statuses"),
-        ("p", "Every (case, item) cell has one status. Item nonresponse rate = (nonresponse reasons + "
-              "item_missing) / (cases in universe, excluding breakoff); gate_unknown and breakoff are "
-              "counted apart." + (f" Weighted rates use `{weight_name}`." if weight_name else "")),
+        ("p", "Every (case, item) cell has one status. D = cells in universe, excluding breakoff and "
+              "left_blank. Answered rate = answered / D; item nonresponse rate = (nonresponse reasons + "
+              "item_missing) / D; fault rate = (wrong_code + invalid where asked) / D: the three add up to "
+              "100%. gate_unknown, breakoff, off_route, left_blank and invalid values where not asked are "
+              "counted apart. The same numbers are in item_report.xlsx."
+              + (f" Weighted rates use `{weight_name}` (cases of weight 0 count in the unweighted rates only)."
+                 if weight_name else "")
+              + f" Items with D under {min_base} (the minimum base) are marked."),
         ("table", ["number in `<item>_status`", "status"],
          [[str(k), v] for k, v in sorted(_status_labels(cl).items())]),
         ("h", 2, "Variables"),
@@ -138,7 +155,7 @@ def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[t
         rows = [["label", meta.column_labels.get(col, q.item(owner[col]).label if col in owner else "")]]
         if col in owner:
             item = q.item(owner[col])
-            rows += _item_rows(st, col, item, summary, weighted, item.name not in seen)
+            rows += _item_rows(st, col, item, summary, weighted, item.name not in seen, min_base)
             seen.add(item.name)
         else:
             rows.append(["type", _kind(frame[col])])
