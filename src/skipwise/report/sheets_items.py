@@ -99,7 +99,7 @@ def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFram
     kind = "weighted" if sub.weighted else "unweighted"
     ws.append(st.title_row(ws, f"Item nonresponse rate by subgroup ({kind})"))
     ws.append(st.note_row(ws, (
-        "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff"
+        "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff and left_blank"
         + (", as ratios of weighted totals." if sub.weighted else ".")
         + " Blank: no case of the group was in the item's universe. Small groups give unstable rates.")))
     ws.append(st.note_row(ws, "Group values of missing cells are shown as '(missing)'. A rate marked * rests on "

@@ -27,6 +27,9 @@ DEFINITIONS: tuple[tuple[str, str], ...] = (
                       "interview ended), off_route, left_blank (an optional item left blank) and invalid "
                       "values where the item was not asked or the routing is undecided: in neither "
                       "numerator nor denominator of any rate."),
+    ("left_blank", "blank in-universe cells of an item marked optional (e.g. an open comment box): no "
+                   "answer was required. Counted apart: in neither numerator nor denominator of any rate, "
+                   "and not in a case's share of applicable items answered."),
     ("Minimum base", "a rate on fewer cells in D (unweighted) than the minimum base is shown but marked, "
                      "and left out of rankings, charts and the choice of the Patterns columns."),
     ("Routing faults", "off_route (an answer or code where the routing says not asked), wrong_code (a "

@@ -82,7 +82,7 @@ def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figu
     applicable_m = c.universe_mask().to_numpy()
     nr = _nr_codes(c)
     fault = [c.code(s) for s in S.FAULT_STATUSES]
-    ans, brk = c.code(S.ANSWERED), c.code(S.BREAKOFF)
+    ans, brk, lb = c.code(S.ANSWERED), c.code(S.BREAKOFF), c.code(S.LEFT_BLANK)
     counts = np.zeros((p, k), dtype=np.int64)
     wcounts = None if weight is None else np.zeros((p, k))
     denom = np.zeros(p, dtype=np.int64)
@@ -93,12 +93,12 @@ def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figu
     for j in range(p):
         col = c.codes[:, j]
         counts[j] = np.bincount(col, minlength=k)
-        in_den = applicable_m[:, j] & (col != brk)
+        in_den = applicable_m[:, j] & (col != brk) & (col != lb)
         denom[j] = np.count_nonzero(in_den)
         if weight is not None:
             wcounts[j] = np.bincount(col, weights=weight, minlength=k)
             wdenom[j] = weight @ in_den
-        per_case["applicable"] += applicable_m[:, j]
+        per_case["applicable"] += applicable_m[:, j] & (col != lb)  # left_blank required no answer
         per_case["answered"] += col == ans
         per_case["nonresponse"] += in_codes(col, nr)
         per_case["faults"] += in_codes(col, fault)
