@@ -153,7 +153,7 @@ def _impute_blocks(st) -> list[Block]:
                                            if out.form == "stacked" else " (one file per imputation)"),
              "Analyse the completed files with Rubin's rules."]
     t = res.table
-    rows = [[f"`{i}`", r.method, _fmt(r.to_fill), _fmt(r.imputed), _fmt(r.routed_out), f"`{i}{out.flag_suffix}`"]
+    rows = [[f"`{i}`", r.method + (" (plan default)" if getattr(r, "rule", "") == "plan default" else ""), _fmt(r.to_fill), _fmt(r.imputed), _fmt(r.routed_out), f"`{i}{out.flag_suffix}`"]
             for i, r in zip(t.index, t.itertuples())]
     return [("h", 2, "Imputation"), ("p", f"Made by the imputation plan `{_name(plan.file)}`:"), ("ul", lines),
             ("table", ["item", "method", "cells to fill", "imputed (mean over M)", "routed out", "flag column"], rows),

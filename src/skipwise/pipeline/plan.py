@@ -32,7 +32,7 @@ FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 CHECK_KEYS = {"stop_on_error": "bool", "top": "int"}
 REPORT_KEYS = {"weight": "str", "by": "names", "case_ids": "bool", "top_items": "int", "top_patterns": "int",
                "fault_rows": "int"}
-DIAGNOSE_KEYS = {"items": "names", "aux": "names", "categorical": "names", "little_items": "names",
+DIAGNOSE_KEYS = {"items": "names", "aux": "names", "add_aux": "names", "categorical": "names", "little_items": "names",
                  "weight": "str", "response": "str", "responded": "values", "sensitivity": "str",
                  "threshold": "float", "deltas": "floats", "alpha": "float", "adjust": "str", "low_rate": "float",
                  "high_rate": "float", "auc_weak": "float", "auc_strong": "float"}
@@ -61,6 +61,7 @@ class DiagnoseOptionsSpec:
 
     items: tuple[str, ...] | None = None
     aux: tuple[str, ...] | None = None
+    add_aux: tuple[str, ...] | None = None
     categorical: tuple[str, ...] | None = None
     little_items: tuple[str, ...] | None = None
     weight: str | None = None
