@@ -510,6 +510,12 @@ class PackagePublisher:
 
     def publish(self) -> None:
         """Swap the staged package in: old aside, new in, old removed; wholly old or wholly new."""
+        try:
+            self._swap()
+        except OSError as exc:  # named while the staging folder is still known as the package
+            raise SkipwiseError(os_error_problem(exc, path=self.folder)) from None
+
+    def _swap(self) -> None:
         assert self.staging is not None
         for path in self.staging.iterdir():
             _fsync_path(path)
