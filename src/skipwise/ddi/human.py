@@ -162,7 +162,11 @@ def _freq_table(inp: CodebookInput, col: str, values: dict, missing: dict) -> Bl
     head = ["value", "label", "kind", "cases"] + (["weighted"] if w is not None else [])
     rows = []
     for v, label in values.items():
-        kind = f"special code: {missing[v][0]} ({missing[v][1]})" if v in missing else "answer"
+        kind = "answer"
+        if v in missing:
+            reason, code_kind = missing[v]
+            number = (getattr(inp.questionnaire, "reason_numbers", None) or {}).get(reason)
+            kind = f"special code: {reason} ({code_kind}" + (f", status {number}" if number else "") + ")"
         row = [fmt_number(v) if not isinstance(v, str) else v, label, kind, fmt_number(counts.get(v, 0))]
         if w is not None:
             row.append(fmt_sum(wsum.get(v, 0.0)))
@@ -203,6 +207,8 @@ def _item_blocks(inp: CodebookInput, col: str) -> list[Block]:
         props.append(["routing rule as written", f"`asked_if: {it.rule_text}`"])
     if it.range is not None:
         props.append(["valid range", f"{fmt_number(it.range[0])} to {fmt_number(it.range[1])}"])
+    if getattr(it, "optional", False):
+        props.append(["answer", "optional: a blank in universe is left_blank, not item nonresponse"])
     if len(it.columns) > 1:
         props.append(["set", f"a column of the check-all-that-apply set `{it.name}`"])
     out: list[Block] = [("anchor", col), ("h", 3, f"`{col}`: {label}" if label else f"`{col}`"),
