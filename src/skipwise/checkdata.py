@@ -134,14 +134,17 @@ def _problem(code: ProblemCode, message: str, q: Questionnaire, item: str | None
 def _case_ids(data: pd.DataFrame, q: Questionnaire, top: int) -> list[Problem]:
     if q.case_id not in data.columns:
         return []
-    num, txt, blank = K.column_views(data[q.case_id])
+    from skipwise.caseids import id_values
+
+    stored = id_values(data[q.case_id])  # compared in their stored type, never as floats
+    blank = stored.isna().to_numpy()
     out = []
     if blank.any():
         rows = np.flatnonzero(blank)
         out.append(_problem(ProblemCode.BAD_DATA, f"{len(rows):,} row(s) have a blank case id (rows "
                             f"{_listed(list(rows[:top] + 1), len(rows))})", q, q.case_id,
                             "give every case an id"))
-    ids = pd.Series(txt if txt is not None else num)[~blank]
+    ids = stored[~blank]
     dup = ids[ids.duplicated(keep=False)]
     if len(dup):
         distinct = pd.unique(dup)

@@ -38,6 +38,7 @@ from typing import Callable
 import numpy as np
 import pandas as pd
 
+from skipwise.caseids import id_values
 from skipwise.classify import cells as K
 from skipwise.classify import statuses as S
 from skipwise.classify.breakoff import apply_breakoff
@@ -53,14 +54,16 @@ ProgressFn = Callable[[int, int], None]
 
 def check_columns(data: pd.DataFrame, q: Questionnaire) -> None:
     """Raise one error listing every questionnaire column missing from the data."""
-    missing = [c for c in (q.case_id, *q.context, *q.columns) if c not in data.columns]
+    paradata = [c for c in (q.breakoff.last_item, q.breakoff.disposition) if c]
+    missing = [c for c in dict.fromkeys((q.case_id, *q.context, *paradata, *q.columns)) if c not in data.columns]
     if missing:
         def what(c: str) -> str:
             return "the case id column" if c == q.case_id else \
-                "context column" if c in q.context else "column"
+                "context column" if c in q.context else \
+                "breakoff paradata column" if c in paradata else "column"
 
         problems = [Problem(code=ProblemCode.MISSING_COLUMN, category=Category.DATA, file=q.path,
-                            item=None if c == q.case_id or c in q.context else c,
+                            item=None if c == q.case_id or c in q.context or c in paradata else c,
                             message=f"{what(c)} '{c}' is not in the data",
                             hint=did_you_mean(c, [str(x) for x in data.columns]) or
                             "add the column or remove it from the questionnaire") for c in missing]
@@ -164,7 +167,7 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
             progress(j + 1, p)
     apply_breakoff(status, kinds, data, q, code_of)
     return Classification(questionnaire=q, codes=status, kinds=kinds, universe=universe, categories=cats,
-                          index=data.index, case_ids=data[q.case_id].to_numpy(), data=data)
+                          index=data.index, case_ids=id_values(data[q.case_id]).to_numpy(), data=data)
 
 
 def _status_table(code_of: dict[str, int], *, optional: bool = False) -> np.ndarray:

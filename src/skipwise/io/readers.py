@@ -152,6 +152,8 @@ def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | N
     opts = dict(encoding=enc, keep_default_na=False, na_values=[""])
     try:
         header = list(pd.read_csv(path, nrows=0, **opts).columns)
+        _check_header(path, list(pd.read_csv(path, nrows=1, header=None, dtype=str, **opts).iloc[0])
+                      if header else [])
         _check_columns(path, columns, header)
         df = pd.read_csv(path, usecols=columns, **opts)
     except UnicodeDecodeError as exc:
@@ -171,12 +173,28 @@ def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | N
     return set_meta(df, SurveyMeta(source_format=fmt, encoding=encoding or "utf-8"))
 
 
+def _check_header(path: Path, names: list[object]) -> None:
+    """Refuse a header naming a column twice (pandas would silently rename the second 'age.1')."""
+    from collections import Counter
+
+    seen = Counter(str(n).strip() for n in names if not (isinstance(n, float) and n != n))
+    twice = [n for n, k in seen.items() if k > 1]
+    if twice:
+        from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+        raise SkipwiseError([Problem(code=ProblemCode.DUPLICATE_NAME, category=Category.DATA, file=str(path),
+                                     item=n, message=f"the header names the column '{n}' {seen[n]} times",
+                                     hint="give every column its own name in the header row") for n in twice])
+
+
 def _read_xlsx(path: Path, fmt: str, encoding: str | None, columns: list[str] | None) -> pd.DataFrame:
     try:
         df = pd.read_excel(path, sheet_name=0, engine="openpyxl", keep_default_na=False, na_values=[""])
     except Exception as exc:  # openpyxl raises zip, XML and key errors for damaged workbooks
         raise _unreadable(path, f"not a readable Excel workbook ({type(exc).__name__}: {clean_message(exc)})",
                           "open and re-save it as .xlsx in a spreadsheet program") from None
+    if len(df.columns):
+        _check_header(path, list(pd.read_excel(path, sheet_name=0, engine="openpyxl", header=None, nrows=1).iloc[0]))
     df.columns = [str(c) for c in df.columns]
     _check_columns(path, columns, list(df.columns))
     _note_uncached_formulas(path, df)

@@ -162,6 +162,11 @@ def check_step(st: RunState, reporter: Reporter) -> None:
     for row in st.check.to_rows():
         reporter.info(f"  {row['kind']:<5} {row['item'] or '-':<18} {row['finding']:<18} {row['detail']}")
     reporter.info(f"{len(st.check.errors)} error(s), {len(st.check.notes)} note(s)")
+    ids = [p for p in st.check.errors if p.code is ProblemCode.DUPLICATE_CASE_ID
+           or (p.item == st.q.case_id and p.code is ProblemCode.BAD_DATA)]
+    if ids:  # whatever stop_on_error says: the package's files are matched and listed by case id
+        raise SkipwiseError(ids, headline="the case ids must be present and unique (the run joins and lists "
+                            "cases by id; check.stop_on_error cannot let this pass)")
     if not st.check.ok:
         if st.plan.stop_on_check_error:
             raise SkipwiseError(Problem(
@@ -169,7 +174,8 @@ def check_step(st: RunState, reporter: Reporter) -> None:
                 line=st.plan.line("check", "stop_on_error"),
                 message=f"the check found {len(st.check.errors)} error(s) and the plan says check.stop_on_error",
                 hint="fix the questionnaire or the data, or set check: {stop_on_error: false}"))
-        reporter.info("continuing (check.stop_on_error is false): invalid values are classified as 'invalid'")
+        reporter.info("continuing (check.stop_on_error is false): values the questionnaire does not declare "
+                      "are classified as 'invalid'")
 
 
 def classify_step(st: RunState, reporter: Reporter) -> None:

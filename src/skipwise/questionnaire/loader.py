@@ -250,6 +250,9 @@ class _Builder:
         sec_optional = self.flag(d, "optional", f"section '{sname}'", None)
         roster = self.roster(d, names) if "roster" in d else None
         raw_items = self.need_list(d.get("items"), f"items of section '{sname}'", d.key_line("items") if "items" in d else d.line)
+        if roster is not None and raw_items is not None and not raw_items:
+            self.add(ProblemCode.MISSING_KEY, f"roster section '{sname}' has no items", d.key_line("items"), sname,
+                     "list the items asked for each member, or remove the roster")
         members = range(1, roster.max + 1) if roster else [None]
         items: list[Item] = []
         specs = [self.item_spec(r, global_codes) for r in raw_items or []]

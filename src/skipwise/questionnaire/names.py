@@ -145,7 +145,32 @@ class NameTable:
                     self._unknown(n.name, mark.line, who, offset + n.col)
             elif isinstance(n, (ast.Compare, ast.InList)) and report:
                 ok &= self._check_types(n, mapping, mark.line, who, offset + n.col)
+            if isinstance(n, (ast.Arith, ast.Neg)) and report:
+                ok &= self._check_arith(n, mapping, mark.line, who, offset + n.col)
         return ok
+
+    def _check_arith(self, n: ast.Arith | ast.Neg, mapping: dict[str, str], line: int, who: str | None,
+                     col: int) -> bool:
+        """Arithmetic (+ - * / and a minus sign) needs numbers on both sides: never text, dates or sets."""
+        sides = (n.operand,) if isinstance(n, ast.Neg) else (n.left, n.right)
+        sign = "-" if isinstance(n, ast.Neg) else n.op
+        for side in sides:
+            bad = None
+            if isinstance(side, ast.String):
+                bad = f"the text {side.value!r}"
+            elif isinstance(side, ast.Name):
+                name = mapping.get(side.name, side.name)
+                item = self.defined.get(name)
+                if item is not None and name == item.name and (
+                        item.type in (ItemType.TEXT, ItemType.DATE, ItemType.MULTI)
+                        or (item.values and any(isinstance(k, str) for k in item.values))):
+                    bad = f"'{name}' ({item.type.value}{', text values' if item.type is ItemType.CATEGORICAL else ''})"
+            if bad:
+                self.b.add(ProblemCode.TYPE_CLASH, f"arithmetic '{sign}' on {bad}: only numbers can be added, "
+                           "subtracted, multiplied or divided", line, who,
+                           "compare text with == or in [...], and do arithmetic on numeric items only", column=col)
+                return False
+        return True
 
     def _check_reason(self, name: str, reason: str, line: int, who: str | None, col: int, report: bool) -> bool:
         if name in self.context:

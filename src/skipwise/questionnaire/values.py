@@ -34,6 +34,7 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
                 if isinstance(k, bool) or not (_num(k) or isinstance(k, str)):
                     b.add(ProblemCode.BAD_VALUE, f"category value {k!r} must be a number or quoted text",
                           raw.key_line(k), name, "quote values such as 'yes' or 'no'")
+            _duplicates(b, raw, "category value", name)
             values = {k: str(v) for k, v in raw.items() if not isinstance(k, bool)}
     elif itype is ItemType.CATEGORICAL:
         b.add(ProblemCode.MISSING_KEY, "a categorical item needs 'values'", d.line, name,
@@ -63,13 +64,24 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
         else:
             opts = b.need_map(raw, "'options'", d.key_line("options"), name)
             options = tuple((k, str(v)) for k, v in (opts or {}).items())
+            if opts is not None:
+                _duplicates(b, opts, "option", name)
+                if not opts:
+                    b.add(ProblemCode.MISSING_KEY, "'options' is empty: a multi item needs at least one option",
+                          d.key_line("options"), name, "e.g. options: {car: Car, bus: Bus}")
         col = d.get("column", "{item}_{option}")
         why = template_problem(col, ("item", "option"), ("item", "option"))
         if why:
             b.add(ProblemCode.BAD_VALUE, f"multi 'column' {col!r}: {why}", d.key_line("column"), name,
                   "e.g. column: '{item}_{option}'")
         sel, unsel = d.get("selected", 1), d.get("unselected", 0)
-        if sel is None or sel == unsel:
+        scalars = True
+        for key, v in (("selected", sel), ("unselected", unsel)):
+            if key in d and v is not None and not (_num(v) or isinstance(v, str)):
+                b.add(ProblemCode.BAD_VALUE, f"'{key}' must be one value (a number or a text), found {v!r}",
+                      d.key_line(key), name, f"e.g. {key}: {1 if key == 'selected' else 0}")
+                scalars = False
+        if scalars and (sel is None or sel == unsel):
             b.add(ProblemCode.BAD_VALUE, "'selected' must be a value different from 'unselected'",
                   d.key_line("selected") if "selected" in d else d.line, name)
     else:
@@ -77,6 +89,24 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
             if key in d:
                 b.add(ProblemCode.BAD_VALUE, f"'{key}' is only for multi items", d.key_line(key), name)
     return values, rng, options
+
+
+def _duplicates(b: "_Builder", raw: LineDict, what: str, name: str) -> None:
+    """Keys given twice (YAML keeps the last), or equal as values (1 and 1.0, 1 and '1')."""
+    for key, line in getattr(raw, "duplicate_keys", []):
+        b.add(ProblemCode.DUPLICATE_NAME, f"{what} {key!r} is given twice (the file would keep only the last "
+              "label)", line, name, "keep one of them")
+    seen: dict[str, Any] = {}
+    for k in raw:
+        try:
+            norm = str(float(k))  # 1, 1.0 and '1' match the same stored cell
+        except (TypeError, ValueError):
+            norm = str(k)
+        if norm in seen:
+            b.add(ProblemCode.DUPLICATE_NAME, f"{what} {k!r} is the same value as {seen[norm]!r}",
+                  raw.key_line(k), name, "a stored cell could not tell them apart: keep one of them")
+        else:
+            seen[norm] = k
 
 
 def check_collisions(b: "_Builder", d: LineDict, name: str, itype: ItemType, values: dict | None,
