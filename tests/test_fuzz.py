@@ -313,3 +313,84 @@ def test_random_csv_through_cli_exits_0_or_1(frame, damage):
             assert result.exception is None or isinstance(result.exception, SystemExit), repr(result.exception)
             assert "Traceback" not in result.output
         assert not [p for p in Path(tmp).iterdir() if ".part" in p.name]
+
+
+# -- validation: column templates, labels and YAML aliases --------------------------------------
+# Outside references: YAML 1.2.2 section 10.3.2 (core schema: a plain scalar that is not
+# true/false/null/an integer/a float is a string, its characters as written); the template
+# language of docs/questionnaire-format.md, re-implemented here by str.replace.
+from skipwise.questionnaire.templates import expand, template_problem  # noqa: E402
+from skipwise.questionnaire.yamlread import MAX_ALIAS_NODES, load_yaml_text  # noqa: E402
+
+TEMPLATE_BITS = st.sampled_from(["{item}", "{option}", "{n}", "{", "}", "{0}", "{item.x}", "{item:>9}",
+                                 "{option!r}", "_", "a", "9", ".", ":", "{{", "}}", "{ITEM}", "é"])
+
+
+@settings(max_examples=examples(120), **SETTINGS)
+@given(bits=st.lists(TEMPLATE_BITS, max_size=8), item=st.text(max_size=6), option=st.text(max_size=6))
+def test_fuzz_column_templates_are_plain_text_substitution(bits, item, option):
+    pattern = "".join(bits)
+    why = template_problem(pattern, ("item", "option"), ("item", "option"))
+    if why is None:
+        assert "{item}" in pattern and "{option}" in pattern
+        # the reference: every placeholder replaced as text, from left to right, nothing else read
+        parts = pattern.split("{item}")
+        reference = item.join(p.replace("{option}", option) for p in parts)
+        assert expand(pattern, item=item, option=option) == reference
+    else:
+        assert isinstance(why, str) and "{item}, {option}" in why
+
+
+@settings(max_examples=examples(60), **SETTINGS)
+@given(bits=st.lists(TEMPLATE_BITS, max_size=6))
+def test_fuzz_templates_through_the_loader(bits):
+    pattern = "".join(bits).replace("'", "''")
+    text = ("format: 1\nsurvey: {name: t, case_id: id}\nsections:\n  - name: s\n    items:\n"
+            f"      - {{name: modes, type: multi, column: '{pattern}', options: {{car: Car, bus: Bus}}}}\n")
+    try:
+        q = loads_questionnaire(text)
+    except SkipwiseError as err:
+        assert all(p.line is not None for p in err.problems)
+        return
+    cols = q.item("modes").columns
+    assert len(set(cols)) == 2 and all(len(c) <= len(pattern) + 10 for c in cols)
+
+
+LABEL_TOKENS = st.sampled_from(["Yes", "No", "on", "OFF", "y", "2024", "1.50", "0x1F", "012", "1_000", "1:20",
+                                "2024-01-01", "true", "False", ".inf", "-5", "Don't know", "=1+1", "a b"])
+
+
+@settings(max_examples=examples(60), **SETTINGS)
+@given(label=LABEL_TOKENS, value_label=LABEL_TOKENS)
+def test_fuzz_labels_are_the_text_written(label, value_label):
+    def plain(token: str) -> str:  # a plain scalar, quoted only where YAML syntax needs it
+        return f'"{token}"' if token.startswith(("'", '"')) else token
+
+    text = ("format: 1\nsurvey: {name: t, case_id: id}\nsections:\n  - name: s\n    items:\n"
+            f"      - name: q\n        type: categorical\n        label: {plain(label)}\n"
+            f"        values:\n          1: {plain(value_label)}\n")
+    q = loads_questionnaire(text)
+    assert q.item("q").label == label and q.item("q").values[1] == value_label
+
+
+@settings(max_examples=examples(40), **SETTINGS)
+@given(width=st.integers(1, 12), depth=st.integers(1, 8))
+def test_fuzz_alias_expansion_is_bounded(width, depth):
+    import time
+
+    lines = ["a0: &a0 [x]"] + [f"a{i}: &a{i} [" + ", ".join([f"*a{i - 1}"] * width) + "]" for i in range(1, depth + 1)]
+    # nodes the aliases repeat, counted independently: each alias of level i-1 repeats its whole tree
+    size = [2]  # a0: the list and its one text
+    for _ in range(depth):
+        size.append(1 + width * size[-1])
+    repeated = sum(width * size[i - 1] for i in range(1, depth + 1))
+    t0 = time.perf_counter()
+    try:
+        doc = load_yaml_text("\n".join(lines) + "\n", "a.yaml")
+    except SkipwiseError as err:
+        assert repeated > MAX_ALIAS_NODES, (width, depth, repeated)
+        assert err.problems[0].line is not None and "aliases repeat" in err.problems[0].message
+    else:
+        assert repeated <= MAX_ALIAS_NODES
+        assert len(doc) == depth + 1
+    assert time.perf_counter() - t0 < 2.0

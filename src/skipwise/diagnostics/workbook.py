@@ -322,6 +322,9 @@ def write_diagnostics_workbook(report: DiagnosticsReport, path: str | Path, *, o
     _representativeness(by["Representativeness"], report)
     _sensitivity(by["Sensitivity"], report)
     _suggestions(by["Suggestions"], report)
+    from skipwise.io.inert import inert_workbook
+
+    inert_workbook(wb)  # answers and value labels stay text, never formulas
     with atomic_output(path, overwrite=overwrite) as tmp:
         wb.save(tmp)
     return Path(path)

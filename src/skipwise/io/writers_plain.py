@@ -41,7 +41,9 @@ def prepare_xlsx(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Jo
     if problems:
         raise SkipwiseError(problems)
     frame = _plain_frame(df)
-    return lambda tmp: frame.to_excel(tmp, index=False, engine="openpyxl")
+    from skipwise.io.inert import write_inert_excel
+
+    return lambda tmp: write_inert_excel(frame, tmp)  # answers starting with '=' stay text
 
 
 def prepare_parquet(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job:

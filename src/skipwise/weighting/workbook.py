@@ -135,6 +135,9 @@ def write_workbook(res: WeighResult, path: str | Path, *, overwrite: bool = True
         for c in sheet[1]:
             c.font = Font(bold=True)
         sheet.freeze_panes = "A2"
+    from skipwise.io.inert import inert_workbook
+
+    inert_workbook(wb)  # names and labels from data stay text, never formulas
     with atomic_output(path, overwrite=overwrite) as tmp:
         wb.save(tmp)
     return Path(path)
