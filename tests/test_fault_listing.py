@@ -145,3 +145,14 @@ def test_wide_file_classifies_and_lists_faults_in_seconds():
     expected = int(((values[:, 0::2] != 1) & (values[:, 1::2] >= 0)).sum())
     assert len(faults) == expected
     assert seconds < 60, f"{seconds:.1f} s for 5,000 items x 40 cases"  # generous: seconds expected
+
+
+def test_listing_equals_reference_with_and_without_rules():
+    # 'a' has no rule: its faults carry no rule text; alone, and beside faults of routed items
+    base = {c: [None, None] for c in ("b", "c", "d", "m_x", "m_y", "e", "g", "f")}
+    only_a = pd.DataFrame({"id": [1, 2], "zone": [1, 1], **base, "a": [7, 1]})
+    mixed = only_a.assign(a=[7, 2], b=[None, 4])
+    for frame in (only_a, mixed):
+        cl = classify(frame, Q)
+        assert len(cl.faults) == (1 if frame is only_a else 2)
+        pd.testing.assert_frame_equal(cl.faults, reference_faults(cl))

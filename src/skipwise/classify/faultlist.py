@@ -55,27 +55,28 @@ def _coded_text(series: pd.Series, rows: np.ndarray) -> tuple[np.ndarray, np.nda
     return codes, np.asarray(uniques, dtype=object)
 
 
-def _joined(data: pd.DataFrame, columns: list[str], rows: np.ndarray) -> np.ndarray:
-    """``col=value; col=value`` at each of ``rows`` (text built per distinct combination)."""
+def _joined(data: pd.DataFrame, columns: list[str], rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``col=value; col=value`` at each of ``rows``, as codes and distinct texts.
+
+    The codes of the columns are combined one column at a time and factorized again, so the
+    text is built once per distinct combination of stored values.
+    """
     if not columns:
-        return np.full(rows.size, "", dtype=object)
+        return np.zeros(rows.size, dtype=np.int64), np.array([""], dtype=object)
     codes = np.zeros(rows.size, dtype=np.int64)
     texts = np.array([""], dtype=object)
     for k, col in enumerate(columns):
         c, t = _coded_text(data[col], rows)
-        combo, first = np.unique(codes * len(t) + c, return_index=True)
-        # each distinct combination: the text so far, then this column's part
-        prefix = texts[codes[first]]
-        part = (col + "=") + t[c[first]]
-        texts = (prefix + "; " + part) if k else part
-        codes = np.searchsorted(combo, codes * len(t) + c)
-    return texts[codes]
+        codes, combos = pd.factorize(codes * len(t) + c)
+        part = (col + "=") + t[combos % len(t)]
+        texts = (texts[combos // len(t)] + "; " + part) if k else part
+    return codes, texts
 
 
-def _stored_text(data: pd.DataFrame, columns: tuple[str, ...], rows: np.ndarray, *, multi: bool) -> np.ndarray:
+def _stored_text(data: pd.DataFrame, columns: tuple[str, ...], rows: np.ndarray, *,
+                 multi: bool) -> tuple[np.ndarray, np.ndarray]:
     if not multi:
-        c, t = _coded_text(data[columns[0]], rows)
-        return t[c]
+        return _coded_text(data[columns[0]], rows)
     return _joined(data, list(columns), rows)
 
 
@@ -87,15 +88,51 @@ def _rule_columns(q: Questionnaire, rule: ast.BoolNode | None) -> list[str]:
     return list(dict.fromkeys(c for n in names for c in (q.item(n).columns if n in q else (n,))))
 
 
+class _Texts:
+    """Codes per fault and distinct texts, gathered item by item into one text column."""
+
+    def __init__(self) -> None:
+        self.codes: list[np.ndarray] = []
+        self.texts: list[np.ndarray] = []
+        self.size = 0
+
+    def add(self, coded: tuple[np.ndarray, np.ndarray]) -> None:
+        codes, texts = coded
+        self.codes.append(codes.astype(np.int64, copy=False) + self.size)
+        self.texts.append(texts)
+        self.size += len(texts)
+
+    def column(self) -> pd.Series | np.ndarray:
+        return text_column(np.concatenate(self.codes), np.concatenate(self.texts))
+
+
+_STR = pd.Series(np.array(["x"], dtype=object)).dtype  # the text dtype pandas gives object arrays of str
+
+
+def text_column(codes: np.ndarray, texts: np.ndarray) -> pd.Series | np.ndarray:
+    """``texts[codes]`` as the column pandas would make of it, built without a Python pass per cell.
+
+    Where pandas stores text in Arrow arrays, the distinct texts go to Arrow once and are taken
+    there by the codes (a dictionary array decoded); otherwise the object array itself.
+    """
+    if isinstance(_STR, pd.StringDtype) and _STR.storage == "pyarrow":
+        import pyarrow as pa
+
+        taken = pa.DictionaryArray.from_arrays(pa.array(codes), pa.array(texts, type=pa.large_string())
+                                               ).dictionary_decode()
+        return pd.Series(pd.arrays.ArrowStringArray(taken, dtype=_STR), copy=False)
+    return texts[codes]
+
+
 def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ...], fault_codes: list[int],
                   case_ids: np.ndarray, data: pd.DataFrame) -> pd.DataFrame:
     """One row per fault cell, items in interview order and cases in file order within an item.
 
     Reads only the item's own columns and the columns its rule reads, at the faulty rows.
     """
-    cats = np.asarray(categories, dtype=object)
-    rows_all, item_of, values, inputs = [], [], [], []
-    names, rules, positions = [], [], []
+    rows_all, item_of, rules, positions = [], [], [], []
+    values, inputs, status = _Texts(), _Texts(), []
+    names: list[str] = []
     for j, name in enumerate(q.item_names):
         rows = np.flatnonzero(isin_small(codes[:, j], fault_codes))
         if rows.size == 0:
@@ -103,22 +140,23 @@ def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ..
         item = q.item(name)
         rows_all.append(rows)
         item_of.append(np.full(rows.size, len(names), dtype=np.int64))
+        status.append(codes[rows, j])
         names.append(name)
         positions.append(j)
         rules.append(item.rule_text)
-        values.append(_stored_text(data, item.columns, rows, multi=item.type is ItemType.MULTI))
-        inputs.append(_joined(data, _rule_columns(q, item.rule), rows) if item.rule is not None
-                      else np.full(rows.size, "", dtype=object))
+        values.add(_stored_text(data, item.columns, rows, multi=item.type is ItemType.MULTI))
+        inputs.add(_joined(data, _rule_columns(q, item.rule), rows))
     if not rows_all:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in FAULT_COLUMNS})
-    rows = np.concatenate(rows_all)
     which = np.concatenate(item_of)
-    col_of = np.asarray(positions, dtype=np.int64)[which]
+    rule_texts = np.asarray(rules, dtype=object)
+    # (an item without a rule has no rule text: None, as the listing always showed it)
+    rule = rule_texts[which] if any(r is None for r in rules) else text_column(which, rule_texts)
     return pd.DataFrame({
-        "case_id": case_ids[rows],
-        "item": np.asarray(names, dtype=object)[which],
-        "status": cats[codes[rows, col_of]],
-        "value": np.concatenate(values),
-        "rule": np.asarray(rules, dtype=object)[which],
-        "inputs": np.concatenate(inputs),
-    })[FAULT_COLUMNS]
+        "case_id": case_ids[np.concatenate(rows_all)],
+        "item": text_column(which, np.asarray(names, dtype=object)),
+        "status": text_column(np.concatenate(status).astype(np.int64), np.asarray(categories, dtype=object)),
+        "value": values.column(),
+        "rule": rule,
+        "inputs": inputs.column(),
+    }, copy=False)
