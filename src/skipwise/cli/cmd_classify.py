@@ -24,6 +24,9 @@ def classify_command(
                        "non-answer cell by a special code per status (user-missing in .sav, extended "
                        "missing in .dta).")] = "columns",
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+    jobs: Annotated[int | None, typer.Option(
+        "--jobs", min=1, help="Threads classifying blocks of rows at once (default: every core of the "
+                              "machine). The result is the same for every number.")] = None,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
@@ -48,7 +51,7 @@ def classify_command(
         check_writable(out, overwrite=overwrite, inputs=inputs)
         check_writable(faults_path, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
-        cl = classify_with_progress(frame, q)
+        cl = classify_with_progress(frame, q, jobs=jobs)
         meta = get_meta(frame)
         fmt = out.suffix.lower().lstrip(".")
         if chosen is ExportForm.COLUMNS:
