@@ -242,6 +242,11 @@ def _read_parquet(path: Path, fmt: str, encoding: str | None, columns: list[str]
     except (pyarrow.ArrowException, OSError) as exc:
         raise _unreadable(path, f"not a readable Parquet file ({clean_message(exc)})",
                           "check the file was copied completely") from None
+    return parquet_frame(table, path, fmt)
+
+
+def parquet_frame(table, path: Path, fmt: str = "parquet") -> pd.DataFrame:
+    """A Parquet table (a whole file or some of its row groups) as read_survey returns it, metadata restored."""
     raw = table.schema.metadata or {}
     meta = SurveyMeta()
     if META_KEY in raw:
