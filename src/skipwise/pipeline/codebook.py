@@ -35,7 +35,7 @@ def package_input(st, frame: pd.DataFrame, meta: SurveyMeta, data_name: str | No
                   weight_name: str | None) -> CodebookInput:
     """What the package's codebooks (md, html, DDI) describe: the final data file, rates weighted by the final weight."""
     res = st.weigh
-    min_base = getattr(st.plan.report, "min_base", None) if st.plan.report is not None else None
+    min_base = st.plan.min_base
     return codebook_input(frame, st.q, meta=meta, file_name=data_name or st.plan.data.name, classification=st.cl,
                           weight_prefix=res.plan.prefix if res is not None else None, weight=weight_name,
                           weight_labels=weight_labels(res) if res is not None else None,

@@ -22,8 +22,8 @@ __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "
            "loads_run_plan", "TOP_KEYS", "PLAN_FORMAT", "FORMATS"]
 
 PLAN_FORMAT = 1
-TOP_KEYS = ("format", "data", "questionnaire", "check", "report", "diagnose", "weighting", "imputation", "output",
-            "study")
+TOP_KEYS = ("format", "data", "questionnaire", "min_base", "check", "report", "diagnose", "weighting",
+            "imputation", "output", "study")
 #: Output formats of the final data file; ``input`` is the data file's own format.
 FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 
@@ -104,6 +104,7 @@ class RunPlan:
     weighting_plan: Path | None = None
     weighting_data: Path | None = None
     imputation_plan: Path | None = None
+    min_base: int = 30   # minimum unweighted D for a rate to be ranked (common practice, no source)
     study: Mapping[str, str] = field(default_factory=dict)   # overrides the questionnaire's study block key by key
     lines: Mapping[tuple, int] = field(default_factory=dict)
 
@@ -137,7 +138,7 @@ class RunPlan:
 
         return {
             "format": PLAN_FORMAT, "file": str(self.file), "data": str(self.data),
-            "questionnaire": str(self.questionnaire),
+            "questionnaire": str(self.questionnaire), "min_base": self.min_base,
             "check": {"stop_on_error": self.stop_on_check_error, "top": self.check_top},
             "report": plain(self.report) if self.report is not None else False,
             "diagnose": plain(self.diagnose) if self.diagnose is not None else False,
@@ -282,6 +283,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
               f"use one of {', '.join(SUPPORTED_EXTENSIONS)}")
     questionnaire = r.need_file(doc, "questionnaire", "the questionnaire file", "e.g. questionnaire: survey.yaml")
 
+    min_base = r.values(doc, {"min_base": "int"}, "").get("min_base", 30)
     check = r.values(r.section(doc, "check", CHECK_KEYS), CHECK_KEYS, "check")
     report_on, report = r.switchable(doc, "report", REPORT_KEYS)
     diagnose_on, diagnose = r.switchable(doc, "diagnose", DIAGNOSE_KEYS)
@@ -325,7 +327,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         report=ReportOptions(**report) if report_on else None,
         diagnose=DiagnoseOptionsSpec(**diagnose) if diagnose_on else None,
         weighting_plan=weighting.get("plan"), weighting_data=weighting.get("data"),
-        imputation_plan=imputation.get("plan"), study=study, lines=dict(r.lines),
+        imputation_plan=imputation.get("plan"), min_base=min_base, study=study, lines=dict(r.lines),
     )
 
 
