@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 from scipy.optimize import linprog
 
-__all__ = ["SeparationCheck", "detect_separation", "NONE", "QUASI", "COMPLETE", "EXTREME_P"]
+__all__ = ["SeparationCheck", "detect_separation", "sentence", "NONE", "QUASI", "COMPLETE", "EXTREME_P"]
 
 NONE, QUASI, COMPLETE = "none", "quasi-complete", "complete"
 #: A fitted probability this close to 0 or 1 counts as "exactly" 0 or 1 (common practice, no source).
@@ -121,3 +121,8 @@ def detect_separation(x: pd.DataFrame | np.ndarray, y: np.ndarray | pd.Series, *
     terms = tuple(nm for nm, on in zip(kept_names, big) if on and nm != "const")
     return SeparationCheck(verdict=COMPLETE if complete else QUASI, terms=terms,
                            perfect_ones=int((strict & yv).sum()), perfect_zeros=int((strict & ~yv).sum()))
+
+
+def sentence(text: str) -> str:
+    """``text`` as a sentence: first letter upper case (the rest as written), a full stop at the end."""
+    return text[:1].upper() + text[1:] + ("" if text.endswith(".") else ".")

@@ -14,7 +14,7 @@ from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparatio
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
-from skipwise.separation import SeparationCheck, detect_separation
+from skipwise.separation import SeparationCheck, detect_separation, sentence as _sentence
 
 __all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit",
            "coefficient_table", "fitted_probabilities", "unstable_terms", "UNSTABLE_NOTE",
@@ -297,7 +297,7 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
     sep = detect_separation(x, ind.to_numpy())
     if sep.separated:
         notes = [n for n in notes if not n.startswith("Some auxiliary separates")]
-        notes.append(sep.describe("nonrespondents", "respondents").capitalize() + ".")
+        notes.append(_sentence(sep.describe("nonrespondents", "respondents")))
         table = blank_separated(table, sep)
     unstable = [t for t in unstable_terms(table) if t not in sep.terms]
     if unstable:

@@ -20,7 +20,7 @@ from skipwise.diagnostics.model import (
     SE_MODEL_BASED, SE_ROBUST, UNSTABLE_NOTE, blank_separated, coefficient_table, design_matrix, fit_logit,
     fitted_probabilities, unstable_terms,
 )
-from skipwise.separation import SeparationCheck, detect_separation
+from skipwise.separation import SeparationCheck, detect_separation, sentence as _sentence
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["RIndicatorResult", "r_indicator", "BINS"]
@@ -191,7 +191,7 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
     sep = detect_separation(x, ind.to_numpy())
     if sep.separated:
         notes = [n for n in notes if not n.startswith("Some auxiliary separates")]
-        notes.append(sep.describe("respondents", "nonrespondents").capitalize() + ".")
+        notes.append(_sentence(sep.describe("respondents", "nonrespondents")))
         model = blank_separated(model, sep)
     dv, rv = d.to_numpy(), rho.to_numpy()
     big_n = dv.sum()
