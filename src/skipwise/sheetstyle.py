@@ -31,7 +31,7 @@ from openpyxl.utils import get_column_letter
 __all__ = [
     "FONT_NAME", "PCT", "INT", "WEIGHTED", "DEC", "STAT", "P_VALUE", "WEIGHT", "EXCEL_MAX_ROWS",
     "EXCEL_MAX_CELL_CHARS", "clean_text", "clean_texts", "plain", "stat_format", "human", "SheetWriter",
-    "TableRef", "MARK", "yes_no",
+    "TableRef", "MARK", "yes_no", "house_workbook",
 ]
 
 #: A font the Debian LibreOffice packages install (fonts-dejavu), named on every cell.
@@ -146,6 +146,13 @@ def human(name: str) -> str:
 
 
 @dataclass(frozen=True)
+class _Stream:
+    rows: Iterable[list]
+    count: int
+    width: int
+
+
+@dataclass(frozen=True)
 class TableRef:
     """Where a table landed: its header row, first and last data rows and column numbers (1-based)."""
 
@@ -154,6 +161,21 @@ class TableRef:
     last_row: int
     columns: dict[str, int]
     first_col: int
+
+
+def house_workbook(*, write_only: bool = False) -> Any:
+    """An empty workbook whose default font is :data:`FONT_NAME` (cells written without a style too)."""
+    from openpyxl import Workbook
+    from openpyxl.utils.indexed_list import IndexedList
+
+    wb = Workbook(write_only=write_only)
+    wb._fonts = IndexedList([Font(name=FONT_NAME, size=_SIZE, family=2)])  # font 0: every unstyled cell
+    for named in wb._named_styles:
+        if named.name == "Normal":
+            named.font = Font(name=FONT_NAME, size=_SIZE, family=2)
+    if not write_only:
+        wb.remove(wb.active)
+    return wb
 
 
 class SheetWriter:
@@ -177,7 +199,8 @@ class SheetWriter:
                  source: str | None = None) -> None:
         self.ws = wb.create_sheet(name)
         self.name = name
-        self._rows: list[list[tuple[object, str | None, str] | None]] = []
+        self._rows: list[Any] = []  # lists of (value, format, kind) or None, and _Stream blocks
+        self._n = 0
         self._heights: dict[int, float] = {}
         self._need: dict[int, float] = {}
         self._fixed: dict[int, float] = {}
@@ -201,19 +224,35 @@ class SheetWriter:
     @property
     def next_row(self) -> int:
         """The 1-based number of the row the next call writes."""
-        return len(self._rows) + 1
+        return self._n + 1
+
+    def _add(self, row: list) -> None:
+        self._rows.append(row)
+        self._n += 1
+
+    def stream(self, rows: Iterable[list], count: int, width: int) -> None:
+        """``count`` rows made elsewhere (plain values or cells, ``width`` columns), written as they come.
+
+        For long listings: nothing is buffered; values must already be safe (text never a formula).
+        """
+        self._rows.append(_Stream(rows, count, width))
+        self._n += count
 
     def blank(self) -> None:
-        self._rows.append([])
+        self._add([])
 
     def line(self, text: str, kind: str = "note", *, col: int = 1) -> None:
         """One line of text in column ``col`` (kinds: title, explain, source, sub, note, text, bold)."""
-        self._rows.append([None] * (col - 1) + [(text, None, kind)])
+        self._add([None] * (col - 1) + [(text, None, kind)])
 
     def note(self, text: str, kind: str = "note") -> None:
         """A note (or another kind of line), wrapped into lines."""
         for part in textwrap.wrap(text, LINE_CHARS + 15 if kind == "note" else LINE_CHARS) or [""]:
             self.line(part, kind)
+
+    def cells(self, row: list[tuple[object, str | None, str] | None]) -> None:
+        """One row of (value, number format, kind) cells, or None for an empty cell."""
+        self._add(list(row))
 
     def width(self, col: int, chars: float) -> None:
         """Fix the width of column ``col`` (1-based), overriding the measured one."""
@@ -224,7 +263,7 @@ class SheetWriter:
         if heading:
             self.line(heading, "sub")
         for label, value, fmt in rows:
-            self._rows.append([(label, None, "label"), (value, fmt, "left")])
+            self._add([(label, None, "label"), (value, fmt, "left")])
             self._measure(1, label)
             self._measure(2, value, fmt, cap=60)
 
@@ -252,7 +291,7 @@ class SheetWriter:
         shown = [headers.get(c, human(c)) for c in names]
         header_row = self.next_row
         lead = [None] * (col - 1)
-        self._rows.append(lead + [(h, None, "rotated" if c in rotate else "header") for c, h in zip(names, shown)])
+        self._add(lead + [(h, None, "rotated" if c in rotate else "header") for c, h in zip(names, shown)])
         rotated_len = 0
         for j, (c, h) in enumerate(zip(names, shown), start=col):
             if c in rotate:
@@ -273,7 +312,7 @@ class SheetWriter:
                 self._measure(j, v, fmt, cap=max_width)
                 if kind == "wrap" and isinstance(v, str) and v:
                     self._wrapped.append((self.next_row, j, len(v)))
-            self._rows.append(row)
+            self._add(row)
         last = self.next_row - 1
         header_lines = 1
         for j, (c, h) in enumerate(zip(names, shown), start=col):
@@ -285,6 +324,25 @@ class SheetWriter:
         ref = TableRef(header_row=header_row, first_row=header_row + 1, last_row=last,
                        columns={c: j for j, c in enumerate(names, start=col)}, first_col=col)
         if main or (main is None and self._main is None):
+            self._main = ref
+            self._freeze_col = freeze_col
+        self._last_table = ref
+        return ref
+
+    def header(self, names: Sequence[str], *, col: int = 1, widths: Sequence[float] | None = None,
+               main: bool = True, count: int = 0, freeze_col: int = 1) -> TableRef:
+        """A header row alone, for a listing whose ``count`` rows follow by :meth:`stream`."""
+        row = self.next_row
+        self._add([None] * (col - 1) + [(h, None, "header") for h in names])
+        lines = 1
+        for j, h in enumerate(names, start=col):
+            w = widths[j - col] if widths is not None else max(len(x) for x in h.split()) + 2
+            self._need[j] = max(self._need.get(j, 0), w)
+            lines = max(lines, math.ceil(len(h) / max(w - 1.5, 1)))
+        self._heights[row] = 13.0 * min(lines, 5) + 4
+        ref = TableRef(header_row=row, first_row=row + 1, last_row=row + count,
+                       columns={h: j for j, h in enumerate(names, start=col)}, first_col=col)
+        if main:
             self._main = ref
             self._freeze_col = freeze_col
         self._last_table = ref
@@ -339,7 +397,7 @@ class SheetWriter:
         ``print_rows`` limits the print area to that many rows of the main table.
         """
         ws = self.ws
-        ncols = max((len(r) for r in self._rows), default=1)
+        ncols = max((r.width if isinstance(r, _Stream) else len(r) for r in self._rows), default=1)
         for j in range(1, ncols + 1):
             w = self._fixed.get(j, self._need.get(j, 10))
             ws.column_dimensions[get_column_letter(j)].width = float(max(w, 4))
@@ -365,10 +423,10 @@ class SheetWriter:
                 ws.print_area = f"A1:{last_col}{main.header_row + print_rows}"
         ps = ws.page_setup
         ps.orientation = "landscape" if landscape else "portrait"
-        ps.paperSize = ws.PAPERSIZE_A4
+        ps.paperSize = "9"  # A4
         ps.fitToWidth = 1
         # a short sheet prints on one page; a long one one page wide, as many pages tall as it needs
-        ps.fitToHeight = 1 if len(self._rows) <= SHORT_SHEET_ROWS and print_rows is None else 0
+        ps.fitToHeight = 1 if self._n <= SHORT_SHEET_ROWS and print_rows is None else 0
         ws.sheet_properties.pageSetUpPr.fitToPage = True
         ws.print_options.gridLines = False
         ws.page_margins.left = ws.page_margins.right = 0.4
@@ -379,4 +437,8 @@ class SheetWriter:
         for chart, anchor in self._charts:
             ws.add_chart(chart, anchor)
         for row in self._rows:
-            ws.append([self._cell(s) for s in row])
+            if isinstance(row, _Stream):
+                for values in row.rows:
+                    ws.append(values)
+            else:
+                ws.append([self._cell(s) for s in row])

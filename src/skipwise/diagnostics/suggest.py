@@ -9,14 +9,16 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from skipwise.rates import DEFAULT_MIN_BASE
+
 __all__ = ["CAUTIONS", "ItemEvidence", "Option", "Suggestion", "SuggestionThresholds", "suggest_handling",
            "ACTIONS", "flagged", "TOO_FEW", "MIN_BASE"]
 
 #: Association level of an item with fewer in-scope cases than the minimum base.
 TOO_FEW = "too few to judge"
 #: Default minimum base: in-scope cases an item needs to be tested, ranked or flagged
-#: (common practice, no source).
-MIN_BASE = 30
+#: (the package's one minimum base; common practice, no source).
+MIN_BASE = DEFAULT_MIN_BASE
 
 #: Shown with every set of suggestions.
 CAUTIONS = (

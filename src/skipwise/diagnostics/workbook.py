@@ -13,7 +13,6 @@ from __future__ import annotations
 from pathlib import Path
 
 import pandas as pd
-from openpyxl import Workbook
 
 from skipwise import sheetstyle as st
 from skipwise.diagnostics import sheets_tests as T
@@ -170,8 +169,7 @@ def write_diagnostics_workbook(report: DiagnosticsReport, path: str | Path, *, o
         ``output-exists`` if the file exists and ``overwrite`` is false.
     """
     base = int(min_base if min_base is not None else getattr(report, "min_base", 30))
-    wb = Workbook()
-    wb.remove(wb.active)
+    wb = st.house_workbook()
     _read_me(wb, report, base)
     _glance(wb, report, base)
     T.little_sheets(wb, report)

@@ -9,7 +9,6 @@ from typing import Sequence
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
 
 import skipwise
 from skipwise.classify import classify as run_classify
@@ -17,14 +16,15 @@ from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.questionnaire.model import Questionnaire
+from skipwise.rates import DEFAULT_MIN_BASE
 from skipwise.report import tables as T
 from skipwise.report.patterns import nonresponse_patterns, pick_items
-from skipwise.report.sheets_completeness import write_charts_sheet, write_completeness_sheet
+from skipwise.report.sheets_completeness import worst_items, write_charts_sheet, write_completeness_sheet
 from skipwise.report.sheets_faults import FAULTS_HEADER_ROW, write_faults_sheet
 from skipwise.report.sheets_items import write_items_sheet, write_subgroups_sheet
 from skipwise.report.sheets_overview import OverviewInfo, write_overview_sheet
 from skipwise.report.sheets_patterns import write_patterns_sheet
-from skipwise.report.styles import EXCEL_MAX_ROWS
+from skipwise.sheetstyle import EXCEL_MAX_ROWS, house_workbook
 
 __all__ = ["write_item_report", "SHEETS", "DEFAULT_FAULT_ROWS", "MAX_GROUPS"]
 
@@ -100,6 +100,7 @@ def write_item_report(
     top_items: int = 12,
     top_patterns: int = 20,
     fault_rows: int = DEFAULT_FAULT_ROWS,
+    min_base: int = DEFAULT_MIN_BASE,
     input_path: str | Path | None = None,
     overwrite: bool = True,
 ) -> Path:
@@ -128,8 +129,11 @@ def write_item_report(
         Items in the pattern grid (those with the highest rates) and patterns shown.
     fault_rows
         Most fault rows listed (never more than a worksheet holds); counts cover all faults.
+    min_base
+        Minimum unweighted D: items under it are left out of the chart of the highest rates
+        (common practice, no source).
     input_path
-        The data file read, named with its SHA-256 on the Overview sheet.
+        The data file read (its name, never its folder, and its SHA-256 on the Overview sheet).
     overwrite
         Replace an existing file at ``path``.
 
@@ -177,17 +181,18 @@ def write_item_report(
         faults_total=n_faults, faults_shown=len(faults),
     )
 
-    wb = Workbook(write_only=True)
+    wb = house_workbook(write_only=True)
     write_overview_sheet(wb, info, T.status_shares(c, fig), title=SHEETS[0])
-    items_layout = write_items_sheet(wb, items, title=SHEETS[1])
-    items_ws = wb[SHEETS[1]]
+    write_items_sheet(wb, items, title=SHEETS[1])
     write_faults_sheet(wb, faults, n_faults, T.fault_counts(fig), case_ids=case_ids, title=SHEETS[2])
     write_patterns_sheet(wb, patterns, rates, title=SHEETS[3])
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
     comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
                                            title=SHEETS[5])
-    write_charts_sheet(wb, items_layout, comp_layout, items_ws, wb[SHEETS[5]], weighted=w is not None,
-                       title=SHEETS[6])
+    base_col = next(col for col in items.columns if str(col).startswith("In universe (excl."))
+    rate_col = T.ITEM_RATE_W if w is not None and T.ITEM_RATE_W in items.columns else T.ITEM_RATE
+    write_charts_sheet(wb, worst_items(items, rate_col, base_col, min_base), comp_layout, wb[SHEETS[5]],
+                       weighted=w is not None, min_base=min_base, title=SHEETS[6])
     wb.properties.title = f"Item nonresponse report: {q.title or q.name}"
     wb.properties.creator = f"skipwise {skipwise.__version__}"
     with atomic_output(path, overwrite=overwrite) as tmp:

@@ -12,7 +12,6 @@ from __future__ import annotations
 from pathlib import Path
 
 import pandas as pd
-from openpyxl import Workbook
 
 from skipwise import sheetstyle as st
 from skipwise.io.atomic import atomic_output
@@ -284,8 +283,7 @@ def _replicates(wb, res: WeighResult) -> None:
 
 def write_workbook(res: WeighResult, path: str | Path, *, overwrite: bool = True) -> Path:
     """Write every diagnostic of a weighting run to an .xlsx workbook, atomically."""
-    wb = Workbook()
-    wb.remove(wb.active)
+    wb = st.house_workbook()
     _overview(wb, res)
     _rates(wb, res)
     _stages(wb, res)
