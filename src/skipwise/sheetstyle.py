@@ -84,7 +84,7 @@ _STYLES: dict[str, dict[str, Any]] = {
 
 _ILLEGAL = re.compile(r"[\000-\010\013\014\016-\037]")
 #: Sheets of at most this many rows are fitted on one page (common practice, no source).
-SHORT_SHEET_ROWS = 60
+SHORT_SHEET_ROWS = 40
 #: Characters of explanation per printed line (landscape A4 at the usual scale).
 LINE_CHARS = 125
 
@@ -404,10 +404,10 @@ class SheetWriter:
         lines: dict[int, int] = {}
         for r, j, n in self._wrapped:
             w = self._fixed.get(j, self._need.get(j, 10))
-            lines[r] = max(lines.get(r, 1), math.ceil(n * 1.1 / max(w - 1, 1)))
+            lines[r] = max(lines.get(r, 1), math.ceil(n / max(w - 1, 1)))
         for r, k in lines.items():
             if k > 1:
-                self._heights.setdefault(r, 11.5 * k + 2)
+                self._heights.setdefault(r, 11.0 * k + 2)
         for r, h in self._heights.items():
             ws.row_dimensions[r].height = h
         main = self._main

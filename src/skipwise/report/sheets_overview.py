@@ -104,7 +104,7 @@ def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, t
     for note in getattr(info, "notes", ()):
         s.note("Note: " + note)
     s.blank()
-    s.table(pd.DataFrame(DEFINITIONS, columns=["Term", "Definition"]), wrap=["Definition"], main=False,
+    s.table(pd.DataFrame(DEFINITIONS, columns=["Term", "Definition"]), wrap=["Term", "Definition"], main=False,
             heading="Definitions")
     s.width(1, 30)
     s.width(2, 70)

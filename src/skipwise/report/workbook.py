@@ -165,7 +165,9 @@ def write_item_report(
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
     faults, n_faults = T.fault_rows(c, fig, limit)
     rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
-    chosen = pick_items(rates, top_items)
+    base_col = next(col for col in items.columns if str(col).startswith("In universe (excl."))
+    # Items under the minimum base are never chosen for the grid: one case can make a rate of 100%.
+    chosen = pick_items(rates.where(items[base_col].to_numpy() >= min_base), top_items)
     idx = [c.items.index(name) for name in chosen]
     nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
     mask = np.column_stack([T.in_codes(c.codes[:, j], nr_codes) for j in idx]) if idx else np.zeros((len(c.index), 0), dtype=bool)
@@ -189,7 +191,6 @@ def write_item_report(
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
     comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
                                            title=SHEETS[5])
-    base_col = next(col for col in items.columns if str(col).startswith("In universe (excl."))
     rate_col = T.ITEM_RATE_W if w is not None and T.ITEM_RATE_W in items.columns else T.ITEM_RATE
     write_charts_sheet(wb, worst_items(items, rate_col, base_col, min_base), comp_layout, wb[SHEETS[5]],
                        weighted=w is not None, min_base=min_base, title=SHEETS[6])
