@@ -11,6 +11,7 @@ import openpyxl
 
 from skipwise.report.sheets_items import column_header as H
 from skipwise.sheetstyle import MARK
+from sheetread import texts
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
@@ -209,7 +210,7 @@ def test_patterns_match_pandas_groupby(tmp_path):
 
 def test_structure_names_panes_filters(tiny, tmp_path):
     df, q = tiny
-    path = write_item_report(df, q, tmp_path / "st.xlsx", weight="wt", by=["region"])
+    path = write_item_report(df, q, tmp_path / "st.xlsx", weight="wt", by=["region"], min_base=1)
     wb = openpyxl.load_workbook(path)
     assert wb.sheetnames == list(SHEETS)
     top = _header_row(wb["Items"], "Section")
@@ -225,12 +226,14 @@ def test_structure_names_panes_filters(tiny, tmp_path):
     assert wb["Patterns"].freeze_panes is not None
     with zipfile.ZipFile(path) as z:
         charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
-    # every item of the tiny file has D < 30 (the minimum base): no worst-item chart, only completeness
-    assert len(charts) == 1
-    path = write_item_report(df, q, tmp_path / "st1.xlsx", weight="wt", by=["region"], min_base=1)
+    assert len(charts) == 2
+    # every item of the tiny file has D < 30 (the default minimum base): no worst-item chart and no
+    # pattern column, only the completeness chart
+    path = write_item_report(df, q, tmp_path / "st30.xlsx", weight="wt", by=["region"])
     with zipfile.ZipFile(path) as z:
         charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
-    assert len(charts) == 2
+    assert len(charts) == 1
+    assert any("no pattern" in t for t in texts(path, "Patterns"))
 
 
 def test_faults_sheet_rows_cap_and_formula_text(tiny, tmp_path):
