@@ -73,7 +73,7 @@ def test_good_file_expands_rosters_and_sets():
 
 def test_demo_questionnaire_loads():
     q = load_questionnaire("questionnaires/marrowby-2026.yaml")
-    assert len(q.items) == 56 and len(q.columns) == 60
+    assert len(q.items) == 57 and len(q.columns) == 61
     assert q.item("commute_minutes").rule_text == "(age < 75) and (employed == 1 and commute_mode != 5)"
 
 

@@ -120,7 +120,7 @@ def test_items_sheet_counts_match_classifier(tiny, tmp_path):
     rc = rows[ITEMS.index("c")]
     assert (rc[header.index(H("dont_know"))], rc[header.index(H("item_missing"))],
             rc[header.index(H("breakoff"))]) == (1, 1, 1)
-    assert rc[header.index("In universe (excl. breakoff, left_blank)")] == 5
+    assert rc[header.index("D: in universe, excl. breakoff and left_blank")] == 5
     assert_allclose(rc[header.index("Item nonresponse rate")], 2 / 5, rtol=1e-12)
     first = _header_row(wb["Items"], "Section") + 1
     assert wb["Items"].cell(row=first, column=header.index("Item nonresponse rate") + 1).number_format.endswith("%")

@@ -28,7 +28,7 @@ sections:
     items:
       - {name: pet, label: Keeps a pet, type: categorical, values: {1: "Yes", 2: "No"}}
       - {name: pets, label: Number of pets, type: integer, range: [1, 9], asked_if: pet == 1}
-      - {name: mood, label: Mood today, type: integer, range: [0, 10]}
+      - {name: mood, label: Mood today, type: integer, range: [0, 10], text: "How is your mood today, from 0 to 10?"}
 """
 WEIGHTS = """\
 format: 1
@@ -113,7 +113,7 @@ EXPECTED = ["pond.sav", "pond.parquet", "pond_coded.dta", "pond_faults.csv", "it
 def test_run_writes_every_file_and_shows_each_step(ran):
     root, output, _ = ran
     assert sorted(p.name for p in (root / "package").iterdir()) == sorted(EXPECTED)
-    for step in ("read", "check", "classify", "report", "diagnose", "weigh", "impute", "export"):
+    for step in ("read", "check", "classify", "join", "weigh", "report", "diagnose", "impute", "export"):
         assert f"] {step}:" in output
     assert "not at random" in output
 
@@ -168,7 +168,7 @@ def test_manifest_hashes_match_hashlib(ran):
     assert doc["plan"]["data"] == str((root / "in/pond.sav").resolve())
     assert doc["seeds"]["imputation"] == 11
     steps = [s["step"] for s in doc["steps"]]
-    assert steps[:9] == ["plan", "read", "check", "classify", "report", "diagnose", "weigh", "impute", "export"]
+    assert steps[:10] == ["plan", "read", "check", "classify", "join", "weigh", "report", "diagnose", "impute", "export"]
     assert all(s["seconds"] >= 0 and s["status"] == "done" for s in doc["steps"])
 
 
@@ -212,6 +212,7 @@ def test_codebook_lists_every_output_variable(ran):
     assert "| D: in universe, excluding break-off and optional blanks | 40 |" in mood
     assert "| item nonresponse rate | 7.5% |" in mood and "|   of which refused | 5.0% |" in mood
     assert "weighted (wt_final)" in md and "Calibration (rake)" in md and "2 imputation(s), seed 11" in md
+    assert "How is your mood today, from 0 to 10?" in md and "How is your mood today, from 0 to 10?" in shown
 
 
 def test_existing_outputs_need_overwrite_and_are_listed_together(ran):

@@ -87,7 +87,7 @@ def _check_letters(cl: Classification, numeric_items: list[str]) -> None:
         for reason in item.nonresponse_reasons:
             if letter_of(numbers[reason]) is None:
                 problems.append(Problem(
-                    code=ProblemCode.BAD_VALUE, category=Category.USAGE, item=name, file=cl.questionnaire.path,
+                    code=ProblemCode.NO_STATA_LETTER, category=Category.USAGE, item=name, file=cl.questionnaire.path,
                     line=(item.code_for(reason) or item).line,
                     message=f"reason '{reason}' of item '{name}' has number {numbers[reason]}: Stata's extended "
                             "missing letters .i-.z only hold reasons 11-28",

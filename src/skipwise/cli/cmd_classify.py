@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Optional
 
 import typer
 
 from skipwise.cli.app import app, fail
 from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs, sibling
+from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 
 OUT_FORMATS = (".sav", ".dta", ".parquet", ".csv")
@@ -24,6 +25,9 @@ def classify_command(
                        "non-answer cell by a special code per status (user-missing in .sav, extended "
                        "missing in .dta).")] = "columns",
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+    engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
+    scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
+    partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
@@ -36,6 +40,15 @@ def classify_command(
     from skipwise.io import get_meta, write_survey
     from skipwise.io.atomic import atomic_output, check_writable
 
+    if engine is Engine.DASK:
+        from skipwise.cli.engine import classify_with_dask
+
+        try:
+            classify_with_dask(data, questionnaire, out, form=form, scheduler=scheduler,
+                               partition_rows=partition_rows, overwrite=overwrite)
+        except SkipwiseError as err:
+            fail(err)
+        return
     try:
         if out.suffix.lower() not in OUT_FORMATS:
             raise SkipwiseError(f"output {out} must end in one of {', '.join(OUT_FORMATS)}")
@@ -69,5 +82,14 @@ def classify_command(
     for status, count in shares.items():
         if count:
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
+    _echo_invalid_hint(cl, data, questionnaire)
     typer.echo(f"wrote {out}")
     typer.echo(f"wrote {faults_path} ({len(cl.faults):,} routing faults; it lists case ids)")
+
+
+def _echo_invalid_hint(cl, data: Path, questionnaire: Path) -> None:
+    from skipwise.classify.hints import invalid_hint
+
+    hint = invalid_hint(cl, data=str(data), questionnaire=str(questionnaire))
+    if hint:
+        typer.echo(hint)

@@ -195,12 +195,11 @@ def models_sheet(wb: Any, rep: DiagnosticsReport, flagged: list[str]) -> None:
     if not rep.models:
         return
     ms = list(rep.models.values())
-    in_scope = rep.summary.set_index("item")["in_scope"]
     shared, own = _common([m.notes for m in ms])
     verdict = [m.separation.verdict if m.separation is not None else "none" for m in ms]
     fit = pd.DataFrame({
         "Item": [m.item for m in ms], "Cases": [m.n for m in ms],
-        "Left out (missing auxiliary)": [int(in_scope.get(m.item, m.n)) - m.n for m in ms],
+        "Left out (missing auxiliary)": [m.n_left_out for m in ms],
         "Nonrespondents": [m.n_nonresponse for m in ms],
         "AUC": [None if v == "complete" else m.auc for m, v in zip(ms, verdict)],
         "McFadden R\u00b2": [m.pseudo_r2 for m in ms], "LR statistic": [m.lr_statistic for m in ms],
@@ -246,13 +245,14 @@ def representativeness_sheet(wb: Any, rep: DiagnosticsReport, flagged: list[str]
                               "& Skinner 2011 (partial indicators).")
     few = {f"response to {i}" for i, a in zip(rep.summary["item"], rep.summary["association"]) if a == TOO_FEW}
     overall = pd.DataFrame({
-        "Response": [r.target + (" (too few to judge)" if r.target in few else "") for r in ris], "Cases": [r.n for r in ris], "Responded": [r.n_responded for r in ris],
+        "Response": [r.target + (" (too few to judge)" if r.target in few else "") for r in ris], "Cases": [r.n for r in ris],
+        "Left out (missing auxiliary)": [r.n_left_out for r in ris], "Responded": [r.n_responded for r in ris],
         "Response rate": [r.response_rate for r in ris], "SD of propensities": [r.sd_propensity for r in ris],
         "R-indicator": [r.r_indicator for r in ris], "Max. absolute bias": [r.max_abs_bias for r in ris],
         "Separation": ["no" if r.separation is None or not r.separation.separated else r.separation.verdict
                        for r in ris],
         "Standard errors": [r.model_se for r in ris]})
-    s.table(overall, formats={"Cases": st.INT, "Responded": st.INT, "Response rate": st.PCT,
+    s.table(overall, formats={"Cases": st.INT, "Left out (missing auxiliary)": st.INT, "Responded": st.INT, "Response rate": st.PCT,
                               "SD of propensities": "0.0000", "R-indicator": st.STAT, "Max. absolute bias": st.STAT},
             freeze_col=2)
     wide = pd.DataFrame([{"Response": r.target, **dict(zip(r.partial["variable"], r.partial["partial_unconditional"]))}

@@ -61,9 +61,11 @@ def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> 
     """One row per item in interview order; frozen header and item columns, auto filter, percentages."""
     s = st.SheetWriter(wb, title, title="Item nonresponse by item (interview order)",
                        explanation=(
-                           "D = cells in the item's universe excluding breakoff and left_blank. Item nonresponse rate "
-                           "= (nonresponse reasons + item_missing) / D; each reason's rate uses D too. gate_unknown, "
-                           "breakoff, off_route and left_blank are counted apart. Status meanings: see the Overview."),
+                           "D = cells in the item's universe excluding breakoff and left_blank. Answered rate, item "
+                           "nonresponse rate ((nonresponse reasons + item_missing) / D) and fault rate ((wrong_code + "
+                           "invalid where asked) / D) add up to 100%; each reason's rate uses D too. gate_unknown, "
+                           "breakoff, off_route, left_blank and invalid values where not asked are counted apart. "
+                           "Items with D under the minimum base are marked and left out of rankings and charts."),
                        source="Groves et al. 2009, Survey Methodology, ch. 6.")
     cols = [str(c) for c in table.columns]
     ref = s.table(table, formats=_formats(table), headers={c: column_header(c) for c in cols},
