@@ -209,6 +209,7 @@ class SheetWriter:
         self._charts: list[tuple[Any, str]] = []
         self._wrapped: list[tuple[int, int, int]] = []  # (row, column, characters) of wrapped cells
         self._last_table: TableRef | None = None
+        self._headers: list[tuple[int, list[tuple[int, str]], int]] = []  # (row, [(column, text)], rotated)
         self.line(title, "title")
         self._heights[1] = 20
         lines = [explanation] if isinstance(explanation, str) else list(explanation)
@@ -253,6 +254,11 @@ class SheetWriter:
     def cells(self, row: list[tuple[object, str | None, str] | None]) -> None:
         """One row of (value, number format, kind) cells, or None for an empty cell."""
         self._add(list(row))
+
+    def labelled(self, label: str, text: str) -> None:
+        """A label in column A and a long text beside it, wrapped in column B."""
+        self._wrapped.append((self.next_row, 2, len(text)))
+        self._add([(label, None, "label"), (text, None, "wrap")])
 
     def width(self, col: int, chars: float) -> None:
         """Fix the width of column ``col`` (1-based), overriding the measured one."""
@@ -299,7 +305,8 @@ class SheetWriter:
                 self._need[j] = max(self._need.get(j, 0), 4.5)
             else:
                 words = max((len(w) for w in h.split()), default=4)
-                self._need[j] = max(self._need.get(j, 0), min(max(words + 2, math.ceil(len(h) / 3) + 2), max_width))
+                self._need[j] = max(self._need.get(j, 0), words + 1.5,
+                                    min(max(words + 2, math.ceil(len(h) / 3) + 2), max_width))
         kinds = ["mark" if c in marks else ("wrap" if c in wrap else "num") for c in names]
         fmts = [formats.get(c) for c in names]
         for values in df.itertuples(index=False, name=None):
@@ -314,13 +321,8 @@ class SheetWriter:
                     self._wrapped.append((self.next_row, j, len(v)))
             self._add(row)
         last = self.next_row - 1
-        header_lines = 1
-        for j, (c, h) in enumerate(zip(names, shown), start=col):
-            if c not in rotate:
-                w = self._fixed.get(j, self._need.get(j, 10))
-                header_lines = max(header_lines, math.ceil(len(h) / max(w - 1.5, 1)))
-        height = max(13.0 * min(header_lines, 5) + 4, 6.2 * rotated_len + 12 if rotated_len else 0)
-        self._heights[header_row] = height
+        self._headers.append((header_row, [(j, h) for j, (c, h) in enumerate(zip(names, shown), start=col)
+                                           if c not in rotate], rotated_len))
         ref = TableRef(header_row=header_row, first_row=header_row + 1, last_row=last,
                        columns={c: j for j, c in enumerate(names, start=col)}, first_col=col)
         if main or (main is None and self._main is None):
@@ -401,6 +403,10 @@ class SheetWriter:
         for j in range(1, ncols + 1):
             w = self._fixed.get(j, self._need.get(j, 10))
             ws.column_dimensions[get_column_letter(j)].width = float(max(w, 4))
+        for r, heads, rotated_len in self._headers:
+            k = max([math.ceil(len(h) / max(self._fixed.get(j, self._need.get(j, 10)) - 1.5, 1)) for j, h in heads]
+                    or [1])
+            self._heights[r] = max(13.0 * min(k, 5) + 4, 6.2 * rotated_len + 12 if rotated_len else 0)
         lines: dict[int, int] = {}
         for r, j, n in self._wrapped:
             w = self._fixed.get(j, self._need.get(j, 10))

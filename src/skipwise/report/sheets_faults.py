@@ -90,6 +90,7 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
             columns[k], formula_like = arr, formula_like | bad
     count_values = counts.to_numpy(dtype=object)
     ws = s.ws
+    numeric_ids = case_ids and rows["case_id"].dtype.kind in "biuf"
 
     def lines():
         # Rows here are faults (capped), not respondents; the sheet API takes one row at a time.
@@ -100,6 +101,8 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
                             else st.plain(columns[k][i]) for k in keys]
                 else:
                     line = [st.plain(columns[k][i]) for k in keys]
+                if numeric_ids:
+                    line[0] = id_cell(ws, line[0])
             else:
                 line = [None] * n_list
             if i < len(counts):
@@ -118,6 +121,13 @@ def text_cell(ws: Any, value: object) -> Any:
     cell = WriteOnlyCell(ws, value=None)
     cell.value = st.clean_text(value)
     cell.data_type = "s"
+    return cell
+
+
+def id_cell(ws: Any, value: object) -> Any:
+    """A numeric case id: digits as stored, no thousands separator."""
+    cell = WriteOnlyCell(ws, value=value)
+    cell.number_format = "0"
     return cell
 
 

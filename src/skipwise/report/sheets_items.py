@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from typing import Any
 
@@ -46,15 +47,24 @@ def _formats(frame: pd.DataFrame) -> dict[str, str]:
     return fmts
 
 
-def column_header(name: str) -> str:
-    """A human header; a status token keeps its token beside the words (``Don't know (dont_know)``)."""
-    from skipwise.report.sheets_overview import STATUS_WORDS
+#: Short words for status tokens in headers (the Overview gives their meanings).
+HEADER_WORDS = {"dont_know": "Don't know", "item_missing": "Item missing", "gate_unknown": "Gate unknown",
+                "breakoff": "Break-off", "left_blank": "Left blank", "off_route": "Off route",
+                "wrong_code": "Wrong code"}
 
-    base, _, rest = name.partition(" rate")
-    if base in STATUS_WORDS:
-        words = st.human(STATUS_WORDS[base]) if base != "answered" else "Answered"
-        return f"{words}{' rate' if _ else ''}{rest} ({base})" if base != "answered" else f"{words}{' rate' if _ else ''}{rest}"
-    return name
+
+def column_header(name: str) -> str:
+    """A human header; a status or reason token keeps its token beside the words (``Don't know (dont_know)``)."""
+    base, sep, rest = name.partition(" rate")
+    if not _TOKEN.match(base):
+        return name
+    words = HEADER_WORDS.get(base, base.replace("_", " "))
+    words = words[:1].upper() + words[1:] + (" rate" if sep else "")
+    token = "" if "_" not in base and words.lower().startswith(base) else f" ({base})"
+    return f"{words}{token}{rest}"
+
+
+_TOKEN = re.compile(r"^[a-z][a-z0-9_]*$")
 
 
 def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> ItemsLayout:

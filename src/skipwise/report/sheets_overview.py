@@ -107,7 +107,7 @@ def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, t
     s.table(table, formats={"Cells": st.INT, "Share of cells": st.PCT, "Weighted share": st.PCT},
             heading="Share of all cells by status")
     for note in getattr(info, "notes", ()):
-        s.note("Note: " + note)
+        s.labelled("Note", note)
     s.blank()
     s.table(pd.DataFrame(DEFINITIONS, columns=["Term", "Definition"]), wrap=["Term", "Definition"], main=False,
             heading="Definitions")
