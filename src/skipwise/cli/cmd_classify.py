@@ -28,6 +28,9 @@ def classify_command(
     engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
+    jobs: Annotated[int | None, typer.Option(
+        "--jobs", min=1, help="Threads classifying blocks of rows at once (default: every core of the "
+                              "machine). The result is the same for every number.")] = None,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
@@ -38,7 +41,7 @@ def classify_command(
     """
     from skipwise.classify.export import ExportForm, recoded_copy, with_status_columns
     from skipwise.io import get_meta, write_survey
-    from skipwise.io.atomic import atomic_output, check_writable
+    from skipwise.publish import check_writable, publish_files
 
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
@@ -61,7 +64,7 @@ def classify_command(
         check_writable(out, overwrite=overwrite, inputs=inputs)
         check_writable(faults_path, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
-        cl = classify_with_progress(frame, q)
+        cl = classify_with_progress(frame, q, jobs=jobs)
         meta = get_meta(frame)
         fmt = out.suffix.lower().lstrip(".")
         if chosen is ExportForm.COLUMNS:
@@ -69,8 +72,7 @@ def classify_command(
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
-        with atomic_output(out, overwrite=overwrite) as tmp_out, \
-                atomic_output(faults_path, overwrite=overwrite) as tmp_faults:
+        with publish_files([out, faults_path], overwrite=overwrite) as (tmp_out, tmp_faults):
             with echo_warnings():
                 write_survey(result, tmp_out, meta, overwrite=True)
             cl.faults.to_csv(tmp_faults, index=False)

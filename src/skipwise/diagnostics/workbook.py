@@ -31,6 +31,8 @@ SHEETS = ("Read me", "Items at a glance", "MCAR test", "Patterns", "Group compar
 TOP_CHART_ITEMS = 15
 
 DEFINITIONS = (
+    ("Package D, package rate", "The package's base D (cells in the item's universe excluding breakoff and "
+     "left_blank) and its item nonresponse rate, the same numbers as in the item report and the codebook."),
     ("In scope (model base)", "A cell in the item's universe (routing says the question applied) that holds "
      "an answer or item nonresponse. Legitimate skips are never missing; break-offs, invalid values and wrong "
      "codes are set aside and counted apart, so this base can be a little smaller than the item report's."),
@@ -95,6 +97,8 @@ def _glance(wb, rep: DiagnosticsReport, min_base: int) -> None:
     out = pd.DataFrame({
         "Item": df["item"], "In scope": df["in_scope"], "Nonresponse": df["nonresponse"],
         "Nonresponse rate": df["nonresponse_rate"],
+        **({"Package D": df["package_D"], "Package rate": df["package_nonresponse_rate"]}
+           if "package_D" in df.columns else {}),
         "Evidence against MCAR": df["association"].map(T.association_words),
         "AUC": [None if sep.get(i) == "complete" else a for i, a in zip(df["item"], df["auc"])],
         "Model p": df["model_p"], "Model p adjusted": df["model_p_adjusted"],
@@ -102,11 +106,13 @@ def _glance(wb, rep: DiagnosticsReport, min_base: int) -> None:
         "Out of universe": df["out_of_universe"], "Set aside": df["set_aside"], "Suggested": df["suggested"],
     })
     s = st.SheetWriter(wb, "Items at a glance", title="Item nonresponse and evidence against MCAR, per item",
-                       explanation=(f"Rate = nonresponse / in-scope cases (the models' base). AUC and p-values come "
+                       explanation=(f"Rate = nonresponse / in-scope cases (the models' base); package rate = the "
+                                    f"item nonresponse rate of D, as in the item report. AUC and p-values come "
                                     f"from each item's nonresponse model on the auxiliaries; items with fewer than "
                                     f"{min_base} in-scope cases are too few to judge. Blank: not estimable."),
                        source="Holm 1979 (adjusted p); Hanley & McNeil 1982 (AUC).")
     ref = s.table(out, formats={"In scope": st.INT, "Nonresponse": st.INT, "Nonresponse rate": st.PCT,
+                                "Package D": st.INT, "Package rate": st.PCT,
                                 "AUC": st.STAT, "Model p": st.P_VALUE, "Model p adjusted": st.P_VALUE,
                                 "Out of universe": st.INT, "Set aside": st.INT},
                   wrap=["Suggested"], freeze_col=2)
