@@ -150,6 +150,9 @@ def read_step(st: RunState, reporter: Reporter) -> None:
         from skipwise.impute.plan import check_plan
 
         check_plan(st.imputation_plan, st.q, st.data.columns)
+    from skipwise.pipeline.outnames import check_run_columns
+
+    check_run_columns(st)  # every generated column name, before any file is written
 
 
 def check_step(st: RunState, reporter: Reporter) -> None:
