@@ -38,7 +38,7 @@ def classify_command(
     """
     from skipwise.classify.export import ExportForm, recoded_copy, with_status_columns
     from skipwise.io import get_meta, write_survey
-    from skipwise.io.atomic import atomic_output, check_writable
+    from skipwise.publish import check_writable, publish_files
 
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
@@ -69,8 +69,7 @@ def classify_command(
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
-        with atomic_output(out, overwrite=overwrite) as tmp_out, \
-                atomic_output(faults_path, overwrite=overwrite) as tmp_faults:
+        with publish_files([out, faults_path], overwrite=overwrite) as (tmp_out, tmp_faults):
             with echo_warnings():
                 write_survey(result, tmp_out, meta, overwrite=True)
             cl.faults.to_csv(tmp_faults, index=False)
