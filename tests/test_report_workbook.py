@@ -348,3 +348,18 @@ def test_one_pass_figures_equal_classifier_methods(tiny):
         for status, n in hand[item].value_counts().items():
             assert fig.counts.loc[item, status] == n, (item, status)
     assert fig.answered.tolist() == (hand == "answered").sum(axis=1).tolist()
+
+
+def test_worst_items_chart_leaves_out_small_bases_and_sorts(tiny, tmp_path):
+    df, q = tiny
+    path = write_item_report(df, q, tmp_path / "c.xlsx", min_base=5)
+    header, rows = _sheet_table(openpyxl.load_workbook(path)["Charts"], "Item")
+    rows = [(r[0], r[1]) for r in rows]
+    # Hand, from HAND: D = a 6, b 2, c 5, d 5, e 5, f 2; nonresponse a 1, c 2, d 0, e 1.
+    # b and f (D = 2 < 5) are left out, and d (no nonresponse: nothing to chart); worst first.
+    assert [r[0] for r in rows] == ["c", "e", "a"]
+    assert_allclose([r[1] for r in rows], [2 / 5, 1 / 5, 1 / 6], rtol=1e-12)
+    items = openpyxl.load_workbook(path)["Items"]
+    header, table = _sheet_table(items, "Section")
+    marked = {r[header.index("Item")] for r in table if r[header.index("Below minimum base")]}
+    assert marked == {"b", "f"}

@@ -217,6 +217,9 @@ class _Builder:
     def breakoff(self, doc: LineDict) -> BreakoffSpec:
         if "breakoff" not in doc:
             return BreakoffSpec()
+        if doc["breakoff"] is False or doc["breakoff"] is True:
+            # `breakoff: false` turns detection off (every blank in universe is then item nonresponse)
+            return BreakoffSpec(enabled=bool(doc["breakoff"]), line=doc.key_line("breakoff"))
         d = self.need_map(doc["breakoff"], "'breakoff'", doc.key_line("breakoff"))
         if d is None:
             return BreakoffSpec()
@@ -333,8 +336,8 @@ class _Builder:
         if "text" not in d:
             return None
         value = d["text"]
-        if isinstance(value, str) and value.strip():
-            return value.strip()
+        if isinstance(value, str):  # "" also after a list or mapping was refused by normalize_texts
+            return value.strip() or None
         self.add(ProblemCode.BAD_VALUE, f"'text' of item '{item}' must be the question wording as one text, "
                  f"found {value!r}", d.key_line("text"), item,
                  "write the wording on one line, or as a block after 'text: >'")
