@@ -7,46 +7,49 @@ from typing import Annotated
 
 import typer
 
+from skipwise.classify.export import ExportForm
 from skipwise.cli.app import app, fail
-from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs, sibling
+from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs
 from skipwise.errors import SkipwiseError
 
-OUT_FORMATS = (".sav", ".dta", ".parquet", ".csv")
+OUT_FORMATS = (".sav", ".zsav", ".dta", ".parquet", ".csv", ".xlsx")
 
 
 @app.command("classify")
 def classify_command(
-    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet).")],
+    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet .sas7bdat .xpt).")],
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
-    out: Annotated[Path, typer.Option("-o", "--out", help="Output file: .sav, .dta, .parquet or .csv.")],
-    form: Annotated[str, typer.Option(
-        "--form", help="'columns': add one labelled status column per item; 'recoded': replace every "
-                       "non-answer cell by a special code per status (user-missing in .sav, extended "
-                       "missing in .dta).")] = "columns",
+    out: Annotated[Path, typer.Option("-o", "--out", help="Output file: .sav, .zsav, .dta, .parquet, .csv or .xlsx "
+                                                          "(SAS files are read, not written).")],
+    form: Annotated[ExportForm, typer.Option(
+        "--form", case_sensitive=False,
+        help="'columns': add one labelled status column per item; 'recoded': replace every "
+             "non-answer cell by a special code per status (user-missing in .sav, extended "
+             "missing in .dta).")] = ExportForm.COLUMNS,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code or invalid.
 
-    Writes OUT with every original column and label kept, and OUT_faults.csv listing each routing
-    fault with its case id — that listing holds respondents' data: share it only under your
-    organization's data protection rules.
+    Writes OUT with every original column and label kept, and OUT.faults.csv (e.g. x.sav.faults.csv)
+    listing each routing fault with its case id — that listing holds respondents' data: share it
+    only under your organization's data protection rules.
     """
-    from skipwise.classify.export import ExportForm, recoded_copy, with_status_columns
+    from skipwise.classify.export import fault_listing, faults_path, recoded_copy, with_status_columns
     from skipwise.io import get_meta, write_survey
     from skipwise.io.atomic import atomic_output, check_writable
+    from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
 
     try:
         if out.suffix.lower() not in OUT_FORMATS:
+            if out.suffix.lower() in SUPPORTED_EXTENSIONS:
+                output_format_of(out)  # SAS is refused with its reason
             raise SkipwiseError(f"output {out} must end in one of {', '.join(OUT_FORMATS)}")
-        try:
-            chosen = ExportForm(form)
-        except ValueError:
-            raise SkipwiseError(f"--form must be 'columns' or 'recoded', not {form!r}") from None
-        faults_path = sibling(out, "_faults", ".csv")
+        chosen = ExportForm(form)
+        fault_file = faults_path(out)
         inputs = (data, questionnaire)
         check_writable(out, overwrite=overwrite, inputs=inputs)
-        check_writable(faults_path, overwrite=overwrite, inputs=inputs)
+        check_writable(fault_file, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
         cl = classify_with_progress(frame, q)
         meta = get_meta(frame)
@@ -57,10 +60,10 @@ def classify_command(
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
         with atomic_output(out, overwrite=overwrite) as tmp_out, \
-                atomic_output(faults_path, overwrite=overwrite) as tmp_faults:
-            with echo_warnings():
+                atomic_output(fault_file, overwrite=overwrite) as tmp_faults:
+            with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
-            cl.faults.to_csv(tmp_faults, index=False)
+            fault_listing(cl).to_csv(tmp_faults, index=False)
     except SkipwiseError as err:
         fail(err)
     shares = cl.counts().sum(axis=0)
@@ -70,4 +73,4 @@ def classify_command(
         if count:
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
     typer.echo(f"wrote {out}")
-    typer.echo(f"wrote {faults_path} ({len(cl.faults):,} routing faults; it lists case ids)")
+    typer.echo(f"wrote {fault_file} ({len(cl.faults):,} routing faults; it lists case ids)")

@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from skipwise.errors import Category, ProblemCode, ProblemList, did_you_mean
-from skipwise.io.readers import SUPPORTED_EXTENSIONS
+from skipwise.io.readers import SAS_OUTPUT_REASON, SUPPORTED_EXTENSIONS
 from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
 
 __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "load_run_plan",
@@ -305,6 +305,17 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
     if data is not None and "name" in out and out["name"] != Path(out["name"]).name:
         r.add(ProblemCode.BAD_VALUE, "'output.name' is a file stem, not a path", r.lines.get(("output", "name")),
               "e.g. name: lake-survey-2026")
+    if data is not None and data.suffix.lower() in (".sas7bdat", ".xpt"):
+        keys = [("status_columns", ("input", "parquet")), ("recoded", ())]
+        if imputation.get("plan") is not None:
+            keys.append(("imputed_format", "input"))
+        for key, default in keys:
+            chosen = out.get(key, default)
+            if "input" in ((chosen,) if isinstance(chosen, str) else chosen):
+                r.add(ProblemCode.FILE_FORMAT, f"'output.{key}': 'input' would be SAS ({data.name}): "
+                      f"{SAS_OUTPUT_REASON}", r.lines.get(("output", key)) or (out_raw.line if out_raw else doc.line),
+                      f"name the formats, e.g. output: {{{key}: " + ("dta}" if key == "imputed_format"
+                                                                    else "[dta, parquet]}"))
     r.problems.raise_if_any(headline=f"{len(r.problems)} problem(s) in run plan {file}")
 
     assert data is not None and questionnaire is not None

@@ -20,6 +20,7 @@ from pathlib import Path
 from typing import Callable
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.io.readers import READ_ONLY_FORMATS
 from skipwise.pipeline.manifest import StepRecord, build_manifest, file_record, manifest_text
 from skipwise.pipeline.plan import RunPlan, load_run_plan
 from skipwise.pipeline.reporting import Reporter, SilentReporter
@@ -79,7 +80,8 @@ def planned_outputs(plan: RunPlan, weighting_plan=None, imputation_plan=None) ->
         out["weighting_workbook"] = "weighting.xlsx"
         if plan.weighting_data is not None:
             stem, fmt = plan.weighting_data.stem, plan.weighting_data.suffix.lower().lstrip(".")
-            out["weighted_frame"] = f"{stem}_weighted.{fmt}"
+            if fmt not in READ_ONLY_FORMATS:  # SAS is read, not written: its weighted copy is Parquet only
+                out["weighted_frame"] = f"{stem}_weighted.{fmt}"
             if fmt != "parquet":
                 out["weighted_frame_parquet"] = f"{stem}_weighted.parquet"
     if imputation_plan is not None:

@@ -172,8 +172,10 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
 
     with classify_progress(reporter, len(st.q.items), st.data.shape[0] * len(st.q.items)) as progress:
         st.cl = classify(st.data, st.q, progress=progress)
+    from skipwise.classify.export import fault_listing
+
     with _atomic(st.targets["faults"]) as tmp:
-        st.cl.faults.to_csv(tmp, index=False)
+        fault_listing(st.cl).to_csv(tmp, index=False)
     shares = st.cl.counts().sum(axis=0)
     total = max(int(shares.sum()), 1)
     reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
