@@ -23,12 +23,14 @@ import yaml
 from typer.testing import CliRunner
 
 import skipwise.cli as cli_package
+import skipwise.cli.app as cli_app
 from skipwise.cli import app
 from skipwise.errors import ProblemCode
 
 HERE = Path(__file__).parent / "bad_inputs"
 CATALOGUE = yaml.safe_load((HERE / "catalogue.yaml").read_text(encoding="utf-8"))["cases"]
-CMD_MODULES = [getattr(cli_package, name) for name in dir(cli_package) if name.startswith("cmd_")]
+# The command modules, and the app module whose top-level handler reports OS and memory errors.
+CMD_MODULES = [getattr(cli_package, name) for name in dir(cli_package) if name.startswith("cmd_")] + [cli_app]
 runner = CliRunner()
 
 

@@ -59,7 +59,8 @@ def test_classify_writes_status_columns_and_faults(files):
     assert result.exit_code == 0, result.output
     # Read back with pyreadstat directly, not through skipwise.
     frame, meta = pyreadstat.read_sav(str(out))
-    assert frame["amount_status"].tolist() == [1, 6, 11, 4]  # answered, off_route, refused, gate_unknown
+    # DESIGN §3 numbers: answered 1, off_route 6, refused 12 (built-in, docs/statuses.md), gate_unknown 4
+    assert frame["amount_status"].tolist() == [1, 6, 12, 4]
     assert meta.variable_value_labels["amount_status"][6.0] == "off_route"
     # DESIGN §8: the listing of x.sav is x.sav.faults.csv; its case id column keeps the data's name.
     faults = pd.read_csv(tmp / "out.sav.faults.csv")
@@ -78,7 +79,8 @@ def test_classify_recoded_dta_read_by_pandas(files):
     # pandas' own Stata reader (an independent implementation) sees the extended missing letters.
     back = pd.read_stata(out, convert_missing=True, convert_categoricals=False)
     cells = [v.string if hasattr(v, "string") else v for v in back["amount"]]
-    assert cells == [5, ".e", ".h", ".c"]  # answered, off_route, refused (first reason), gate_unknown
+    # DESIGN §3: off_route 6 -> .e, refused (built-in reason 12, docs/statuses.md) -> .j, gate_unknown 4 -> .c
+    assert cells == [5, ".e", ".j", ".c"]
 
 
 def test_user_error_exits_1_without_traceback(files):

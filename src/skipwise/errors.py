@@ -61,6 +61,10 @@ class ProblemCode(str, Enum):
     NOT_CONVERGED = "not-converged"
     BAD_WEIGHTS = "bad-weights"
     SINGULAR = "singular"
+    # the operating system and the publisher
+    OS_ERROR = "os-error"
+    OUT_OF_MEMORY = "out-of-memory"
+    OUTPUT_LOCKED = "output-locked"
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -16,6 +16,12 @@ Three ways, chosen in the questionnaire's ``breakoff:`` block:
   ``breakoff``.  Earlier blanks stay ``item_missing``.  Skipped cells after
   the last activity neither count nor break the run.
 
+Optional items (``optional: true``) neither set nor count toward the
+break-off point: an answer to an optional comment box is not the case's last
+activity, and its blank is no evidence of a break-off.  Once a break-off is
+found, an optional item's blank after that point (``left_blank`` or
+``gate_unknown``) becomes ``breakoff`` like any other (DESIGN §3).
+
 All of it works on the whole status matrix at once, row-locally.
 """
 
@@ -31,14 +37,17 @@ from skipwise.questionnaire.model import Questionnaire
 __all__ = ["apply_breakoff", "last_activity"]
 
 
-def last_activity(kinds: np.ndarray) -> np.ndarray:
+def last_activity(kinds: np.ndarray, counted: np.ndarray | None = None) -> np.ndarray:
     """Index of each case's last item with an answer, code of nonresponse or invalid value (-1: none).
 
-    One pass over the item columns (contiguous in the Fortran-ordered matrix), never over cases.
+    ``counted`` (one bool per item, default all) leaves out the items that do not set the point
+    (optional items).  One pass over the item columns (contiguous in the Fortran-ordered matrix),
+    never over cases.
     """
     last = np.full(kinds.shape[0], -1, dtype=np.int32)
     for j in range(kinds.shape[1]):
-        np.copyto(last, np.int32(j), where=kinds[:, j] >= K.NONRESP)  # NONRESP, SUBST, INVALID
+        if counted is None or counted[j]:
+            np.copyto(last, np.int32(j), where=kinds[:, j] >= K.NONRESP)  # NONRESP, SUBST, INVALID
     return last
 
 
@@ -50,18 +59,20 @@ def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q:
     if n == 0 or p == 0:
         return
     missing, unknown, breakoff = code_of[S.ITEM_MISSING], code_of[S.GATE_UNKNOWN], code_of[S.BREAKOFF]
+    left_blank = code_of[S.LEFT_BLANK]
+    required = np.array([not it.optional for it in q.items], dtype=bool)
 
     def candidate(j: int) -> np.ndarray:
         col = status[:, j]
-        return (col == missing) | (col == unknown)
+        return (col == missing) | (col == unknown) | (col == left_blank)
 
     # `end` is the position after which a broken-off case's blank cells become break-offs.
-    end = last_activity(kinds)
+    end = last_activity(kinds, required)
     if spec.disposition:
         broke = data[spec.disposition].isin(list(spec.breakoff_codes)).to_numpy()
     else:
         trailing = np.zeros(n, dtype=np.int32)
-        for j in range(p):
+        for j in np.flatnonzero(required):
             trailing += candidate(j) & (end < j)
         broke = trailing >= spec.min_run
         if spec.last_item:

@@ -7,8 +7,8 @@ their status when the rule is evaluated.  For each item:
 2. the item's universe is evaluated with three-valued logic
    (:mod:`skipwise.rules.evaluate`) over the earlier items' *rule values*:
    an answered item has its value; a skipped or off-route item is absent
-   (its questionnaire routing says it was not asked); every other status is
-   unknown;
+   (its questionnaire routing says it was not asked), and so is an optional
+   item left blank (no answer was required); every other status is unknown;
 3. kind and universe give the status through a fixed table (DESIGN §3):
 
    ========== ============ ============ ============
@@ -20,6 +20,9 @@ their status when the rule is evaluated.  For each item:
    answer     off_route    answered     answered
    invalid    invalid      invalid      invalid
    ========== ============ ============ ============
+
+   On an item marked ``optional: true`` a blank in universe is
+   ``left_blank`` instead of ``item_missing``; the rest of the table holds.
 
 4. finally break-offs are found (:mod:`skipwise.classify.breakoff`).
 
@@ -142,14 +145,15 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
     kinds = np.empty((n, p), dtype=np.int8, order="F")
     universe = np.empty((n, p), dtype=np.int8, order="F")
     env = _Env(data, q)
-    # Rule value of each status: answered is known, skipped and off_route absent, the rest unknown.
-    state_of = np.array([KNOWN if c == S.ANSWERED else ABSENT if c in S.OUT_OF_UNIVERSE else UNKNOWN
+    # Rule value of each status: answered is known; skipped, off_route and left_blank absent; the rest unknown.
+    state_of = np.array([KNOWN if c == S.ANSWERED else ABSENT if c in S.ABSENT_AS_INPUT else UNKNOWN
                          for c in cats], dtype=np.int8)
     base = _status_table(code_of).ravel()
+    base_optional = _status_table(code_of, optional=True).ravel()
     for j, item in enumerate(q.items):
         dec = K.decode_item(item, data)
         u = evaluate(item.rule, env) if item.rule is not None else np.full(n, TRUE, dtype=np.int8)
-        st = np.take(base, dec.kind * np.int8(3) + u)
+        st = np.take(base_optional if item.optional else base, dec.kind * np.int8(3) + u)
         nonresp = st < 0
         if nonresp.any():
             reason_code = np.array([code_of.get(c.reason, -1) for c in item.codes] + [-1], dtype=np.int8)
@@ -163,9 +167,14 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
                           index=data.index, case_ids=data[q.case_id].to_numpy(), data=data)
 
 
-def _status_table(code_of: dict[str, int]) -> np.ndarray:
-    """Status code by [kind, universe]; -1 marks 'the code's nonresponse reason'."""
-    sk, gu, im = code_of[S.SKIPPED], code_of[S.GATE_UNKNOWN], code_of[S.ITEM_MISSING]
+def _status_table(code_of: dict[str, int], *, optional: bool = False) -> np.ndarray:
+    """Status code by [kind, universe]; -1 marks 'the code's nonresponse reason'.
+
+    ``optional``: the table of an item marked ``optional: true``, where an in-universe blank is
+    ``left_blank`` (no answer was required) instead of ``item_missing``.
+    """
+    sk, gu = code_of[S.SKIPPED], code_of[S.GATE_UNKNOWN]
+    im = code_of[S.LEFT_BLANK] if optional else code_of[S.ITEM_MISSING]
     wc, orr, an, inv = code_of[S.WRONG_CODE], code_of[S.OFF_ROUTE], code_of[S.ANSWERED], code_of[S.INVALID]
     table = np.empty((5, 3), dtype=np.int8)
     #                     out  unknown  in   (universe FALSE=0, UNK=1, TRUE=2)

@@ -15,7 +15,11 @@ Two forms, chosen by the user:
     their cells (those formats have no missing codes for text) and get a status
     column instead.
 
-The numbering is fixed so files of different waves line up.
+The numbering is fixed so files of different waves line up (DESIGN §3,
+docs/statuses.md): statuses 1-9, reasons 11-99 by the questionnaire's
+:attr:`~skipwise.questionnaire.model.Questionnaire.reason_numbers`; a recoded
+``.sav`` holds -900 - number, a recoded ``.dta`` the letters ``.a``-``.h``
+(statuses 2-9) and ``.i``-``.z`` (reasons 11-28).
 """
 
 from __future__ import annotations
@@ -38,13 +42,8 @@ __all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_column
            "STATUS_SUFFIX"]
 
 STATUS_SUFFIX = "_status"
-_FIXED_NUMBERS = {S.ANSWERED: 1, S.SKIPPED: 2, S.ITEM_MISSING: 3, S.GATE_UNKNOWN: 4, S.BREAKOFF: 5,
-                  S.OFF_ROUTE: 6, S.WRONG_CODE: 7, S.INVALID: 8}
-#: Special code of each fixed status in the recoded form (reasons follow from -911 on).
-_FIXED_CODES = {S.SKIPPED: -901, S.ITEM_MISSING: -902, S.GATE_UNKNOWN: -903, S.BREAKOFF: -904,
-                S.OFF_ROUTE: -905, S.WRONG_CODE: -906, S.INVALID: -907}
-_FIXED_LETTERS = {S.SKIPPED: ".a", S.ITEM_MISSING: ".b", S.GATE_UNKNOWN: ".c", S.BREAKOFF: ".d",
-                  S.OFF_ROUTE: ".e", S.WRONG_CODE: ".f", S.INVALID: ".g"}
+#: Extended missing letters of Stata, ``.a`` ... ``.z``: statuses 2-9 take ``.a``-``.h``, reasons 11-28 ``.i``-``.z``.
+_LETTERS = "abcdefghijklmnopqrstuvwxyz"
 
 
 class ExportForm(str, Enum):
@@ -53,30 +52,51 @@ class ExportForm(str, Enum):
 
 
 def status_numbers(cl: Classification) -> dict[str, int]:
-    """Integer code of every status in status columns: fixed ones 1-8, reasons from 11."""
-    out = dict(_FIXED_NUMBERS)
-    for i, reason in enumerate(cl.questionnaire.nonresponse_reasons):
-        out[reason] = 11 + i
-    return out
+    """Stable number of every status (DESIGN §3): fixed ones 1-9, reasons 11-99 (docs/statuses.md)."""
+    return {**S.STATUS_NUMBERS, **cl.questionnaire.reason_numbers}
 
 
 def status_codes(cl: Classification) -> dict[str, int]:
-    out = dict(_FIXED_CODES)
-    for i, reason in enumerate(cl.questionnaire.nonresponse_reasons):
-        out[reason] = -911 - i
-    return out
+    """Special code of every non-answer status in a recoded ``.sav``: -900 - its number."""
+    return {s: -900 - k for s, k in status_numbers(cl).items() if s != S.ANSWERED}
+
+
+def letter_of(number: int) -> str | None:
+    """Stata extended missing letter of a status number: 2-9 -> ``.a``-``.h``, 11-28 -> ``.i``-``.z``."""
+    if 2 <= number <= 9:
+        return "." + _LETTERS[number - 2]
+    if 11 <= number <= 28:
+        return "." + _LETTERS[number - 3]
+    return None
 
 
 def status_letters(cl: Classification) -> dict[str, str]:
-    out = dict(_FIXED_LETTERS)
-    letters = "hijklmnopqrstuvwxyz"
-    reasons = cl.questionnaire.nonresponse_reasons
-    if len(reasons) > len(letters):
-        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, message=f"{len(reasons)} nonresponse reasons "
-                                    "do not fit Stata's extended missing letters", hint="use the 'columns' form"))
-    for letter, reason in zip(letters, reasons):
-        out[reason] = f".{letter}"
+    """Extended missing letter of every non-answer status with one (reasons above 28 have none)."""
+    out = {}
+    for status, number in status_numbers(cl).items():
+        letter = letter_of(number) if status != S.ANSWERED else None
+        if letter is not None:
+            out[status] = letter
     return out
+
+
+def _check_letters(cl: Classification, numeric_items: list[str]) -> None:
+    """Refuse a recoded ``.dta`` when a numeric item carries a reason numbered above 28."""
+    numbers = cl.questionnaire.reason_numbers
+    problems = []
+    for name in numeric_items:
+        item = cl.questionnaire.item(name)
+        for reason in item.nonresponse_reasons:
+            if letter_of(numbers[reason]) is None:
+                problems.append(Problem(
+                    code=ProblemCode.BAD_VALUE, category=Category.USAGE, item=name, file=cl.questionnaire.path,
+                    line=(item.code_for(reason) or item).line,
+                    message=f"reason '{reason}' of item '{name}' has number {numbers[reason]}: Stata's extended "
+                            "missing letters .i-.z only hold reasons 11-28",
+                    hint="write the 'columns' form (status columns beside the data) for this file, or pin the "
+                         "reason to a free number from 11 to 28 with 'number:' in the questionnaire"))
+    if problems:
+        raise SkipwiseError(problems, headline=f"{len(problems)} reason(s) cannot be written in recoded .dta form")
 
 
 def _by_code(cl: Classification, mapping: dict[str, object], fill: object) -> np.ndarray:
@@ -114,6 +134,8 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
     """The data with every non-answer cell of numeric items replaced by its status's special code."""
     meta = (meta or get_meta(data)).copy()
     stata = fmt == "dta"
+    if stata:
+        _check_letters(cl, [n for n in cl.items if cl.questionnaire.item(n).type not in (ItemType.TEXT, ItemType.DATE)])
     mapping = status_letters(cl) if stata else status_codes(cl)
     lookup = _by_code(cl, mapping, None)
     labels = {v: k for k, v in mapping.items()}

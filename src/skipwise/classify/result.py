@@ -27,7 +27,7 @@ __all__ = ["Classification", "status_categories"]
 def status_categories(q: Questionnaire) -> tuple[str, ...]:
     """All statuses a questionnaire can produce, in report order."""
     return (S.ANSWERED, S.SKIPPED, *q.nonresponse_reasons, S.ITEM_MISSING, S.GATE_UNKNOWN, S.BREAKOFF,
-            S.OFF_ROUTE, S.WRONG_CODE, S.INVALID)
+            S.LEFT_BLANK, S.OFF_ROUTE, S.WRONG_CODE, S.INVALID)
 
 
 @dataclass(frozen=True, eq=False)
@@ -92,8 +92,13 @@ class Classification:
         return (self.universe == TRUE) | ((self.universe == UNK) & asked) | (self.codes == self.code(S.BREAKOFF))
 
     def universe_mask(self) -> pd.DataFrame:
-        """Cells in the item's universe (break-offs included; gate unknown excluded)."""
+        """Cells in the item's universe (break-offs and left_blank included; gate unknown excluded)."""
         return pd.DataFrame(self._applicable, index=self.index, columns=list(self.items))
+
+    @cached_property
+    def _in_d(self) -> np.ndarray:
+        """The rate base D of DESIGN §3: in universe, excluding ``breakoff`` and ``left_blank``."""
+        return self._applicable & ~self._is(S.OUTSIDE_D)
 
     # -- counts -------------------------------------------------------------------------------
     def counts(self, weight: pd.Series | np.ndarray | None = None) -> pd.DataFrame:
@@ -109,13 +114,13 @@ class Classification:
         """Per item: cases, cases in universe, every status count and the nonresponse rates.
 
         The item nonresponse rate (DESIGN §3) is (nonresponse reasons +
-        ``item_missing``) / (cases in universe, excluding ``breakoff``);
-        ``gate_unknown`` and ``breakoff`` are shown apart and are in neither
-        numerator nor denominator.
+        ``item_missing``) / (cases in universe, excluding ``breakoff`` and
+        ``left_blank``); ``gate_unknown``, ``breakoff`` and ``left_blank`` are
+        shown apart and are in neither numerator nor denominator.
         """
         w = _weights(weight, len(self.index))
         counts = self.counts(w)
-        applicable = self._applicable & (self.codes != self.code(S.BREAKOFF))
+        applicable = self._in_d
         if w is None:
             denom = pd.Series(np.count_nonzero(applicable, axis=0), index=list(self.items))
         else:  # one column at a time: never a float copy of the whole matrix
@@ -141,8 +146,13 @@ class Classification:
 
     @cached_property
     def cases(self) -> pd.DataFrame:
-        """Per case: items applicable, answered, nonresponse, break-off, faults and share answered."""
-        applicable = self._applicable.sum(axis=1)
+        """Per case: items applicable, answered, nonresponse, break-off, faults and share answered.
+
+        An optional item left blank (``left_blank``) required no answer: it is not applicable
+        here, so it never lowers the share answered nor moves a case between complete and
+        partial (DESIGN §3).
+        """
+        applicable = (self._applicable & ~self._is((S.LEFT_BLANK,))).sum(axis=1)
         answered = (self.codes == self.code(S.ANSWERED)).sum(axis=1)
         nonresp = self._is(self.nonresponse_statuses).sum(axis=1)
         broke = (self.codes == self.code(S.BREAKOFF)).sum(axis=1)

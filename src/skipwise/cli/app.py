@@ -2,12 +2,75 @@
 
 from __future__ import annotations
 
+import contextlib
+import gc
 import sys
+from pathlib import Path
 
 import typer
+from typer.core import TyperGroup
 
 from skipwise import __version__
-from skipwise.errors import SkipwiseError
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+
+class _Guarded(TyperGroup):
+    """The top of the command line: every OS error, memory error and interruption of any command
+    ends as one readable paragraph (exit 1, or 130/143 for SIGINT/SIGTERM), never a traceback."""
+
+    def invoke(self, ctx):
+        from skipwise.publish import Interrupted, handle_signals, os_error_problem
+
+        args = [*getattr(ctx, "_protected_args", []), *ctx.args]
+        with handle_signals(), _quiet_after_failure():
+            try:
+                return super().invoke(ctx)
+            except SkipwiseError as err:  # raised outside a command's own handler
+                fail(err)
+            except OSError as exc:
+                fail(SkipwiseError(os_error_problem(exc)))
+            except MemoryError:
+                fail(SkipwiseError(out_of_memory(args)))
+            except Interrupted as exc:
+                interrupted(exc.exit_code, exc.committed)
+            except KeyboardInterrupt:
+                interrupted(130, False)
+
+
+@contextlib.contextmanager
+def _quiet_after_failure():
+    """After a failed command, objects of the interrupted work (e.g. a half-saved workbook's
+    generators) complain when collected: those complaints are not the user's business."""
+    try:
+        yield
+    except BaseException:
+        sys.unraisablehook = lambda _unraisable: None
+        gc.collect()
+        raise
+
+
+def out_of_memory(args: list[str]) -> Problem:
+    """The out-of-memory message, naming the command's first existing input file."""
+    command = args[0] if args else "skipwise"
+    named = next((a for a in args[1:] if not a.startswith("-") and _is_file(a)), None)
+    return Problem(code=ProblemCode.OUT_OF_MEMORY, category=Category.USAGE, file=named,
+                   message=f"out of memory while running 'skipwise {command}': the data, or the work on "
+                           f"them, do not fit in this machine's memory",
+                   hint="run it on a machine with more memory, or split the file by cases")
+
+
+def _is_file(text: str) -> bool:
+    try:
+        return Path(text).is_file()
+    except (OSError, ValueError):
+        return False
+
+
+def interrupted(code: int, committed: bool) -> None:
+    """One line for SIGINT (exit 130) or SIGTERM (exit 143)."""
+    typer.echo("interrupted: the output had already been published completely" if committed
+               else "interrupted: nothing was changed", err=True)
+    raise typer.Exit(code=code)
 
 app = typer.Typer(
     name="skipwise",
@@ -20,6 +83,7 @@ app = typer.Typer(
     ),
     no_args_is_help=True,
     add_completion=False,
+    cls=_Guarded,
     pretty_exceptions_enable=False,
     context_settings={"help_option_names": ["-h", "--help"]},
 )

@@ -29,7 +29,7 @@ def classify_command(
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
-    breakoff, off_route, wrong_code or invalid.
+    breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
 
     Writes OUT with every original column and label kept, and OUT.faults.csv (e.g. x.sav.faults.csv)
     listing each routing fault with its case id — that listing holds respondents' data: share it

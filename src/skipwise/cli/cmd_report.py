@@ -16,7 +16,7 @@ HELP = (
     "routing faults, the most frequent joint nonresponse patterns as a shaded grid, rates by subgroup "
     "(--by), case completeness and charts.\n\n"
     "Item nonresponse rate = (nonresponse reasons + item_missing) / (cases in universe, excluding "
-    "breakoff); gate_unknown and breakoff are shown apart.\n\n"
+    "breakoff and left_blank); gate_unknown, breakoff and left_blank are shown apart.\n\n"
     "Caution: nonresponse adjustments do not repair data missing not at random (MNAR). The Routing "
     "faults sheet lists case ids (leave them out with --no-case-ids): share the workbook only under "
     "your organization's data protection rules."

@@ -63,7 +63,7 @@ __all__ = ["ItemRule", "SkipAwareSpec", "SkipAwareResult", "impute_skipaware", "
 SKIP_METHODS = ("hotdeck", "nearest", "pmm", "regression", "logistic", "multinomial", "auto",
                 "mode", "median", "mean")
 #: Statuses that are never filled, whatever the plan says.
-NEVER_IMPUTED = (S.ANSWERED, S.SKIPPED, S.OFF_ROUTE, S.WRONG_CODE, S.INVALID, S.GATE_UNKNOWN)
+NEVER_IMPUTED = (S.ANSWERED, S.SKIPPED, S.OFF_ROUTE, S.WRONG_CODE, S.INVALID, S.GATE_UNKNOWN, S.LEFT_BLANK)
 #: Meaning of the values of a ``<item>_imp`` flag column.
 FLAG_LABELS = {0: "not imputed", 1: "imputed", 2: "routed out by an imputed gate",
                3: "routing fault left as it is (off_route, wrong_code or invalid)"}

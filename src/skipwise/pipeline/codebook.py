@@ -114,8 +114,8 @@ def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[t
         ("h", 2, "Files"), ("table", ["file", "what it holds"], [list(f) for f in files]),
         ("h", 2, "Statuses"),
         ("p", "Every (case, item) cell has one status. Item nonresponse rate = (nonresponse reasons + "
-              "item_missing) / (cases in universe, excluding breakoff); gate_unknown and breakoff are "
-              "counted apart." + (f" Weighted rates use `{weight_name}`." if weight_name else "")),
+              "item_missing) / (cases in universe, excluding breakoff and left_blank); gate_unknown, "
+              "breakoff and left_blank are counted apart." + (f" Weighted rates use `{weight_name}`." if weight_name else "")),
         ("table", ["number in `<item>_status`", "status"],
          [[str(k), v] for k, v in sorted(_status_labels(cl).items())]),
         ("h", 2, "Variables"),

@@ -2,18 +2,16 @@
 
 Order: load the definitions (questionnaire, weighting and imputation plans),
 check every output path, then read, check, classify, report, diagnose, weigh,
-impute and export.  Every file is first written (atomically) into a hidden
-staging folder inside the package folder; only when every step has succeeded
-are the files renamed into place, so a failed or interrupted run leaves neither
-a half-written file nor a half-replaced package.
+impute and export.  Every file is first written into a hidden staging folder
+beside the package folder, under the package's lock; only when every step has
+succeeded is the staging folder swapped in for the package
+(:class:`skipwise.publish.PackagePublisher`), so a failed, interrupted or
+killed run leaves the old package or the new one, never a mix.
 """
 
 from __future__ import annotations
 
 import datetime as dt
-import os
-import shutil
-import tempfile
 import time
 from dataclasses import dataclass
 from pathlib import Path
@@ -25,6 +23,7 @@ from skipwise.pipeline.manifest import StepRecord, build_manifest, file_record, 
 from skipwise.pipeline.plan import RunPlan, load_run_plan
 from skipwise.pipeline.reporting import Reporter, SilentReporter
 from skipwise.pipeline import steps as S
+from skipwise.publish import PackagePublisher, publish_file
 
 __all__ = ["run_plan", "RunResult", "StepFailed", "planned_outputs", "STEPS"]
 
@@ -116,22 +115,47 @@ def _describe(role: str) -> str:
     return ""
 
 
-def _check_targets(plan: RunPlan, names: dict[str, str], inputs: list[Path], overwrite: bool) -> None:
-    folder = plan.output.folder
-    problems = []
-    for name in names.values():
-        path = folder / name
-        if path.resolve() in inputs:
-            problems.append(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
-                                    message="this output would replace an input file",
-                                    hint="choose another output.folder or output.name in the plan"))
-        elif path.exists() and not overwrite:
-            problems.append(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(path),
-                                    message="output file already exists"))
+def check_names(plan: RunPlan, names: dict[str, str]) -> None:
+    """Refuse a plan whose generated file names collide (e.g. ``output.name: item_report`` with
+    ``status_columns: [xlsx]``) before anything is written; names are compared as a
+    case-insensitive file system would."""
+    by_name: dict[str, list[str]] = {}
+    for role, name in names.items():
+        by_name.setdefault(name.casefold(), []).append(role)
+    problems: list[Problem] = []
+    stem = plan.output.name
+    if set(stem) & {"/", "\\", "\0"} or stem.startswith(".") or not stem.strip():
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file),
+                                line=plan.line("output", "name"),
+                                message=f"output.name {stem!r} must be a plain file name stem",
+                                hint="leave out '/', '\\' and a leading '.'; the folder is output.folder"))
+    problems += [Problem(code=ProblemCode.DUPLICATE_NAME, category=Category.USAGE, file=str(plan.file),
+                        line=plan.line("output", "name"),
+                        message=f"the package would hold two files named {names[roles[0]]!r} "
+                                f"({' and '.join(_role_text(r) for r in roles)})",
+                        hint="choose another output.name in the plan")
+                for roles in by_name.values() if len(roles) > 1]
     if problems:
-        raise SkipwiseError(problems, headline=f"{len(problems)} output file(s) of the run are in the way "
-                            f"(nothing was written) — pass --overwrite to replace them, or choose another "
-                            f"output.folder")
+        raise SkipwiseError(problems, headline="the run plan's output file names are not usable (nothing "
+                            "was written)" if len(problems) > 1 else None)
+
+
+def _role_text(role: str) -> str:
+    return role.replace("_", " ")
+
+
+def _check_targets(plan: RunPlan, names: dict[str, str], inputs: list[Path]) -> None:
+    folder = plan.output.folder
+    problems = [Problem(code=ProblemCode.OUTPUT_IS_INPUT, category=Category.USAGE, file=str(folder / name),
+                        message="this output would replace an input file",
+                        hint="choose another output.folder or output.name in the plan")
+                for name in names.values() if (folder / name).resolve() in inputs]
+    problems += [Problem(code=ProblemCode.OUTPUT_IS_INPUT, category=Category.USAGE, file=str(p),
+                         message="this input lies inside the package folder, which a run replaces whole",
+                         hint="choose an output.folder that holds no input")
+                 for p in inputs if folder.resolve() in p.parents]
+    if problems:
+        raise SkipwiseError(problems)
 
 
 def _load_definitions(plan: RunPlan, st: S.RunState) -> None:
@@ -206,16 +230,17 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
               ("imputation_plan", plan.imputation_plan)]
     inputs = [(role, p) for role, p in inputs if p is not None]
     names = planned_outputs(plan, st.weighting_plan, st.imputation_plan)
-    _check_targets(plan, names, [p.resolve() for _, p in inputs], overwrite)
+    check_names(plan, names)
+    _check_targets(plan, names, [p.resolve() for _, p in inputs])
     input_records = [file_record(role, p) for role, p in inputs]
     records.append(StepRecord(step="plan", status="done", seconds=time.perf_counter() - t0))
 
     folder = plan.output.folder
-    created = not folder.exists()
-    folder.mkdir(parents=True, exist_ok=True)
-    staging = Path(tempfile.mkdtemp(prefix=".skipwise-run-", dir=folder))
-    st.targets = {role: staging / name for role, name in names.items()}
-    try:
+    with PackagePublisher(folder) as pub:  # takes OUT.lock and repairs what a crashed run left
+        for note in pub.notes:
+            reporter.info(f"note: {note}")
+        pub.check_target(overwrite=overwrite, names=names.values())
+        st.targets = {role: pub.staging / name for role, name in names.items()}
         _steps(st, reporter, records)
         t1 = time.perf_counter()
         outputs = [file_record(role, st.targets[role], name=names[role]) for role in names if role != "manifest"]
@@ -225,16 +250,9 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
         records.append(StepRecord(step="manifest", status="done", seconds=time.perf_counter() - t1))
         manifest = build_manifest(plan=plan.resolved(), inputs=input_records, outputs=outputs, steps=records,
                                   seeds=seeds, started=started, finished=_now(), summary=_summary(st))
-        from skipwise.io.atomic import atomic_output
-
-        with atomic_output(st.targets["manifest"], overwrite=True) as tmp:
+        with publish_file(st.targets["manifest"], overwrite=True) as tmp:
             tmp.write_text(manifest_text(manifest), encoding="utf-8")
-        for role, name in names.items():  # every step succeeded: move the package into place
-            os.replace(st.targets[role], folder / name)
-    finally:
-        shutil.rmtree(staging, ignore_errors=True)
-        if created and not any(folder.iterdir()):
-            folder.rmdir()
+        pub.publish()  # every step succeeded: the package appears whole, or the old one stays
     for note in st.notes:
         reporter.info(f"note: {note}")
     return RunResult(plan=plan, folder=folder, files={r: folder / n for r, n in names.items()},
@@ -291,11 +309,9 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
         weight = S.nan_to_zero(st.data[weight_name])
     files = [(st.targets[r].name, _describe(r)) for r in st.targets]
     blocks = codebook_blocks(st, frame, meta, files, weight, weight_name)
-    from skipwise.io.atomic import atomic_output
-
-    with atomic_output(st.targets["codebook_md"], overwrite=True) as tmp:
+    with publish_file(st.targets["codebook_md"], overwrite=True) as tmp:
         tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
-    with atomic_output(st.targets["codebook_html"], overwrite=True) as tmp:
+    with publish_file(st.targets["codebook_html"], overwrite=True) as tmp:
         tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
 
 

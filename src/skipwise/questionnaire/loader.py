@@ -17,6 +17,7 @@ from skipwise.questionnaire.model import (
     BreakoffSpec, Code, CodeKind, Item, ItemType, Questionnaire, Roster, Section,
 )
 from skipwise.questionnaire.names import NameTable
+from skipwise.questionnaire.numbers import code_number, number_reasons
 from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
 from skipwise.rules import ast
 from skipwise.rules.parser import RuleSyntaxError, parse_rule
@@ -25,14 +26,14 @@ __all__ = ["load_questionnaire", "loads_questionnaire", "RESERVED_STATUSES"]
 
 TOP_KEYS = ("format", "survey", "context", "codes", "sections", "breakoff")
 SURVEY_KEYS = ("name", "title", "case_id")
-SECTION_KEYS = ("name", "label", "asked_if", "items", "roster")
+SECTION_KEYS = ("name", "label", "asked_if", "items", "roster", "optional")
 ROSTER_KEYS = ("count", "max", "column")
 ITEM_KEYS = ("name", "label", "type", "values", "range", "codes", "asked_if",
-             "options", "selected", "unselected", "column")
-CODE_KEYS = ("value", "reason", "kind", "label")
+             "options", "selected", "unselected", "column", "text", "optional")
+CODE_KEYS = ("value", "reason", "kind", "label", "number")
 BREAKOFF_KEYS = ("min_run", "last_item", "disposition", "breakoff_codes")
 RESERVED_STATUSES = ("answered", "skipped", "item_missing", "wrong_code", "off_route",
-                     "gate_unknown", "breakoff", "invalid", "imputed")
+                     "gate_unknown", "breakoff", "invalid", "left_blank", "imputed")
 
 
 def load_questionnaire(path: str | Path) -> Questionnaire:
@@ -114,11 +115,12 @@ class _Builder:
                 sections.append(built[0])
                 items.extend(built[1])
         breakoff = self.breakoff(doc)
+        numbers = number_reasons(self, global_codes, items)
         self.problems.raise_if_any(
             headline=f"{len(self.problems)} problem(s) in questionnaire {self.file or ''}".rstrip())
         return Questionnaire(name=survey["name"], title=survey.get("title", ""), case_id=survey["case_id"],
                              context=context, codes=global_codes, sections=tuple(sections),
-                             items=tuple(items), breakoff=breakoff, path=self.file)
+                             items=tuple(items), breakoff=breakoff, reason_numbers=numbers, path=self.file)
 
     def survey(self, doc: LineDict) -> dict[str, str]:
         raw = self.need_map(doc.get("survey"), "'survey'", doc.key_line("survey")) if "survey" in doc else None
@@ -181,13 +183,14 @@ class _Builder:
                          "substantive", d.key_line("kind") if "kind" in d else eline, item,
                          did_you_mean(str(kind), [k.value for k in CodeKind]))
                 ok = False
+            number = code_number(self, d, kind_e if ok else None, reason, item)
             if ok:
                 # -9 and "-9" would both match a text cell holding "-9": treat them as one value.
                 if any(c.value == value or str(c.value) == str(value) for c in out):
                     self.add(ProblemCode.DUPLICATE_NAME, f"code value {value!r} declared twice", eline, item)
                     continue
                 out.append(Code(value=value, reason=reason, kind=kind_e,
-                                label=str(d["label"]) if "label" in d else None, line=eline))
+                                label=str(d["label"]) if "label" in d else None, number=number, line=eline))
         return tuple(out)
 
     def breakoff(self, doc: LineDict) -> BreakoffSpec:
@@ -223,6 +226,7 @@ class _Builder:
             self.add(ProblemCode.MISSING_KEY, "a section needs a 'name'", d.line)
             sname = f"section@{d.line}"
         sec_rule = self.rule(d, None, names) if "asked_if" in d else None
+        sec_optional = self.flag(d, "optional", f"section '{sname}'", None)
         roster = self.roster(d, names) if "roster" in d else None
         raw_items = self.need_list(d.get("items"), f"items of section '{sname}'", d.key_line("items") if "items" in d else d.line)
         members = range(1, roster.max + 1) if roster else [None]
@@ -233,11 +237,11 @@ class _Builder:
             for spec in specs:
                 if spec is None:
                     continue
-                item = self.item(spec, sname, sec_rule, roster, n, mapping, names)
+                item = self.item(spec, sname, sec_rule, roster, n, mapping, names, sec_optional)
                 if item is not None:
                     items.append(item)
         sec = Section(name=sname, label=str(d.get("label", "")), asked_if=d.get("asked_if"),
-                      roster=roster, items=tuple(it.name for it in items), line=d.line)
+                      roster=roster, optional=sec_optional, items=tuple(it.name for it in items), line=d.line)
         return sec, items
 
     def roster(self, d: LineDict, names: NameTable) -> Roster | None:
@@ -286,7 +290,31 @@ class _Builder:
         from skipwise.questionnaire.values import check_collisions
         check_collisions(self, d, name, itype, values, rng, codes, own)
         return {"d": d, "name": name, "type": itype, "values": values, "range": rng,
-                "options": options, "codes": codes}
+                "options": options, "codes": codes, "text": self.wording(d, name),
+                "optional": self.flag(d, "optional", f"item '{name}'", name) if "optional" in d else None}
+
+    def flag(self, d: LineDict, key: str, what: str, item: str | None) -> bool:
+        """A true/false key (false when absent); anything but a YAML boolean is refused."""
+        if key not in d:
+            return False
+        value = d[key]
+        if isinstance(value, bool):
+            return value
+        self.add(ProblemCode.BAD_VALUE, f"'{key}' of {what} must be true or false, found {value!r}",
+                 d.key_line(key), item, f"write '{key}: true' or '{key}: false', unquoted")
+        return False
+
+    def wording(self, d: LineDict, item: str) -> str | None:
+        """The item's ``text:``: the question wording as asked, one text."""
+        if "text" not in d:
+            return None
+        value = d["text"]
+        if isinstance(value, str) and value.strip():
+            return value.strip()
+        self.add(ProblemCode.BAD_VALUE, f"'text' of item '{item}' must be the question wording as one text, "
+                 f"found {value!r}", d.key_line("text"), item,
+                 "write the wording on one line, or as a block after 'text: >'")
+        return None
 
     @staticmethod
     def merge_codes(global_codes: tuple[Code, ...], own: tuple[Code, ...]) -> tuple[Code, ...]:
@@ -294,7 +322,7 @@ class _Builder:
         return tuple(c for c in global_codes if c.value not in own_values) + own
 
     def item(self, spec: dict[str, Any], section: str, sec_rule: ast.BoolNode | None, roster: Roster | None,
-             n: int | None, mapping: dict[str, str], names: NameTable) -> Item | None:
+             n: int | None, mapping: dict[str, str], names: NameTable, sec_optional: bool = False) -> Item | None:
         d: LineDict = spec["d"]
         base = spec["name"]
         name = mapping.get(base, base)
@@ -324,7 +352,8 @@ class _Builder:
                     values=spec["values"], range=spec["range"], codes=spec["codes"], rule=rule,
                     rule_parts=tuple(parts), columns=columns, options=spec["options"],
                     selected=d.get("selected", 1), unselected=d.get("unselected", 0),
-                    roster=section if roster else None, member=n, base_name=base, line=d.line)
+                    roster=section if roster else None, member=n, base_name=base, text=spec["text"],
+                    optional=sec_optional if spec["optional"] is None else spec["optional"], line=d.line)
         names.define(item)
         return item
 

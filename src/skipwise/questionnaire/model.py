@@ -42,6 +42,7 @@ class Code:
     reason: str
     kind: CodeKind
     label: str | None = None
+    number: int | None = None   # pinned status number of a nonresponse reason (11-99)
     line: int | None = None
 
 
@@ -82,6 +83,8 @@ class Item:
     roster: str | None = None
     member: int | None = None
     base_name: str = ""
+    text: str | None = None       # the question wording as asked
+    optional: bool = False        # a blank in universe is ``left_blank``, not nonresponse
     line: int | None = None
 
     @property
@@ -111,6 +114,7 @@ class Section:
     label: str = ""
     asked_if: str | None = None
     roster: Roster | None = None
+    optional: bool = False        # inherited by every item of the section
     items: tuple[str, ...] = ()   # expanded item names, interview order
     line: int | None = None
 
@@ -136,10 +140,17 @@ class Questionnaire:
     sections: tuple[Section, ...] = ()
     items: tuple[Item, ...] = ()
     breakoff: BreakoffSpec = field(default_factory=BreakoffSpec)
+    #: Stable status number (11-99) of every nonresponse reason (see docs/statuses.md).
+    reason_numbers: Mapping[str, int] = field(default_factory=dict)
     path: str | None = None
 
     def __post_init__(self) -> None:
         object.__setattr__(self, "_by_name", {it.name: it for it in self.items})
+        if not self.reason_numbers and self.nonresponse_reasons:  # built in code, not by the loader
+            from skipwise.questionnaire.numbers import reason_numbers
+            pins = {c.reason: c.number for c in (*self.codes, *(c for it in self.items for c in it.codes))
+                    if c.kind is CodeKind.NONRESPONSE and c.number is not None}
+            object.__setattr__(self, "reason_numbers", reason_numbers(self.nonresponse_reasons, pins))
 
     def item(self, name: str) -> Item:
         return self._by_name[name]  # type: ignore[attr-defined]

@@ -63,7 +63,7 @@ def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> 
     ws.append(st.title_row(ws, "Item nonresponse by item (interview order)"))
     ws.append(st.note_row(ws, (
         "Item nonresponse rate = (nonresponse reasons + item_missing) / cases in the item's universe "
-        "excluding breakoff. gate_unknown and breakoff are counted apart and are in neither part of the "
+        "excluding breakoff and left_blank. gate_unknown, breakoff and left_blank are counted apart and are in neither part of the "
         "rate. Each reason's rate uses the same denominator.")))
     ws.append(st.header_row(ws, cols))
     for row in st.frame_rows(ws, table, _formats(table), wrap=("Asked if (rule as written)",)):
@@ -95,7 +95,7 @@ def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFram
     kind = "weighted" if sub.weighted else "unweighted"
     ws.append(st.title_row(ws, f"Item nonresponse rate by subgroup ({kind})"))
     ws.append(st.note_row(ws, (
-        "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff"
+        "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff and left_blank"
         + (", as ratios of weighted totals." if sub.weighted else ".")
         + " Blank: no case of the group was in the item's universe. Small groups give unstable rates.")))
     ws.append(st.note_row(ws, "Group values of missing cells are shown as '(missing)'."))

@@ -14,16 +14,19 @@ __all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS"]
 DEFINITIONS: tuple[tuple[str, str], ...] = (
     ("Item nonresponse rate",
      "(cells with a nonresponse reason + item_missing cells) / (cases in the item's universe, excluding "
-     "breakoff). In universe: the routing rule held, or it was unknown but the cell shows the item was "
+     "breakoff and left_blank). In universe: the routing rule held, or it was unknown but the cell shows the item was "
      "asked (an answer or a nonresponse code). In-universe wrong_code and invalid cells are in the "
      "denominator but not the numerator. With a weight: the same ratio of weighted totals, "
-     "Σw·[nonresponse] / Σw·[in universe, not breakoff]."),
+     "Σw·[nonresponse] / Σw·[in universe, not breakoff or left_blank]."),
     ("Reason rate (e.g. dont_know rate, refused rate)",
      "cells carrying that nonresponse reason / the same denominator as the item nonresponse rate."),
     ("item_missing rate", "blank in-universe cells with no code / the same denominator."),
     ("gate_unknown", "the item's universe could not be decided because an input of its rule is unknown, "
                      "and the cell is blank or structurally coded. Counted apart: in neither numerator "
                      "nor denominator of any rate."),
+    ("left_blank", "blank in-universe cells of an item marked optional (e.g. an open comment box): no "
+                   "answer was required. Counted apart: in neither numerator nor denominator of any rate, "
+                   "and not in a case's share of applicable items answered."),
     ("breakoff", "blank cells after the point where the interview ended. Counted apart: in neither "
                  "numerator nor denominator of any rate."),
     ("Routing faults", "off_route (an answer or code where the routing says not asked), wrong_code (a "

@@ -81,7 +81,7 @@ def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figu
     applicable_m = c.universe_mask().to_numpy()
     nr = _nr_codes(c)
     fault = [c.code(s) for s in S.FAULT_STATUSES]
-    ans, brk = c.code(S.ANSWERED), c.code(S.BREAKOFF)
+    ans, brk, lb = c.code(S.ANSWERED), c.code(S.BREAKOFF), c.code(S.LEFT_BLANK)
     counts = np.zeros((p, k), dtype=np.int64)
     wcounts = None if weight is None else np.zeros((p, k))
     denom = np.zeros(p, dtype=np.int64)
@@ -92,12 +92,12 @@ def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figu
     for j in range(p):
         col = c.codes[:, j]
         counts[j] = np.bincount(col, minlength=k)
-        in_den = applicable_m[:, j] & (col != brk)
+        in_den = applicable_m[:, j] & (col != brk) & (col != lb)
         denom[j] = np.count_nonzero(in_den)
         if weight is not None:
             wcounts[j] = np.bincount(col, weights=weight, minlength=k)
             wdenom[j] = weight @ in_den
-        per_case["applicable"] += applicable_m[:, j]
+        per_case["applicable"] += applicable_m[:, j] & (col != lb)  # left_blank required no answer
         per_case["answered"] += col == ans
         per_case["nonresponse"] += in_codes(col, nr)
         per_case["faults"] += in_codes(col, fault)
@@ -125,7 +125,7 @@ def items_table(c: Classification, fig: Figures) -> pd.DataFrame:
     """One row per item in interview order: rule, counts of every status and the rates.
 
     Rates follow DESIGN §3: (nonresponse reasons + ``item_missing``) over the
-    cases in the item's universe excluding ``breakoff``; each reason's rate has
+    cases in the item's universe excluding ``breakoff`` and ``left_blank``; each reason's rate has
     the same denominator.  With weights the weighted rates (ratios of
     weighted totals) are added beside the unweighted ones.
     """
@@ -136,7 +136,7 @@ def items_table(c: Classification, fig: Figures) -> pd.DataFrame:
     out = pd.DataFrame({
         "Section": [it.section for it in items], "Item": list(c.items), "Label": [it.label for it in items],
         "Asked if (rule as written)": [it.rule_text for it in items],
-        "Cases": len(c.index), "In universe (excl. breakoff)": fig.denom,
+        "Cases": len(c.index), "In universe (excl. breakoff, left_blank)": fig.denom,
     })
     for status in c.categories:
         out[status] = fig.counts[status].to_numpy()
@@ -197,11 +197,11 @@ def _group_label(value: object) -> str:
 
 def subgroup_rates(c: Classification, data: pd.DataFrame, by: tuple[str, ...],
                    weight: np.ndarray | None = None) -> SubgroupTable:
-    """Σw·1[nonresponse] / Σw·1[in universe, not breakoff] per item within each group."""
+    """Σw·1[nonresponse] / Σw·1[in universe, not breakoff or left_blank] per item within each group."""
     n, p = c.codes.shape
     w = np.ones(n) if weight is None else weight
     nr_codes = _nr_codes(c)
-    brk = c.code(S.BREAKOFF)
+    brk, lb = c.code(S.BREAKOFF), c.code(S.LEFT_BLANK)
     applicable = c.universe_mask().to_numpy()
     cols: dict[tuple[str, str], np.ndarray] = {}
     sizes: dict[tuple[str, str], float] = {}
@@ -213,7 +213,7 @@ def subgroup_rates(c: Classification, data: pd.DataFrame, by: tuple[str, ...],
         for j in range(p):
             col = c.codes[:, j]
             num[j] = np.bincount(g, weights=w * in_codes(col, nr_codes), minlength=k)
-            den[j] = np.bincount(g, weights=w * (applicable[:, j] & (col != brk)), minlength=k)
+            den[j] = np.bincount(g, weights=w * (applicable[:, j] & (col != brk) & (col != lb)), minlength=k)
         size = np.bincount(g, weights=w, minlength=k)
         with np.errstate(invalid="ignore", divide="ignore"):
             rate = np.where(den > 0, num / np.where(den > 0, den, 1), np.nan)
