@@ -136,7 +136,7 @@ def test_classify_writes_zsav_and_xlsx(files, suffix):
         frame, _ = pyreadstat.read_sav(str(out))
     else:
         frame = pd.read_excel(out, engine="openpyxl")
-    assert frame["amount_status"].tolist() == [1, 6, 11, 4]
+    assert frame["amount_status"].tolist() == [1, 6, 12, 4]  # refused has the built-in number 12
     assert (tmp / f"out{suffix}.faults.csv").is_file()
 
 
