@@ -107,7 +107,7 @@ def ran(tmp_path_factory):
 
 EXPECTED = ["pond.sav", "pond.parquet", "pond_coded.dta", "pond_faults.csv", "item_report.xlsx",
             "diagnostics.xlsx", "weighting.xlsx", "frame_weighted.csv", "frame_weighted.parquet",
-            "pond_imputed.parquet", "codebook.md", "codebook.html", "manifest.json"]
+            "pond_imputed.parquet", "codebook.md", "codebook.html", "codebook.xml", "manifest.json"]
 
 
 def test_run_writes_every_file_and_shows_each_step(ran):
@@ -206,10 +206,12 @@ def test_codebook_lists_every_output_variable(ran):
     for col in columns:
         assert f"`{col}`" in md, col
         assert col in shown, col
-    assert "mood_imp" in md and "asked_if: pet == 1" in md and "-9 refused (nonresponse)" in md
-    # mood: 40 cases in universe, 2 refused + 1 blank = 3 nonresponse -> 7.50% (DESIGN §3 rate, by hand)
-    assert "3 = 7.50%" in md
-    assert "item nonresponse (weighted)" in md and "Calibration (rake)" in md and "2 imputation(s), seed 11" in md
+    assert "mood_imp" in md and "asked_if: pet == 1" in md and "special code: refused (nonresponse, status 12)" in md
+    # mood: 40 cases in universe, 2 refused + 1 blank = 3 nonresponse -> 7.5% (DESIGN §3 rate, by hand)
+    mood = md[md.index("### `mood`"):]
+    assert "| D: in universe, excluding break-off and optional blanks | 40 |" in mood
+    assert "| item nonresponse rate | 7.5% |" in mood and "|   of which refused | 5.0% |" in mood
+    assert "weighted (wt_final)" in md and "Calibration (rake)" in md and "2 imputation(s), seed 11" in md
 
 
 def test_existing_outputs_need_overwrite_and_are_listed_together(ran):

@@ -20,8 +20,8 @@ def default_name(path: Path) -> str:
 
 @app.command("draft")
 def draft_command(
-    data: Annotated[Path, typer.Argument(help="Survey data file: .sav, .zsav, .dta, .csv, .xlsx, .parquet, "
-                                              ".sas7bdat or .xpt.")],
+    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat, "
+                                              ".xpt) or a DDI-Codebook 2.5 document (.xml).")],
     out: Annotated[Optional[Path], typer.Option("--out", "-o", help="Questionnaire file to write (.yaml).")] = None,
     output_old: Annotated[Optional[Path], typer.Option("--output", hidden=True)] = None,
     case_id: Annotated[Optional[str], typer.Option(
@@ -30,7 +30,9 @@ def draft_command(
         "--name", help="Short survey id for 'survey: name' (default: from the data file's name).")] = None,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace OUTPUT if it exists.")] = False,
 ) -> None:
-    """Draft a questionnaire file from a data file's labels and missing-value definitions.
+    """Draft a questionnaire file from a data file's labels and missing-value definitions,
+    or from a DDI-Codebook 2.5 document (.xml: names, labels, question text, categories and
+    missing codes; its free-text universes become comments to turn into asked_if rules).
 
     One item per column in file order, labelled from the variable labels;
     categories from value labels; special codes from SPSS missing values, Stata
@@ -56,8 +58,13 @@ def draft_command(
             raise SkipwiseError(Problem(code=ProblemCode.OUTPUT_EXISTS, category=Category.USAGE, file=str(output),
                                         message="the output would replace the data file",
                                         hint="choose another output name"))
-        frame = read_survey(data)
-        draft = draft_questionnaire(frame, case_id=case_id, name=name or default_name(data), source=data.name)
+        if data.suffix.lower() == ".xml":  # a DDI-Codebook 2.5 document: an archive's metadata as a start
+            from skipwise.ddi.read import draft_from_ddi
+
+            draft = draft_from_ddi(data, case_id=case_id, name=name)
+        else:
+            frame = read_survey(data)
+            draft = draft_questionnaire(frame, case_id=case_id, name=name or default_name(data), source=data.name)
         write_draft(draft, output, overwrite=overwrite)
     except SkipwiseError as err:
         fail(err)

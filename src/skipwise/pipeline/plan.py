@@ -16,12 +16,14 @@ from typing import Any, Mapping
 from skipwise.errors import Category, ProblemCode, ProblemList, did_you_mean
 from skipwise.io.readers import SAS_OUTPUT_REASON, SUPPORTED_EXTENSIONS
 from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
+from skipwise.questionnaire.model import STUDY_KEYS
 
 __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "load_run_plan",
            "loads_run_plan", "TOP_KEYS", "PLAN_FORMAT", "FORMATS"]
 
 PLAN_FORMAT = 1
-TOP_KEYS = ("format", "data", "questionnaire", "check", "report", "diagnose", "weighting", "imputation", "output")
+TOP_KEYS = ("format", "data", "questionnaire", "check", "report", "diagnose", "weighting", "imputation", "output",
+            "study")
 #: Output formats of the final data file; ``input`` is the data file's own format.
 FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 
@@ -36,6 +38,7 @@ DIAGNOSE_KEYS = {"items": "names", "aux": "names", "categorical": "names", "litt
                  "high_rate": "float", "auc_weak": "float", "auc_strong": "float"}
 WEIGHTING_KEYS = {"plan": "path", "data": "path"}
 IMPUTATION_KEYS = {"plan": "path"}
+STUDY_PLAN_KEYS = {key: "text" for key in STUDY_KEYS}
 OUTPUT_KEYS = {"folder": "folder", "name": "str", "status_columns": "formats", "recoded": "formats",
                "imputed_format": "format"}
 
@@ -100,6 +103,7 @@ class RunPlan:
     weighting_plan: Path | None = None
     weighting_data: Path | None = None
     imputation_plan: Path | None = None
+    study: Mapping[str, str] = field(default_factory=dict)   # overrides the questionnaire's study block key by key
     lines: Mapping[tuple, int] = field(default_factory=dict)
 
     def line(self, *path: str) -> int | None:
@@ -199,6 +203,8 @@ class _Reader:
             return float(v) if number else bad("a number")
         if kind == "str":
             return v.strip() if isinstance(v, str) and v.strip() else bad("a name")
+        if kind == "text":
+            return str(v).strip() if (isinstance(v, str) or number) and str(v).strip() else bad("a single text")
         if kind in ("path", "folder"):
             if not isinstance(v, str) or not v.strip():
                 return bad("a file path" if kind == "path" else "a folder path")
@@ -289,6 +295,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         r.add(ProblemCode.FILE_FORMAT, f"'weighting.data': {weighting['data'].name} is not a supported survey file",
               r.lines.get(("weighting", "data")), f"use one of {', '.join(SUPPORTED_EXTENSIONS)}")
     imputation = r.values(r.section(doc, "imputation", IMPUTATION_KEYS), IMPUTATION_KEYS, "imputation")
+    study = r.values(r.section(doc, "study", STUDY_PLAN_KEYS), STUDY_PLAN_KEYS, "study")
     if "imputation" in doc and isinstance(doc["imputation"], LineDict) and "plan" not in doc["imputation"]:
         r.add(ProblemCode.MISSING_KEY, "'imputation' needs 'plan' (the imputation plan file)",
               doc.key_line("imputation"), "e.g. imputation: {plan: impute.yaml}")
@@ -328,7 +335,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         report=ReportOptions(**report) if report_on else None,
         diagnose=DiagnoseOptionsSpec(**diagnose) if diagnose_on else None,
         weighting_plan=weighting.get("plan"), weighting_data=weighting.get("data"),
-        imputation_plan=imputation.get("plan"), lines=dict(r.lines),
+        imputation_plan=imputation.get("plan"), study=study, lines=dict(r.lines),
     )
 
 

@@ -4,7 +4,9 @@ A document is a list of blocks, each a tuple:
 
 ``("h", level, text)``, ``("p", text)``, ``("ul", [text, ...])`` and
 ``("table", [header, ...], [[cell, ...], ...])``; ``("anchor", name)`` marks a
-place other blocks may link to with ``#name``.
+place other blocks may link to, and ``("links", [(text, name), ...])`` is a list
+of links to such places (a table of contents).  Text is escaped in both forms:
+raw HTML in a label never reaches a reader's browser as markup.
 """
 
 from __future__ import annotations
@@ -30,8 +32,14 @@ def anchor_name(text: str) -> str:
     return "v-" + re.sub(r"[^A-Za-z0-9_-]+", "-", str(text)).strip("-").lower()
 
 
+def _md_text(value: object) -> str:
+    """Markdown text with raw HTML escaped outside `code` spans (a label cannot inject markup)."""
+    parts = str("" if value is None else value).split("`")
+    return "`".join(p if i % 2 else html.escape(p, quote=False) for i, p in enumerate(parts))
+
+
 def _md_cell(value: object) -> str:
-    text = "" if value is None else str(value)
+    text = _md_text(value)
     return text.replace("\\", "\\\\").replace("|", "\\|").replace("\n", " ")
 
 
@@ -41,9 +49,12 @@ def to_markdown(blocks: Iterable[Block]) -> str:
     for b in blocks:
         kind = b[0]
         if kind == "h":
-            out += ["#" * b[1] + " " + str(b[2]), ""]
+            out += ["#" * b[1] + " " + _md_text(b[2]).replace("\n", " "), ""]
         elif kind == "p":
-            out += [str(b[1]), ""]
+            out += [_md_text(b[1]), ""]
+        elif kind == "links":
+            out += [f"- [{_md_cell(text).replace('[', '&#91;').replace(']', '&#93;')}](#{anchor_name(name)})"
+                    for text, name in b[1]] + [""]
         elif kind == "ul":
             out += [f"- {_md_cell(x)}" for x in b[1]] + [""]
         elif kind == "table":
@@ -78,6 +89,9 @@ def to_html(blocks: Iterable[Block], title: str) -> str:
             out.append(f"<p>{_inline(b[1])}</p>")
         elif kind == "ul":
             out.append("<ul>" + "".join(f"<li>{_inline(x)}</li>" for x in b[1]) + "</ul>")
+        elif kind == "links":
+            out.append("<ul>" + "".join(f'<li><a href="#{html.escape(anchor_name(name))}">{_inline(text)}</a></li>'
+                                        for text, name in b[1]) + "</ul>")
         elif kind == "table":
             head = "".join(f"<th>{_inline(h)}</th>" for h in b[1])
             rows = "".join("<tr>" + "".join(f"<td>{_inline(c)}</td>" for c in row) + "</tr>" for row in b[2])

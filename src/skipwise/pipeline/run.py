@@ -91,6 +91,7 @@ def planned_outputs(plan: RunPlan, weighting_plan=None, imputation_plan=None) ->
             out[f"imputed_{k + 1}"] = p.name
     out["codebook_md"] = "codebook.md"
     out["codebook_html"] = "codebook.html"
+    out["codebook_xml"] = "codebook.xml"
     out["manifest"] = "manifest.json"
     return out
 
@@ -104,6 +105,7 @@ _FILE_TEXT = {
     "weighted_frame": "the weighting file (all sampled cases) with its weight columns",
     "imputed": "completed data (imputations) with `<item>_imp` flags and the weights",
     "codebook_md": "this codebook (Markdown)", "codebook_html": "this codebook (HTML)",
+    "codebook_xml": "the codebook in the archive standard DDI-Codebook 2.5 (XML)",
     "manifest": "versions, plan, seeds, timings and the SHA-256 of every input and output",
 }
 
@@ -291,14 +293,14 @@ def _diagnose(st: S.RunState, reporter: Reporter) -> None:
 def _export(st: S.RunState, reporter: Reporter) -> None:
     from skipwise.pipeline.codebook import codebook_blocks, codebook_html, codebook_markdown
 
-    frame = meta = None
+    frame = meta = data_name = None
     for form, roles in (("columns", "data_"), ("recoded", "coded_")):
         for role in [r for r in st.targets if r.startswith(roles)]:
             fmt = role[len(roles):]
             out, out_meta = S.final_frame(st, form, fmt)
             S.write_data(out, st.targets[role], out_meta, reporter)
             if form == "columns" and frame is None:
-                frame, meta = out, out_meta
+                frame, meta, data_name = out, out_meta, st.targets[role].name
             reporter.info(f"wrote {st.targets[role].name}")
     weight = weight_name = None
     if st.weigh is not None:
@@ -308,11 +310,17 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
         weight_name = st.plan.report.weight
         weight = S.nan_to_zero(st.data[weight_name])
     files = [(st.targets[r].name, _describe(r)) for r in st.targets]
-    blocks = codebook_blocks(st, frame, meta, files, weight, weight_name)
+    from skipwise.ddi import ddi_bytes
+    from skipwise.pipeline.codebook import package_input
+
+    inp = package_input(st, frame, meta, data_name, weight_name if weight_name in frame.columns else None)
+    blocks = codebook_blocks(st, frame, meta, files, weight, weight_name, inp=inp)
     with publish_file(st.targets["codebook_md"], overwrite=True) as tmp:
         tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
     with publish_file(st.targets["codebook_html"], overwrite=True) as tmp:
         tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
+    with publish_file(st.targets["codebook_xml"], overwrite=True) as tmp:
+        tmp.write_bytes(ddi_bytes(inp))
 
 
 def _summary(st: S.RunState) -> dict:

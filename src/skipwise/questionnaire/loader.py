@@ -17,6 +17,7 @@ from skipwise.questionnaire.model import (
     BreakoffSpec, Code, CodeKind, Item, ItemType, Questionnaire, Roster, Section,
 )
 from skipwise.questionnaire.names import NameTable
+from skipwise.questionnaire.model import STUDY_KEYS
 from skipwise.questionnaire.numbers import code_number, number_reasons
 from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
 from skipwise.rules import ast
@@ -24,7 +25,7 @@ from skipwise.rules.parser import RuleSyntaxError, parse_rule
 
 __all__ = ["load_questionnaire", "loads_questionnaire", "RESERVED_STATUSES"]
 
-TOP_KEYS = ("format", "survey", "context", "codes", "sections", "breakoff")
+TOP_KEYS = ("format", "survey", "context", "codes", "sections", "breakoff", "study")
 SURVEY_KEYS = ("name", "title", "case_id")
 SECTION_KEYS = ("name", "label", "asked_if", "items", "roster", "optional")
 ROSTER_KEYS = ("count", "max", "column")
@@ -115,12 +116,29 @@ class _Builder:
                 sections.append(built[0])
                 items.extend(built[1])
         breakoff = self.breakoff(doc)
+        study = self.study(doc.get("study"), doc.key_line("study"), "the questionnaire") if "study" in doc else {}
         numbers = number_reasons(self, global_codes, items)
         self.problems.raise_if_any(
             headline=f"{len(self.problems)} problem(s) in questionnaire {self.file or ''}".rstrip())
         return Questionnaire(name=survey["name"], title=survey.get("title", ""), case_id=survey["case_id"],
                              context=context, codes=global_codes, sections=tuple(sections),
-                             items=tuple(items), breakoff=breakoff, reason_numbers=numbers, path=self.file)
+                             items=tuple(items), breakoff=breakoff, reason_numbers=numbers, study=study,
+                             path=self.file)
+
+    def study(self, raw: Any, line: int, where: str) -> dict[str, str]:
+        """The study-level metadata block: known keys, each a single text, number or date."""
+        block = self.need_map(raw, "'study'", line)
+        if block is None:
+            return {}
+        self.check_keys(block, STUDY_KEYS, f"'study' of {where}")
+        out: dict[str, str] = {}
+        for key, value in block.items():
+            if isinstance(value, (LineDict, LineList)) or value is None or isinstance(value, bool):
+                self.add(ProblemCode.BAD_VALUE, f"study key '{key}' must be a single text", block.key_line(key),
+                         hint="quote the text, e.g. mode: \"face to face\"")
+            elif key in STUDY_KEYS:
+                out[str(key)] = str(value)
+        return out
 
     def survey(self, doc: LineDict) -> dict[str, str]:
         raw = self.need_map(doc.get("survey"), "'survey'", doc.key_line("survey")) if "survey" in doc else None

@@ -16,7 +16,12 @@ from typing import Mapping
 
 from skipwise.rules import ast
 
-__all__ = ["CodeKind", "ItemType", "Code", "Item", "Section", "Roster", "BreakoffSpec", "Questionnaire"]
+__all__ = ["CodeKind", "ItemType", "Code", "Item", "Section", "Roster", "BreakoffSpec", "Questionnaire",
+           "STUDY_KEYS"]
+
+#: Keys of the optional ``study:`` block (study-level metadata for codebooks and the DDI export).
+STUDY_KEYS = ("title", "id", "producer", "population", "geography", "nation", "fieldwork_start",
+              "fieldwork_end", "mode", "sample_design", "weighting", "citation", "abstract")
 
 
 class CodeKind(str, Enum):
@@ -140,6 +145,7 @@ class Questionnaire:
     sections: tuple[Section, ...] = ()
     items: tuple[Item, ...] = ()
     breakoff: BreakoffSpec = field(default_factory=BreakoffSpec)
+    study: Mapping[str, str] = field(default_factory=dict)
     #: Stable status number (11-99) of every nonresponse reason (see docs/statuses.md).
     reason_numbers: Mapping[str, int] = field(default_factory=dict)
     path: str | None = None

@@ -61,6 +61,11 @@ def _stage_summary(chain: ChainResult) -> pd.DataFrame:
     return pd.DataFrame(rows)
 
 
+def replicate_design_of(frame: pd.DataFrame, plan: WeightingPlan) -> ReplicateDesign | None:
+    """The replicate design the plan makes on ``frame`` (None without replicates)."""
+    return _design(frame, plan)
+
+
 def _design(frame: pd.DataFrame, plan: WeightingPlan) -> ReplicateDesign | None:
     spec = plan.replicates
     if spec is None:
