@@ -17,7 +17,7 @@ import pytest
 from skipwise.classify import classify
 from skipwise.errors import SkipwiseError
 from skipwise.questionnaire import loads_questionnaire
-from skipwise.report.tables import ITEM_RATE, compute_figures, items_table
+from skipwise.report.tables import BASE_COL, ITEM_RATE, compute_figures, items_table
 from skipwise.weighting.outcomes import interview_outcome
 
 Q = loads_questionnaire(textwrap.dedent("""\
@@ -98,7 +98,7 @@ def test_left_blank_is_outside_the_rate_base(classified):
     fig = compute_figures(classified)
     table = items_table(classified, fig)
     row = table.set_index("Item").loc["comment"]
-    assert row["In universe (excl. breakoff, left_blank)"] == 3
+    assert row[BASE_COL] == 3
     assert row[ITEM_RATE] == pytest.approx(1 / 3)
 
 

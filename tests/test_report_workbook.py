@@ -102,7 +102,7 @@ def test_items_sheet_counts_match_classifier(tiny, tmp_path):
     # Hand count from HAND (DESIGN §3): item c has dont_know 1, item_missing 1, breakoff 1, 5 in universe.
     rc = rows[ITEMS.index("c")]
     assert (rc[header.index("dont_know")], rc[header.index("item_missing")], rc[header.index("breakoff")]) == (1, 1, 1)
-    assert rc[header.index("In universe (excl. breakoff, left_blank)")] == 5
+    assert rc[header.index("D: in universe, excl. breakoff and left_blank")] == 5
     assert_allclose(rc[header.index("Item nonresponse rate")], 2 / 5, rtol=1e-12)
     assert wb["Items"].cell(row=4, column=header.index("Item nonresponse rate") + 1).number_format.endswith("%")
 

@@ -113,7 +113,7 @@ EXPECTED = ["pond.sav", "pond.parquet", "pond_coded.dta", "pond_faults.csv", "it
 def test_run_writes_every_file_and_shows_each_step(ran):
     root, output, _ = ran
     assert sorted(p.name for p in (root / "package").iterdir()) == sorted(EXPECTED)
-    for step in ("read", "check", "classify", "report", "diagnose", "weigh", "impute", "export"):
+    for step in ("read", "check", "classify", "join", "weigh", "report", "diagnose", "impute", "export"):
         assert f"] {step}:" in output
     assert "not at random" in output
 
@@ -168,7 +168,7 @@ def test_manifest_hashes_match_hashlib(ran):
     assert doc["plan"]["data"] == str((root / "in/pond.sav").resolve())
     assert doc["seeds"]["imputation"] == 11
     steps = [s["step"] for s in doc["steps"]]
-    assert steps[:9] == ["plan", "read", "check", "classify", "report", "diagnose", "weigh", "impute", "export"]
+    assert steps[:10] == ["plan", "read", "check", "classify", "join", "weigh", "report", "diagnose", "impute", "export"]
     assert all(s["seconds"] >= 0 and s["status"] == "done" for s in doc["steps"])
 
 

@@ -2,4 +2,5 @@
 
 from skipwise.cli import main
 
-main()
+if __name__ == "__main__":  # worker processes of a local cluster import this module again
+    main()

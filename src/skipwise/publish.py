@@ -39,7 +39,7 @@ from typing import Callable, Iterable, Iterator, Sequence
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
-__all__ = ["publish_file", "publish_files", "check_writable", "PackagePublisher", "Interrupted",
+__all__ = ["publish_file", "publish_files", "check_writable", "clean_message", "probe_folder", "PackagePublisher", "Interrupted",
            "handle_signals", "user_path", "os_error_problem", "STAGING_MARK", "PREVIOUS_MARK"]
 
 STAGING_MARK = ".skipwise-staging-"
@@ -64,6 +64,20 @@ def user_path(path: str | Path | None) -> str | None:
         with contextlib.suppress(ValueError):
             return str(shown / p.relative_to(hidden))
     return str(p)
+
+
+def clean_message(text: object, limit: int = 240) -> str:
+    """Text taken from a library's exception, fit for a message: hidden temporary names shown as
+    the user's files, control characters and runs of escaped bytes removed, one line, capped."""
+    import re
+
+    out = str(text)
+    for hidden, shown in list(_SHOWN.items()):
+        out = out.replace(str(hidden), str(shown))
+    out = re.sub(r"(?:\\x[0-9a-fA-F]{2}|\\[0-7]{3}){3,}", " ... ", out)  # b'PK\x03\x04...' and the like
+    out = "".join(ch if ch.isprintable() else " " for ch in out)
+    out = " ".join(out.split())
+    return out if len(out) <= limit else out[: limit - 4].rstrip() + " ..."
 
 
 _CAUSES = {
@@ -496,6 +510,12 @@ class PackagePublisher:
 
     def publish(self) -> None:
         """Swap the staged package in: old aside, new in, old removed; wholly old or wholly new."""
+        try:
+            self._swap()
+        except OSError as exc:  # named while the staging folder is still known as the package
+            raise SkipwiseError(os_error_problem(exc, path=self.folder)) from None
+
+    def _swap(self) -> None:
         assert self.staging is not None
         for path in self.staging.iterdir():
             _fsync_path(path)

@@ -80,7 +80,8 @@ from skipwise.classify import statuses as S
 from skipwise.classify.result import Classification, _weights
 from skipwise.rules.evaluate import TRUE
 
-__all__ = ["DEFAULT_MIN_BASE", "LEFT_BLANK", "ItemRates", "item_rates", "format_rate", "RATE_DECIMALS"]
+__all__ = ["DEFAULT_MIN_BASE", "LEFT_BLANK", "ItemRates", "item_rates", "format_rate", "RATE_DECIMALS",
+           "STATUS_LABELS", "status_label", "COUNT_LABELS", "worst_lines"]
 
 #: Minimum unweighted D for a rate to be ranked or charted (common practice, no source).
 DEFAULT_MIN_BASE = 30
@@ -91,6 +92,38 @@ LEFT_BLANK = getattr(S, "LEFT_BLANK", "left_blank")
 
 _IN_D_FIXED = (S.ITEM_MISSING, S.WRONG_CODE, "invalid_in_universe")
 _APART = (S.GATE_UNKNOWN, S.BREAKOFF, S.OFF_ROUTE, LEFT_BLANK, "invalid_apart", S.SKIPPED)
+
+
+#: Human labels of the fixed statuses (the token stays beside them for machines).
+STATUS_LABELS: dict[str, str] = {
+    S.ANSWERED: "Answered",
+    S.SKIPPED: "Skipped: not asked (legitimate skip)",
+    S.ITEM_MISSING: "Blank where asked, no code",
+    S.GATE_UNKNOWN: "Blank; whether it was asked is unknown",
+    S.BREAKOFF: "Blank after the interview ended",
+    S.OFF_ROUTE: "Answer or code where not asked (routing fault)",
+    S.WRONG_CODE: "Not-asked code where asked (routing fault)",
+    S.INVALID: "Value outside the item's values or range",
+    LEFT_BLANK: "Optional item left blank",
+}
+#: Labels of the count columns of :meth:`ItemRates.table` that are not statuses.
+COUNT_LABELS: dict[str, str] = {
+    "invalid_in_universe": "Invalid value where asked (fault, in D)",
+    "invalid_apart": "Invalid value where not asked or undecided (apart)",
+}
+
+
+def status_label(status: str, questionnaire=None) -> str:
+    """Human label of a status or count column; a nonresponse reason's label comes from its code."""
+    if status in STATUS_LABELS:
+        return STATUS_LABELS[status]
+    if status in COUNT_LABELS:
+        return COUNT_LABELS[status]
+    if questionnaire is not None:
+        for code in (*questionnaire.codes, *(c for it in questionnaire.items for c in it.codes)):
+            if code.reason == status and getattr(code, "label", None):
+                return f"{code.label} (nonresponse)"
+    return status.replace("_", " ").capitalize() + " (nonresponse)"
 
 
 def format_rate(x: float | None) -> str:
@@ -294,6 +327,17 @@ def item_rates(c: Classification, weight: pd.Series | np.ndarray | None = None,
             zero[:, j] = np.bincount(gcode, weights=(col < n_in_d) & (w == 0), minlength=g).astype(np.int64)
     return ItemRates(items=tuple(c.items), reasons=reasons, groups=groups, counts=counts, wcounts=wcounts,
                      zero=zero, min_base=int(min_base), grouped=grouped)
+
+
+def worst_lines(rates: ItemRates, top: int = 5, weighted: bool = False) -> list[str]:
+    """Console lines: the items with the highest item nonresponse rate at or above the minimum base."""
+    t = rates.ranked(weighted=weighted).head(top)
+    small = int(rates.below_min_base.sum())
+    lines = [f"  {item:<20} {format_rate(r['nonresponse_rate']):>6} of D = {int(r['base']):,}"
+             for item, r in t.iterrows()]
+    if small:
+        lines.append(f"  ({small} item(s) with D under the minimum base of {rates.min_base} are not ranked)")
+    return lines
 
 
 def _sorted_keys(keys: list[object]) -> list[object]:

@@ -22,7 +22,7 @@ class _Guarded(TyperGroup):
         from skipwise.publish import Interrupted, handle_signals, os_error_problem
 
         args = [*getattr(ctx, "_protected_args", []), *ctx.args]
-        with handle_signals(), _quiet_after_failure():
+        with handle_signals(), _quiet_after_failure(), _notes():
             try:
                 return super().invoke(ctx)
             except SkipwiseError as err:  # raised outside a command's own handler
@@ -47,6 +47,26 @@ def _quiet_after_failure():
         sys.unraisablehook = lambda _unraisable: None
         gc.collect()
         raise
+
+
+@contextlib.contextmanager
+def _notes():
+    """skipwise's own warnings (an input's oddity, a format adaptation) are shown as notes."""
+    import warnings
+
+    shown = warnings.showwarning
+
+    def show(message, category, filename, lineno, file=None, line=None):
+        if issubclass(category, UserWarning) and category.__module__.startswith("skipwise"):
+            typer.echo(f"note: {message}", err=True)
+        else:
+            shown(message, category, filename, lineno, file, line)
+
+    warnings.showwarning = show
+    try:
+        yield
+    finally:
+        warnings.showwarning = shown
 
 
 def out_of_memory(args: list[str]) -> Problem:

@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import Annotated, Optional
 
 import typer
 
 from skipwise.classify.export import ExportForm
 from skipwise.cli.app import app, fail
 from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs
+from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 
 OUT_FORMATS = (".sav", ".zsav", ".dta", ".parquet", ".csv", ".xlsx")
@@ -27,6 +28,9 @@ def classify_command(
              "non-answer cell by a special code per status (user-missing in .sav, extended "
              "missing in .dta).")] = ExportForm.COLUMNS,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+    engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
+    scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
+    partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
@@ -40,6 +44,15 @@ def classify_command(
     from skipwise.io.atomic import atomic_output, check_writable
     from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
 
+    if engine is Engine.DASK:
+        from skipwise.cli.engine import classify_with_dask
+
+        try:
+            classify_with_dask(data, questionnaire, out, form=form, scheduler=scheduler,
+                               partition_rows=partition_rows, overwrite=overwrite)
+        except SkipwiseError as err:
+            fail(err)
+        return
     try:
         if out.suffix.lower() not in OUT_FORMATS:
             if out.suffix.lower() in SUPPORTED_EXTENSIONS:

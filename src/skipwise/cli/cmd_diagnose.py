@@ -54,7 +54,8 @@ def diagnose(
     out: Annotated[Optional[Path], typer.Option("-o", "--out", help="Workbook to write (.xlsx; default diagnostics.xlsx).")] = None,
     output_old: Annotated[Optional[Path], typer.Option("--output", hidden=True)] = None,
     items: Annotated[Optional[list[str]], typer.Option("--items", help="Items to diagnose (repeat or comma-separate; default: all).")] = None,
-    aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns plus the items age and sex if asked of everyone with at most 2% nonresponse). An item may be named: its answers are used.")] = None,
+    aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns plus the items age and sex if asked of everyone with at most 2% nonresponse; with --response, only what is known for every sampled case). Replaces the defaults: use --add-aux to add to them. An item may be named: its answers are used.")] = None,
+    add_aux: Annotated[Optional[list[str]], typer.Option("--add-aux", help="Auxiliary columns or items used in addition to the default ones (repeat or comma-separate).")] = None,
     categorical: Annotated[Optional[list[str]], typer.Option("--categorical", help="Auxiliaries to treat as categorical (default: text columns and whole-number columns with at most 10 values).")] = None,
     little_items: Annotated[Optional[list[str]], typer.Option("--little-items", help="Variables of Little's test (default: numeric items with nonresponse whose common scope keeps at least half the cases, leaving out near-duplicates with R² ≥ 0.99).")] = None,
     weight: Annotated[Optional[str], typer.Option("--weight", help="Design-weight column for the R-indicators and the sensitivity analysis.")] = None,
@@ -79,7 +80,7 @@ def diagnose(
         from skipwise.cli.common import classify_with_progress
         from skipwise.diagnostics import SuggestionThresholds
         from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
-        from skipwise.diagnostics.survey import survey_inputs
+        from skipwise.diagnostics.survey import check_unit_auxiliaries, survey_inputs
         from skipwise.diagnostics.workbook import write_diagnostics_workbook
         from skipwise.io import read_survey
         from skipwise.io.atomic import check_writable
@@ -90,6 +91,10 @@ def diagnose(
             raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
                                         message="--threshold needs --sensitivity ITEM",
                                         hint="name the item whose mean the threshold is about"))
+        if aux and add_aux:
+            raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
+                                        message="--add-aux adds to the default auxiliaries; with --aux there are none",
+                                        hint="list every auxiliary with --aux, or use --add-aux alone"))
         q = load_questionnaire(questionnaire)
         named = [*(_names(items) or []), *(_names(little_items) or []), *([sensitivity] if sensitivity else [])]
         unknown = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=n,
@@ -98,9 +103,6 @@ def diagnose(
         if unknown:
             raise SkipwiseError(unknown)
         data = read_survey(data_path)
-        typer.echo(f"Classifying {len(data):,} cases against {len(q.item_names)} items ...", err=True)
-        cls = classify_with_progress(data, q)
-
         rows = None
         resp_ind = None
         if response is not None:
@@ -114,15 +116,21 @@ def diagnose(
             nums = pd.to_numeric(col, errors="coerce")
             resp_ind = as_text.isin(wanted) | nums.isin(pd.to_numeric(pd.Series(wanted), errors="coerce").dropna())
             rows = resp_ind
+            if aux:
+                check_unit_auxiliaries(data, q, _names(aux), resp_ind)
             typer.echo(f"Unit respondents: {int(rows.sum()):,} of {len(rows):,}", err=True)
+        typer.echo(f"Classifying {len(data):,} cases against {len(q.item_names)} items ...", err=True)
+        cls = classify_with_progress(data, q)
 
         chosen = _names(items)
         inputs = survey_inputs(data, q, classification=cls, items=chosen, aux=_names(aux),
                                little_items=_names(little_items), rows=rows,
-                               exclude=[c for c in (weight, response) if c])
+                               exclude=[c for c in (weight, response) if c], add_aux=_names(add_aux))
+        typer.echo("Auxiliaries: " + ", ".join(map(str, inputs.aux.columns))
+                   + (" (as named with --aux)" if aux else ""), err=True)
         if inputs.aux_left_out:
             typer.echo("Not used as auxiliaries: " + ", ".join(inputs.aux_left_out)
-                       + " (name them with --aux to use them).", err=True)
+                       + " (add them with --add-aux to use them).", err=True)
         mf, aux_frame, l_items = inputs.mframe, inputs.aux, list(inputs.little_items)
         w = _numeric_column(data, weight, "weight") if weight else None
         opts = DiagnoseOptions(

@@ -9,14 +9,17 @@ import typer
 
 from skipwise.cli.app import app, fail
 from skipwise.errors import SkipwiseError
+from skipwise.rates import DEFAULT_MIN_BASE, item_rates, worst_lines
 
 HELP = (
     "Write an Excel workbook on item nonresponse: an overview with the rate definitions, one row per "
     "item (every status count, the item nonresponse rate and each nonresponse reason's rate), the "
     "routing faults, the most frequent joint nonresponse patterns as a shaded grid, rates by subgroup "
     "(--by), case completeness and charts.\n\n"
-    "Item nonresponse rate = (nonresponse reasons + item_missing) / (cases in universe, excluding "
-    "breakoff and left_blank); gate_unknown, breakoff and left_blank are shown apart.\n\n"
+    "D = cells in universe, excluding breakoff and left_blank. Item nonresponse rate = (nonresponse "
+    "reasons + item_missing) / D; answered and fault rates share the same D, and the three add up to "
+    "100%; gate_unknown, breakoff, off_route and left_blank are shown apart. Items and subgroup cells "
+    "with D under --min-base are marked and never ranked.\n\n"
     "Caution: nonresponse adjustments do not repair data missing not at random (MNAR). The Routing "
     "faults sheet lists case ids (leave them out with --no-case-ids): share the workbook only under "
     "your organization's data protection rules."
@@ -41,6 +44,10 @@ def report_command(
     fault_rows: Annotated[int, typer.Option(
         "--fault-rows", min=0, help="Most routing faults listed one per row (capped at a worksheet's "
                                     "row limit); the per-item fault counts always cover all.")] = 100_000,
+    min_base: Annotated[int, typer.Option(
+        "--min-base", min=0, help="Minimum cells in universe (D, unweighted) for a rate to be ranked; items "
+                                  "and subgroup cells under it are shown but marked (default 30: common "
+                                  "practice).")] = DEFAULT_MIN_BASE,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing workbook.")] = False,
 ) -> None:
     from skipwise.cli.common import classify_with_progress, load_inputs
@@ -55,11 +62,16 @@ def report_command(
         cl = classify_with_progress(frame, q)
         path = write_item_report(
             frame, q, out, classification=cl, weight=weight, by=tuple(by or ()), case_ids=not no_case_ids,
-            top_items=top_items, top_patterns=top_patterns, fault_rows=fault_rows, input_path=data,
+            top_items=top_items, top_patterns=top_patterns, fault_rows=fault_rows, min_base=min_base, input_path=data,
             overwrite=overwrite,
         )
     except SkipwiseError as err:
         fail(err)
         return
     typer.echo(f"{len(frame):,} cases x {len(q.items)} items")
+    w = None if weight is None else frame[weight].to_numpy(dtype=float, na_value=float("nan"))
+    rates = item_rates(cl, w, min_base=min_base)
+    typer.echo("highest item nonresponse rates" + (" (weighted)" if w is not None else "") + ":")
+    for line in worst_lines(rates, weighted=w is not None):
+        typer.echo(line)
     typer.echo(f"wrote {path}" + ("" if no_case_ids else " (its Routing faults sheet lists case ids)"))

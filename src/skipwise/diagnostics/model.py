@@ -212,6 +212,8 @@ class LogitResult:
         Item name.
     n, n_nonresponse
         Cases in the model and nonrespondents among them.
+    n_left_out
+        In-scope cases left out because an auxiliary was missing.
     table
         One row per term: ``term``, ``coef``, ``std_err``, ``z``, ``p_value``,
         ``odds_ratio``, ``or_low``, ``or_high`` (confidence limits).
@@ -238,6 +240,7 @@ class LogitResult:
     lr_df: int
     lr_p_value: float
     notes: tuple[str, ...]
+    n_left_out: int = 0
 
 
 def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: Sequence[str] | None = None,
@@ -297,5 +300,5 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
         item=name, n=int(len(ind)), n_nonresponse=n_m, table=table, reference=refs,
         auc=auc_mann_whitney(fitted, ind.to_numpy()), pseudo_r2=float(res.prsquared),
         lr_statistic=float(res.llr), lr_df=int(res.df_model), lr_p_value=float(res.llr_pvalue),
-        notes=tuple(notes),
+        notes=tuple(notes), n_left_out=int(n_drop),
     )

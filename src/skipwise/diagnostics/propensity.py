@@ -37,7 +37,9 @@ class RIndicatorResult:
     target
         What "response" means here (unit response, or response to an item).
     n, n_responded
-        Cases and responding cases used.
+        Cases and responding cases that entered the model.
+    n_left_out
+        Cases left out because an auxiliary was missing.
     response_rate
         (Weighted) response rate; equals the mean propensity for a logistic model.
     mean_propensity, sd_propensity
@@ -81,6 +83,7 @@ class RIndicatorResult:
     model: pd.DataFrame
     model_se: str
     notes: tuple[str, ...]
+    n_left_out: int = 0
 
 
 def _groups(s: pd.Series, is_cat: bool, bins: int) -> pd.Series:
@@ -222,4 +225,5 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         categories=pd.DataFrame(cat_rows, columns=["variable", "category", "n", "share", "response_rate",
                                                    "mean_propensity", "partial_unconditional"]),
         model=model, model_se=SE_MODEL_BASED if weights is None else SE_ROBUST, notes=tuple(notes),
+        n_left_out=int(n_drop),
     )

@@ -239,8 +239,16 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
     rinds: list[RIndicatorResult] = []
     if response is not None:
         tell("unit R-indicator")
+        # the unit model may use only what is known for every sampled case: an auxiliary blank for
+        # nonrespondents would drop them and model respondents only (Schouten, Cobben & Bethlehem, 2009)
+        unit_aux = [c for c in aux.columns if not aux.loc[aux.index.intersection(response.index), c].isna().any()]
+        for c in aux.columns:
+            if c not in unit_aux:
+                notes.append(("R-indicator", "unit response", f"auxiliary {c} left out of the unit response "
+                              "model: blank for some sampled cases"))
         try:
-            rinds.append(r_indicator(response, aux, weights=weights, categorical=cat, target="unit response"))
+            rinds.append(r_indicator(response, aux[unit_aux], weights=weights,
+                                     categorical=[c for c in cat if c in unit_aux], target="unit response"))
         except SkipwiseError as err:
             notes.append(("R-indicator", "unit response", err.render()))
     summary_rows, suggestions = [], []

@@ -17,7 +17,7 @@ from skipwise.diagnostics.frame import MissingnessFrame, missingness_frame
 from skipwise.diagnostics.report import choose_little_items
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
-__all__ = ["SurveyInputs", "survey_inputs", "default_auxiliaries", "CORE_ITEMS", "WELL_ANSWERED", "MAX_LEVELS"]
+__all__ = ["SurveyInputs", "survey_inputs", "default_auxiliaries", "check_unit_auxiliaries", "CORE_ITEMS", "WELL_ANSWERED", "MAX_LEVELS"]
 
 #: Respondent items used as auxiliaries by default, when the questionnaire has them: the core
 #: demographics that item nonresponse most often depends on (common practice, no source).
@@ -52,8 +52,8 @@ class SurveyInputs:
 
 
 def default_auxiliaries(data: pd.DataFrame, context: Sequence[str], *, mframe: MissingnessFrame | None = None,
-                        core_items: Sequence[str] = CORE_ITEMS,
-                        max_levels: int = MAX_LEVELS) -> tuple[list[str], list[str]]:
+                        core_items: Sequence[str] = CORE_ITEMS, max_levels: int = MAX_LEVELS,
+                        sampled: MissingnessFrame | None = None) -> tuple[list[str], list[str]]:
     """Default auxiliaries, and the candidates left out (with the reason).
 
     Context columns are kept when fully observed with 2..``max_levels``
@@ -62,8 +62,13 @@ def default_auxiliaries(data: pd.DataFrame, context: Sequence[str], *, mframe: M
     or code lists) or many text values.  The ``core_items`` (respondent's age
     and sex) are added when the questionnaire has them, they are asked of
     every case, their answers vary and at most :data:`WELL_ANSWERED` of their
-    in-scope cells are item nonresponse.  The cut-offs are common practice, no
-    source; ``--aux`` overrides the choice.
+    in-scope cells are item nonresponse.  ``sampled`` is the frame over every
+    sampled case (respondents and unit nonrespondents) when the unit response
+    is modelled: a core item then also needs an answer for every sampled case,
+    since the unit response model may use only what is known for every case
+    (Schouten, Cobben & Bethlehem, 2009), and an interview item is blank for
+    every unit nonrespondent.  The cut-offs are common practice, no source;
+    ``--aux`` overrides the choice.
     """
     keep, left = [], []
     for col in context:
@@ -92,6 +97,10 @@ def default_auxiliaries(data: pd.DataFrame, context: Sequence[str], *, mframe: M
                 left.append(f"{item} ({rate:.1%} item nonresponse, more than {WELL_ANSWERED:.0%})")
             elif mframe.values[item].nunique() < 2:
                 left.append(f"{item} (no varying numeric answers)")
+            elif sampled is not None and item in sampled.values.columns and sampled.values[item].isna().any():
+                blank = int(sampled.values[item].isna().sum())
+                left.append(f"{item} (blank for {blank:,} of {len(sampled.values):,} sampled cases: "
+                            "not known for the unit nonrespondents)")
             else:
                 keep.append(item)
     return keep, left
@@ -99,7 +108,8 @@ def default_auxiliaries(data: pd.DataFrame, context: Sequence[str], *, mframe: M
 
 def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, items: Sequence[str] | None = None,
                   aux: Sequence[str] | None = None, little_items: Sequence[str] | None = None,
-                  rows: pd.Series | None = None, exclude: Sequence[str] = ()) -> SurveyInputs:
+                  rows: pd.Series | None = None, exclude: Sequence[str] = (),
+                  add_aux: Sequence[str] | None = None) -> SurveyInputs:
     """Classify the data and build the in-scope frame, the auxiliaries and Little's variables.
 
     Parameters
@@ -118,7 +128,11 @@ def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, ite
         Variables of Little's test (default: :func:`~skipwise.diagnostics.report.choose_little_items`
         over the numeric (``integer``/``number``) items).
     rows
-        True for the cases to diagnose (for example unit respondents); default all.
+        True for the unit respondents, when the data hold every sampled case (default: all
+        cases responded).  The auxiliaries then also serve the unit response model, which needs
+        them for every sampled case: a named auxiliary blank for a unit nonrespondent is refused.
+    add_aux
+        Auxiliaries used in addition to the default ones (ignored when ``aux`` is given).
     exclude
         Columns never used as default auxiliaries (case id, weight, response column).
     """
@@ -141,7 +155,13 @@ def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, ite
     left: list[str] = []
     if aux is None:
         context = [c for c in q.context if c in data.columns and c not in (q.case_id, *exclude)]
-        aux_names, left = default_auxiliaries(data, context, mframe=mf)
+        sampled = None
+        if rows is not None:
+            sampled = missingness_frame(values, cls.universe_mask(), cls.nonresponse_mask(),
+                                        answered_mask=cls.mask(S.ANSWERED))
+        aux_names, left = default_auxiliaries(data, context, mframe=mf, sampled=sampled)
+        aux_names += [a for a in (add_aux or ()) if a not in aux_names]
+        left = [x for x in left if x.split(" (")[0] not in aux_names]
     else:
         aux_names = list(aux)
     bad = [Problem(code=ProblemCode.UNKNOWN_NAME, category=Category.USAGE, item=a,
@@ -158,6 +178,8 @@ def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, ite
     aux_frame = pd.DataFrame({a: (values[a] if a in q.item_names else data[a]) for a in aux_names},
                              index=data.index)
     aux_frame = aux_frame.apply(lambda s: s if pd.api.types.is_numeric_dtype(s) else s.astype(str).where(s.notna()))
+    if rows is not None:
+        _check_unit_auxiliaries(aux_frame, rows)
 
     if little_items is not None:
         l_items = list(little_items)
@@ -166,3 +188,46 @@ def survey_inputs(data: pd.DataFrame, questionnaire, *, classification=None, ite
                    if q.item(n).type in (ItemType.INTEGER, ItemType.NUMBER) and n in mf.items]
         l_items = choose_little_items(mf, numeric) if numeric else []
     return SurveyInputs(mframe=mf, aux=aux_frame, aux_left_out=tuple(left), little_items=tuple(l_items))
+
+
+def check_unit_auxiliaries(data: pd.DataFrame, questionnaire, aux: Sequence[str], responded: pd.Series) -> None:
+    """Refuse named auxiliaries whose data column is blank for a unit nonrespondent.
+
+    Runs on the data as read, before classification, so that the user hears of it first; the
+    same rule is applied to the analysis values in :func:`survey_inputs`.
+    """
+    cols = {}
+    for a in aux:
+        if a in data.columns:
+            cols[a] = data[a]
+        elif a in questionnaire.item_names and len(questionnaire.item(a).columns) == 1:
+            col = questionnaire.item(a).columns[0]
+            if col in data.columns:
+                cols[a] = data[col]
+    if not cols:
+        return
+    frame = pd.DataFrame({a: s.where(~s.astype(str).str.strip().eq("")) if not pd.api.types.is_numeric_dtype(s) else s
+                          for a, s in cols.items()}, index=data.index)
+    _check_unit_auxiliaries(frame, responded)
+
+
+def _check_unit_auxiliaries(aux: pd.DataFrame, responded: pd.Series) -> None:
+    """Refuse auxiliaries blank for a unit nonrespondent: the unit response model would drop the case.
+
+    A propensity model fitted on respondents only estimates nothing about response
+    (Schouten, Cobben & Bethlehem, 2009): every sampled case must enter it.
+    """
+    nonresp = ~responded.reindex(aux.index).fillna(False).astype(bool)
+    n_non = int(nonresp.sum())
+    problems = []
+    for col in aux.columns:
+        blank = int((aux[col].isna() & nonresp).sum())
+        if blank:
+            problems.append(Problem(
+                code=ProblemCode.BAD_DATA, category=Category.USAGE, item=str(col),
+                message=(f"auxiliary {col!r} is blank for {blank:,} of {n_non:,} unit nonrespondents: the unit "
+                         "response model needs auxiliaries known for every sampled case"),
+                hint="name frame columns known for every sampled case (from the sample file), or leave the "
+                     "auxiliaries to the default choice"))
+    if problems:
+        raise SkipwiseError(problems)

@@ -215,12 +215,12 @@ def _comparisons(ws, wsc, rep: DiagnosticsReport) -> None:
 
 def _models(ws, rep: DiagnosticsReport) -> None:
     ws.cell(row=1, column=1, value="Logistic models of item nonresponse on the auxiliaries").font = _TITLE
-    fit = pd.DataFrame([{"item": k, "n": m.n, "nonresponse": m.n_nonresponse, "auc": m.auc,
+    fit = pd.DataFrame([{"item": k, "n": m.n, "left_out": m.n_left_out, "nonresponse": m.n_nonresponse, "auc": m.auc,
                          "pseudo_r2": m.pseudo_r2, "lr_statistic": m.lr_statistic, "lr_df": m.lr_df,
                          "lr_p_value": m.lr_p_value,
                          "reference": ", ".join(f"{a}={b}" for a, b in m.reference.items()),
                          "notes": " ".join(m.notes)} for k, m in rep.models.items()],
-                       columns=["item", "n", "nonresponse", "auc", "pseudo_r2", "lr_statistic", "lr_df",
+                       columns=["item", "n", "left_out", "nonresponse", "auc", "pseudo_r2", "lr_statistic", "lr_df",
                                 "lr_p_value", "reference", "notes"])
     row = _table(ws, fit, 3, formats={"auc": NUM, "pseudo_r2": NUM, "lr_p_value": P, "lr_statistic": "0.00"})
     ws.cell(row=row, column=1, value="Coefficients (odds ratios with 95% confidence limits)").font = _BOLD
@@ -231,12 +231,12 @@ def _models(ws, rep: DiagnosticsReport) -> None:
 
 def _representativeness(ws, rep: DiagnosticsReport) -> None:
     ws.cell(row=1, column=1, value="Response propensities: R-indicator and partial indicators").font = _TITLE
-    overall = pd.DataFrame([{"response": r.target, "n": r.n, "responded": r.n_responded,
+    overall = pd.DataFrame([{"response": r.target, "n": r.n, "left_out": r.n_left_out, "responded": r.n_responded,
                              "response_rate": r.response_rate, "sd_propensity": r.sd_propensity,
                              "r_indicator": r.r_indicator, "max_abs_bias": r.max_abs_bias,
                              "model_std_errors": r.model_se,
                              "notes": " ".join(r.notes)} for r in rep.r_indicators],
-                           columns=["response", "n", "responded", "response_rate", "sd_propensity",
+                           columns=["response", "n", "left_out", "responded", "response_rate", "sd_propensity",
                                     "r_indicator", "max_abs_bias", "model_std_errors", "notes"])
     ws.cell(row=2, column=1, value="max_abs_bias: upper bound (1 − R)/(2ρ̄) on the absolute standardized bias of a "
                                    "respondent mean. Category values < 0: under-represented among respondents.")

@@ -78,7 +78,8 @@ def predictor_matrix(data: pd.DataFrame, status: pd.DataFrame, q: Questionnaire,
             continue
         col = data[name]
         if pd.api.types.is_numeric_dtype(col):
-            x = col.to_numpy(dtype=np.float64, na_value=np.nan)
+            # a copy: under copy-on-write the array pandas returns may be a read-only view of the data
+            x = col.to_numpy(dtype=np.float64, na_value=np.nan, copy=True)
             bad = np.isnan(x)
             x[bad] = np.nanmean(x) if (~bad).any() else 0.0
             parts.append(x[:, None])

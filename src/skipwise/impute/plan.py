@@ -12,8 +12,9 @@ from typing import Any, Iterable
 
 from skipwise.classify import statuses as S
 from skipwise.errors import Category, Problem, ProblemCode, ProblemList, SkipwiseError, did_you_mean
+from skipwise.impute.fit import method_misfit
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
-from skipwise.questionnaire.model import ItemType, Questionnaire
+from skipwise.questionnaire.model import Questionnaire
 from skipwise.questionnaire.yamlread import LineDict, load_yaml_text, read_text_file
 
 __all__ = ["ImputePlan", "OutputSpec", "load_plan", "check_plan", "TOP_KEYS", "RULE_KEYS", "OUTPUT_KEYS"]
@@ -24,8 +25,6 @@ RULE_KEYS = ("method", "classes", "covariates", "donors", "max_donor_use", "weig
 OUTPUT_KEYS = ("form", "imputation_column", "flag_suffix")
 FORMS = ("files", "stacked")
 SKIP_FILLS = ("auto", "blank", "code")
-NUMERIC_ONLY = ("regression", "mean", "median")
-CATEGORICAL_ONLY = ("logistic", "multinomial")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -217,22 +216,9 @@ def check_plan(plan: ImputePlan, q: Questionnaire, columns: Iterable[str]) -> No
                 unknown(var, items + columns, "class, covariate or weight column", *path)
         targets = [name] if name is not None else [t for t in spec.targets(q) if t not in spec.items]
         for t in targets:
-            it = q.item(t)
-            bad = None
-            if it.type is ItemType.MULTI:
-                bad = "check-all-that-apply sets are not imputed; list the set under exclude"
-            elif it.type in (ItemType.TEXT, ItemType.DATE) and rule.method not in ("hotdeck", "nearest", "mode"):
-                bad = f"a {it.type.value} item can only be filled by hotdeck, nearest or mode"
-            elif it.type is ItemType.CATEGORICAL and rule.method in NUMERIC_ONLY:
-                bad = f"method '{rule.method}' needs a numeric item; '{t}' is categorical"
-            elif it.type is not ItemType.CATEGORICAL and rule.method in CATEGORICAL_ONLY:
-                bad = f"method '{rule.method}' needs a categorical item; '{t}' is {it.type.value}"
-            elif (rule.method == "pmm" and it.values
-                  and any(isinstance(k, str) for k in it.values)):
-                bad = f"pmm needs numeric codes; '{t}' has text values (use hotdeck or auto)"
-            elif rule.method == "logistic" and it.values is not None and len(it.values) != 2:
-                bad = f"logistic needs a two-value item; '{t}' has {len(it.values)} values (use multinomial)"
+            bad = method_misfit(q.item(t), rule.method)
             if bad:
                 pl.add(ProblemCode.TYPE_CLASH, bad, line=plan.line(*path), item=t,
-                       hint="give the item its own method under items:")
+                       hint="give the item its own method under items:" if name is None
+                       else "choose one of the methods that fit")
     pl.raise_if_any(headline=f"{len(pl)} problem(s) in imputation plan {plan.file or ''}".strip())

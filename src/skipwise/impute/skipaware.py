@@ -50,7 +50,9 @@ import pandas as pd
 
 from skipwise.classify import classify
 from skipwise.classify import statuses as S
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.impute.chained import spawn_generators
+from skipwise.impute.fit import method_misfit
 from skipwise.impute.skipdraw import draw_item, skip_code
 from skipwise.impute.result import MNAR_CAUTION
 from skipwise.questionnaire.model import ItemType, Questionnaire
@@ -135,7 +137,7 @@ class SkipAwareResult:
     status_after
         Per dataset, the statuses of the completed data.
     table
-        One row per imputed item: method, cells to fill at the start, filled
+        One row per imputed item: method, rule (``items`` or ``plan default``), cells to fill at the start, filled
         (mean over datasets), routed out, left unfilled, faults left as they are.
     """
 
@@ -198,30 +200,46 @@ def impute_skipaware(data: pd.DataFrame, q: Questionnaire, spec: SkipAwareSpec |
     """
     spec = spec or SkipAwareSpec()
     targets = spec.targets(q)
+    misfits = [Problem(code=ProblemCode.TYPE_CLASH, category=Category.USAGE, item=t, message=bad,
+                       hint="give the item its own method" if t not in spec.items else "choose a method that fits")
+               for t in targets if (bad := method_misfit(q.item(t), spec.rule_for(t).method))]
+    if misfits:
+        raise SkipwiseError(misfits)
     eligible = tuple(s for s in spec.eligible(q) if s not in NEVER_IMPUTED)
     cls0 = classify(data, q)
     status0 = cls0.status
     gates = _gates(q)
     fill_codes = {name: skip_code(data, status0, q, name, spec.skip_fill) for name in targets}
+    # items not imputed themselves (sets, text, items outside `only`) that an imputed gate may open
+    carried = tuple(it.name for it in q.items if it.name not in targets and it.name not in spec.exclude
+                    and bool((status0[it.name] == S.GATE_UNKNOWN).any()))
     results, notes = [], []
     for rng in spawn_generators(spec.seed, spec.m):
-        results.append(_complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng, notes))
+        results.append(_complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng, notes,
+                                 carried))
         if progress is not None:
             progress(1)
     datasets = tuple(r[0] for r in results)
-    imputed = tuple(r[1] for r in results)
-    routed = tuple(r[2] for r in results)
+    # flag columns: every target, and each carried item some completed dataset filled
+    keep = [*targets, *(c for c in carried if any(bool(r[1][c].any()) for r in results))]
+    imputed = tuple(r[1][keep] for r in results)
+    routed = tuple(r[2][keep] for r in results)
     after = tuple(r[3] for r in results)
     start = status0[list(targets)].isin(eligible)
     faults = status0[list(targets)].isin(S.FAULT_STATUSES)
+    tl = list(targets)
     table = pd.DataFrame({
         "method": [_method_name(spec, q, t) for t in targets],
         "to_fill": start.sum().to_numpy(),
-        "imputed": np.mean([i.sum().to_numpy() for i in imputed], axis=0) if imputed else 0,
-        "routed_out": np.mean([r.sum().to_numpy() for r in routed], axis=0) if routed else 0,
+        "imputed": np.mean([i[tl].sum().to_numpy() for i in imputed], axis=0) if imputed else 0,
+        "routed_out": np.mean([r[tl].sum().to_numpy() for r in routed], axis=0) if routed else 0,
         "left_unfilled": np.mean([a[list(targets)].isin(eligible).sum().to_numpy() for a in after], axis=0),
         "faults_left": faults.sum().to_numpy(),
     }, index=list(targets))
+    table.insert(1, "rule", ["items" if t in spec.items else "plan default" for t in targets])
+    # a categorical item on the plan default is easy to overlook: say which method filled it
+    notes = [f"{t}: categorical item filled by the plan default ({table.loc[t, 'method']})" for t in targets
+             if t not in spec.items and q.item(t).type is ItemType.CATEGORICAL and int(start[t].sum())] + notes
     notes = list(dict.fromkeys(notes))
     return SkipAwareResult(datasets=datasets, imputed=imputed, routed_out=routed, status=status0,
                            status_after=after, table=table, statuses=eligible, seed=spec.seed,
@@ -247,14 +265,24 @@ def _faults(status: pd.DataFrame) -> np.ndarray:
     return status.isin(S.FAULT_STATUSES).to_numpy()
 
 
-def _complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng, notes):
+def _complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng, notes, carried=()):
     work = data.copy()
     n = len(data)
     imputed = np.zeros((n, len(targets)), dtype=bool)
+    opened = np.zeros((n, len(carried)), dtype=bool)
     status, dirty = status0, False
-    for t, name in enumerate(targets):
+    order = [it.name for it in q.items if it.name in targets or it.name in carried]
+    for name in order:
         if dirty:
             status, dirty = classify(work, q).status, False
+        if name in carried:
+            j = carried.index(name)
+            rows = np.flatnonzero((status[name].isin(eligible) & (status0[name] == S.GATE_UNKNOWN)).to_numpy())
+            if rows.size and _carry(work, q, status, name, rows, rng, notes, spec.max_redraws):
+                opened[rows, j] = work[list(q.item(name).columns)].iloc[rows].notna().any(axis=1).to_numpy()
+                dirty = True
+            continue
+        t = targets.index(name)
         rows = np.flatnonzero(status[name].isin(eligible).to_numpy())
         if rows.size == 0:
             continue
@@ -285,8 +313,44 @@ def _complete(data, q, spec, targets, eligible, status0, gates, fill_codes, rng,
     else:
         final = classify(work, q).status
     idx = data.index
-    return (work, pd.DataFrame(imputed, index=idx, columns=tgt),
-            pd.DataFrame(routed, index=idx, columns=tgt), final)
+    flags = pd.DataFrame(np.hstack([imputed, opened]), index=idx, columns=[*tgt, *carried])
+    out = pd.DataFrame(np.hstack([routed, np.zeros_like(opened)]), index=idx, columns=[*tgt, *carried])
+    return work, flags, out, final
+
+
+def _carry(work, q, status, name, rows, rng, notes, max_redraws: int) -> bool:
+    """Fill the cells of a non-imputed item that an imputed gate opened, from one random donor each.
+
+    A gate filled with a value that opens an item the plan does not impute (a check-all-that-apply
+    set, a text item) would leave the completed file with item nonresponse that the input did not
+    have.  Each such case takes the whole item (every option column of a set) from one case that
+    answered it: a random hot-deck of the block, which keeps a set's options together (Andridge &
+    Little, 2010, *International Statistical Review* 78(1), 40-64, on hot-deck donors).
+    """
+    donors = np.flatnonzero((status[name] == S.ANSWERED).to_numpy())
+    if donors.size == 0:
+        notes.append(f"{name}: {rows.size:,} cell(s) opened by imputed gates stay blank: no case answered it")
+        return False
+    cols = list(q.item(name).columns)
+    stored = {c: work[c].to_numpy()[rows] for c in cols}
+    before = _faults(status.iloc[rows])
+    pending = np.arange(rows.size)
+    for _ in range(max(max_redraws, 1)):
+        pick = donors[rng.integers(0, donors.size, pending.size)]
+        for col in cols:
+            _put(work, col, rows[pending], work[col].to_numpy()[pick])
+        # a donor's answer must not contradict the case's later answers (as for imputed gates)
+        bad = (_faults(classify(work.iloc[rows[pending]], q).status) & ~before[pending]).any(axis=1)
+        pending = pending[bad]
+        if not pending.size:
+            break
+    if pending.size:
+        for col in cols:
+            _put(work, col, rows[pending], stored[col][pending])
+        notes.append(f"{name}: {pending.size:,} cell(s) opened by imputed gates left as they are: no donor's "
+                     "answer fits the case's later answers")
+    notes.append(f"{name}: opened by an imputed gate in some cases; filled from a random donor that answered it")
+    return pending.size < rows.size
 
 
 def _put(work: pd.DataFrame, name: str, rows: np.ndarray, values: np.ndarray) -> None:

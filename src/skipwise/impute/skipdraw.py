@@ -96,7 +96,7 @@ def _hotdeck(work, status, q, name, rule, rows, donors, method, rng):
     res = hotdeck(pd.DataFrame(frame), ["__y"], classes=[f"c:{c}" for c in classes], covariates=covs,
                   weights=weights, k=rule.donors if method == "nearest" else 1,
                   max_donor_use=rule.max_donor_use, seed=rng)
-    vals = res.data["__y"].to_numpy(dtype=object)[donors.size:]
+    vals = res.data["__y"].to_numpy(dtype=object, copy=True)[donors.size:]
     note = "; ".join(c.text().split(": ", 1)[1] for c in res.collapses) or None
     if res.unfilled["__y"]:
         # A donor limit can exhaust every donor: the rest get unrestricted draws from all donors.
@@ -121,7 +121,7 @@ def _single_value(work, status, q, name, rule, rows, donors, yv, method):
         return np.full(rows.size, overall, dtype=object)
     by = obs.groupby(keys, dropna=False).agg(stat)
     rec_keys = pd.MultiIndex.from_arrays([a[rows] for a in arrays])
-    vals = by.reindex(rec_keys if len(keys) > 1 else rec_keys.get_level_values(0)).to_numpy(dtype=object)
+    vals = by.reindex(rec_keys if len(keys) > 1 else rec_keys.get_level_values(0)).to_numpy(dtype=object, copy=True)
     vals[pd.isna(vals)] = overall
     return vals
 

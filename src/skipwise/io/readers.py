@@ -17,6 +17,7 @@ import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.io.meta import SurveyMeta, normalize_value, set_meta
+from skipwise.publish import clean_message
 
 __all__ = ["read_survey", "SUPPORTED_EXTENSIONS", "READ_ONLY_FORMATS", "format_of", "output_format_of",
            "META_KEY", "MIXED_KEY", "SAS_OUTPUT_REASON"]
@@ -38,7 +39,10 @@ META_KEY = b"skipwise.meta"
 MIXED_KEY = b"skipwise.mixed"
 
 _EXT_MISSING = r"\.[a-zA-Z_]"  # Stata .a-.z, SAS .A-.Z and ._
-_ENCODING_HINT = "pass the file's encoding, e.g. encoding='latin-1' or encoding='cp1252'"
+# The commands have no encoding option: the hint says what to do with the file; the library's
+# read_survey(encoding=...) is named as such, not as a command argument.
+_ENCODING_HINT = ("save or export the file as UTF-8 text, then run the command again (from Python, "
+                  "skipwise.io.read_survey(path, encoding='cp1252') reads other encodings)")
 
 
 def format_of(path: str | Path) -> str:
@@ -121,7 +125,7 @@ def _read_readstat(path: Path, fmt: str, encoding: str | None, columns: list[str
         df, m = reader(str(path), user_missing=True, apply_value_formats=False,
                        dates_as_pandas_datetime=True, encoding=encoding, usecols=columns)
     except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, OSError, ValueError, OverflowError) as exc:
-        text = str(exc)
+        text = clean_message(exc)
         if "encod" in text.lower() or isinstance(exc, UnicodeError):
             raise _unreadable(path, f"text in the file cannot be decoded ({text})", _ENCODING_HINT) from None
         kind = "Stata" if fmt == "dta" else "SPSS"
@@ -180,6 +184,9 @@ def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | N
         _check_columns(path, columns, header)
         df = pd.read_csv(path, usecols=columns, **opts)
     except UnicodeDecodeError as exc:
+        if exc.object[:2] in (b"\xff\xfe", b"\xfe\xff"):
+            raise _unreadable(path, "the file is UTF-16 text (it starts with a UTF-16 byte-order mark); "
+                                    "skipwise reads CSV files as UTF-8", _ENCODING_HINT) from None
         raise _unreadable(path, f"the file is not valid {encoding or 'utf-8'} text ({exc.reason} "
                                 f"at byte value 0x{exc.object[exc.start]:02x})", _ENCODING_HINT) from None
     except LookupError:
@@ -187,7 +194,7 @@ def _read_csv(path: Path, fmt: str, encoding: str | None, columns: list[str] | N
     except pd.errors.EmptyDataError:
         raise _unreadable(path, "the file is empty (no header row)", "export the data with a header row") from None
     except (pd.errors.ParserError, ValueError, OSError) as exc:
-        raise _unreadable(path, f"not a readable CSV file ({' '.join(str(exc).split())})") from None
+        raise _unreadable(path, f"not a readable CSV file ({clean_message(exc)})") from None
     if columns is not None:
         df = df[list(columns)]
     return set_meta(df, SurveyMeta(source_format=fmt, encoding=encoding or "utf-8"))
@@ -197,13 +204,49 @@ def _read_xlsx(path: Path, fmt: str, encoding: str | None, columns: list[str] | 
     try:
         df = pd.read_excel(path, sheet_name=0, engine="openpyxl", keep_default_na=False, na_values=[""])
     except Exception as exc:  # openpyxl raises zip, XML and key errors for damaged workbooks
-        raise _unreadable(path, f"not a readable Excel workbook ({type(exc).__name__}: {exc})",
+        raise _unreadable(path, f"not a readable Excel workbook ({type(exc).__name__}: {clean_message(exc)})",
                           "open and re-save it as .xlsx in a spreadsheet program") from None
     df.columns = [str(c) for c in df.columns]
     _check_columns(path, columns, list(df.columns))
+    _note_uncached_formulas(path, df)
     if columns is not None:
         df = df[list(columns)]
     return set_meta(df, SurveyMeta(source_format=fmt))
+
+
+class ReadNote(UserWarning):
+    """Something about an input file the user should know (shown as a note; the read goes on)."""
+
+
+def _note_uncached_formulas(path: Path, df: pd.DataFrame) -> None:
+    """Warn about formula cells without a stored result: they read as empty cells.
+
+    A workbook saved by a program that does not compute formulas (e.g. one written by a
+    script) holds the formula but no cached value, so the cell would silently count as
+    item_missing.  The first sheet's XML is scanned only when it holds a formula at all.
+    """
+    import re
+    import warnings
+    import zipfile
+
+    try:
+        with zipfile.ZipFile(path) as z:
+            sheets = sorted(n for n in z.namelist() if re.fullmatch(r"xl/worksheets/sheet\d+\.xml", n))
+            xml = z.read(sheets[0]).decode("utf-8", "replace") if sheets else ""
+    except (OSError, zipfile.BadZipFile, KeyError):
+        return
+    if "<f" not in xml:
+        return
+    cells = re.findall(r'<c r="([A-Z]+)(\d+)"[^>]*?(?:/>|>(.*?)</c>)', xml, flags=re.S)
+    empty = [(col, row) for col, row, body in cells if re.search(r"<f[ >/]", body) and "<v>" not in body
+             and "<v/>" not in body and "<is>" not in body]
+    if not empty:
+        return
+    columns = sorted({col for col, _ in empty}, key=lambda c: (len(c), c))
+    shown = ", ".join(f"{c}{r}" for c, r in empty[:5]) + (f" and {len(empty) - 5:,} more" if len(empty) > 5 else "")
+    warnings.warn(f"{path}: {len(empty):,} formula cell(s) hold no computed value ({shown}; sheet columns "
+                  f"{', '.join(columns[:10])}) and are read as empty (item_missing): open the workbook in a "
+                  f"spreadsheet program, let it calculate and save it, or export the values", ReadNote, stacklevel=3)
 
 
 def _restore_mixed(df: pd.DataFrame, cols: list[str]) -> None:
@@ -226,8 +269,13 @@ def _read_parquet(path: Path, fmt: str, encoding: str | None, columns: list[str]
         _check_columns(path, columns, list(schema.names))
         table = pq.read_table(path, columns=columns)
     except (pyarrow.ArrowException, OSError) as exc:
-        raise _unreadable(path, f"not a readable Parquet file ({exc})",
+        raise _unreadable(path, f"not a readable Parquet file ({clean_message(exc)})",
                           "check the file was copied completely") from None
+    return parquet_frame(table, path, fmt)
+
+
+def parquet_frame(table, path: Path, fmt: str = "parquet") -> pd.DataFrame:
+    """A Parquet table (a whole file or some of its row groups) as read_survey returns it, metadata restored."""
     raw = table.schema.metadata or {}
     meta = SurveyMeta()
     if META_KEY in raw:

@@ -12,6 +12,8 @@ this module checks the target and dispatches.
 
 from __future__ import annotations
 
+import errno
+import os
 import warnings
 from pathlib import Path
 from typing import Callable
@@ -22,6 +24,7 @@ from skipwise.errors import ProblemCode, SkipwiseError
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.io.meta import SurveyMeta, get_meta
 from skipwise.io.readers import output_format_of
+from skipwise.publish import clean_message, os_error_problem, user_path
 from skipwise.io.writers_common import Job, MetadataWarning, drain_notes, problem
 from skipwise.io.writers_plain import prepare_csv as _prepare_csv
 from skipwise.io.writers_plain import prepare_parquet as _prepare_parquet
@@ -99,15 +102,35 @@ def write_survey(df: pd.DataFrame, path: str | Path, meta: SurveyMeta | None = N
     finally:
         notes = drain_notes()
     if notes:  # one warning per file, however many variables were adapted
-        warnings.warn(f"{path}: " + "; ".join(notes), MetadataWarning, stacklevel=2)
+        warnings.warn(f"{user_path(path)}: " + "; ".join(notes), MetadataWarning, stacklevel=2)
     try:
         with atomic_output(path, overwrite=overwrite) as tmp:
-            job(tmp)
+            try:
+                job(tmp)
+            except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError):
+                _refuse_full_disk(tmp, 1 << 20)  # readstat reports a failed write without its cause
+                raise
+            if fmt in ("sav", "zsav", "dta"):
+                _refuse_full_disk(tmp, 1)  # ... or not at all: a full disk after the write means a cut file
     except (pyreadstat.ReadstatError, pyreadstat.PyreadstatError, ValueError, TypeError, OverflowError) as exc:
-        raise SkipwiseError(problem(path, f"could not write the file ({type(exc).__name__}: {exc})",
+        raise SkipwiseError(problem(path, f"could not write the file ({type(exc).__name__}: {clean_message(exc)})",
                                     hint="check column types and metadata")) from None
     except OSError as exc:
-        raise SkipwiseError(problem(path, f"could not write the file ({exc.strerror or exc})",
-                                    code=ProblemCode.FILE_UNREADABLE,
-                                    hint="check the folder exists and is writable")) from None
+        raise SkipwiseError(os_error_problem(exc, path=path)) from None
     return path
+
+
+def _free_bytes(folder: Path) -> int:
+    st = os.statvfs(folder)
+    return st.f_bavail * st.f_frsize
+
+
+def _refuse_full_disk(tmp: Path, below: int) -> None:
+    """Raise ENOSPC (shown as "the disk is full" for the user's file) when less than ``below``
+    bytes are left where ``tmp`` is being written."""
+    try:
+        free = _free_bytes(tmp.parent)
+    except OSError:
+        return
+    if free < below:
+        raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(tmp))

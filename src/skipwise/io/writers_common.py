@@ -47,7 +47,10 @@ class MetadataWarning(UserWarning):
 
 def problem(path: Path, message: str, *, item: str | None = None, hint: str | None = None,
             code: ProblemCode = ProblemCode.BAD_DATA) -> Problem:
-    return Problem(code=code, category=Category.DATA, file=str(path), item=item, message=message, hint=hint)
+    from skipwise.publish import user_path
+
+    # ``path`` may be the publisher's hidden temporary file: the message names the user's output
+    return Problem(code=code, category=Category.DATA, file=user_path(path), item=item, message=message, hint=hint)
 
 
 def check_names(df: pd.DataFrame, path: Path, fmt: str) -> list[Problem]:
@@ -196,8 +199,40 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                 s = (s - _STATA_EPOCH) / unit
                 out.stata_formats[col] = "%td" if kind == "date" else "%tc"
         out.kinds[col] = kind
+        if kind == "text":
+            _refuse_nul(s, str(col), path, problems)
         out.frame[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s
+    _refuse_nul_labels(meta, [str(c) for c in df.columns], path, problems)
     return out
+
+
+_NUL_HINT = ("SPSS and Stata files end a text at a NUL character, so the rest would be lost without "
+             "a word: remove the NUL characters (usually damage from a conversion) before writing")
+
+
+def _refuse_nul(s: pd.Series, col: str, path: Path, problems: list[Problem]) -> None:
+    """A text cell holding NUL (U+0000) is refused, naming the column and the first rows: the
+    format would cut the text there silently, and changing respondents' answers is not ours."""
+    rows = np.flatnonzero(s.str.contains("\x00", regex=False, na=False).to_numpy(dtype=bool))
+    if len(rows):
+        where = ", ".join(str(r + 1) for r in rows[:5]) + (f" and {len(rows) - 5:,} more" if len(rows) > 5 else "")
+        problems.append(problem(path, f"text holds a NUL character in {len(rows):,} row(s) (data row {where})",
+                                item=col, hint=_NUL_HINT))
+
+
+def _refuse_nul_labels(meta: SurveyMeta, columns: list[str], path: Path, problems: list[Problem]) -> None:
+    texts = [(c, meta.column_labels.get(c)) for c in columns]
+    texts += [(c, str(lab)) for c in columns for lab in (meta.value_labels.get(c) or {}).values()]
+    texts += [(None, meta.file_label)]
+    for col, text in texts:
+        if isinstance(text, str) and "\x00" in text:
+            problems.append(problem(path, f"a label holds a NUL character ({clean_label(text)!r})", item=col,
+                                    hint=_NUL_HINT))
+
+
+def clean_label(text: str, limit: int = 60) -> str:
+    shown = text.replace("\x00", "\\0")
+    return shown if len(shown) <= limit else shown[:limit] + "..."
 
 
 def _all_letters(s: pd.Series) -> bool:

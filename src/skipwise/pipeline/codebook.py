@@ -35,7 +35,7 @@ def package_input(st, frame: pd.DataFrame, meta: SurveyMeta, data_name: str | No
                   weight_name: str | None) -> CodebookInput:
     """What the package's codebooks (md, html, DDI) describe: the final data file, rates weighted by the final weight."""
     res = st.weigh
-    min_base = getattr(st.plan.report, "min_base", None) if st.plan.report is not None else None
+    min_base = st.plan.min_base
     return codebook_input(frame, st.q, meta=meta, file_name=data_name or st.plan.data.name, classification=st.cl,
                           weight_prefix=res.plan.prefix if res is not None else None, weight=weight_name,
                           weight_labels=weight_labels(res) if res is not None else None,
@@ -153,7 +153,7 @@ def _impute_blocks(st) -> list[Block]:
                                            if out.form == "stacked" else " (one file per imputation)"),
              "Analyse the completed files with Rubin's rules."]
     t = res.table
-    rows = [[f"`{i}`", r.method, _fmt(r.to_fill), _fmt(r.imputed), _fmt(r.routed_out), f"`{i}{out.flag_suffix}`"]
+    rows = [[f"`{i}`", r.method + (" (plan default)" if getattr(r, "rule", "") == "plan default" else ""), _fmt(r.to_fill), _fmt(r.imputed), _fmt(r.routed_out), f"`{i}{out.flag_suffix}`"]
             for i, r in zip(t.index, t.itertuples())]
     return [("h", 2, "Imputation"), ("p", f"Made by the imputation plan `{_name(plan.file)}`:"), ("ul", lines),
             ("table", ["item", "method", "cells to fill", "imputed (mean over M)", "routed out", "flag column"], rows),

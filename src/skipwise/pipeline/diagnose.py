@@ -40,7 +40,7 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
     """
     from skipwise.diagnostics import SuggestionThresholds
     from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
-    from skipwise.diagnostics.survey import survey_inputs
+    from skipwise.diagnostics.survey import check_unit_auxiliaries, survey_inputs
     from skipwise.diagnostics.workbook import write_diagnostics_workbook
 
     o: DiagnoseOptionsSpec = plan.diagnose  # type: ignore[assignment]
@@ -54,7 +54,14 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
                 + _unknown([o.response] if o.response else [], columns, "response: not a column of the data", plan,
                            "response")
                 + _unknown(list(o.aux or ()), columns + items, "auxiliary is neither a data column nor an item",
-                           plan, "aux"))
+                           plan, "aux")
+                + _unknown(list(o.add_aux or ()), columns + items, "auxiliary is neither a data column nor an item",
+                           plan, "add_aux"))
+    if o.aux is not None and o.add_aux:
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file),
+                                line=plan.line("diagnose", "add_aux"),
+                                message="'add_aux' adds to the default auxiliaries; with 'aux' there are none",
+                                hint="list every auxiliary under 'aux', or use 'add_aux' alone"))
     if o.threshold is not None and o.sensitivity is None:
         problems.append(Problem(code=ProblemCode.MISSING_KEY, category=Category.USAGE, file=str(plan.file),
                                 line=plan.line("diagnose", "threshold"), message="'threshold' needs 'sensitivity'",
@@ -70,12 +77,15 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
         resp_ind = col.astype(str).str.strip().isin(wanted) | nums.isin(
             pd.to_numeric(pd.Series(wanted), errors="coerce").dropna())
         rows = resp_ind
+        if o.aux:
+            check_unit_auxiliaries(data, q, list(o.aux), resp_ind)
         reporter.info(f"unit respondents: {int(rows.sum()):,} of {len(rows):,}")
     inputs = survey_inputs(data, q, classification=cl, items=o.items, aux=o.aux, little_items=o.little_items,
-                           rows=rows, exclude=[c for c in (o.weight, o.response) if c])
+                           rows=rows, exclude=[c for c in (o.weight, o.response) if c], add_aux=o.add_aux)
+    reporter.info("auxiliaries: " + ", ".join(map(str, inputs.aux.columns)))
     if inputs.aux_left_out:
         reporter.info("not used as auxiliaries: " + ", ".join(inputs.aux_left_out)
-                      + " (name them in diagnose.aux to use them)")
+                      + " (add them with diagnose.add_aux to use them)")
     mf, aux = inputs.mframe, inputs.aux
     weights = None
     if o.weight:

@@ -22,8 +22,8 @@ __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "
            "loads_run_plan", "TOP_KEYS", "PLAN_FORMAT", "FORMATS"]
 
 PLAN_FORMAT = 1
-TOP_KEYS = ("format", "data", "questionnaire", "check", "report", "diagnose", "weighting", "imputation", "output",
-            "study")
+TOP_KEYS = ("format", "data", "questionnaire", "min_base", "check", "report", "diagnose", "weighting",
+            "imputation", "output", "study")
 #: Output formats of the final data file; ``input`` is the data file's own format.
 FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 
@@ -32,7 +32,7 @@ FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 CHECK_KEYS = {"stop_on_error": "bool", "top": "int"}
 REPORT_KEYS = {"weight": "str", "by": "names", "case_ids": "bool", "top_items": "int", "top_patterns": "int",
                "fault_rows": "int"}
-DIAGNOSE_KEYS = {"items": "names", "aux": "names", "categorical": "names", "little_items": "names",
+DIAGNOSE_KEYS = {"items": "names", "aux": "names", "add_aux": "names", "categorical": "names", "little_items": "names",
                  "weight": "str", "response": "str", "responded": "values", "sensitivity": "str",
                  "threshold": "float", "deltas": "floats", "alpha": "float", "adjust": "str", "low_rate": "float",
                  "high_rate": "float", "auc_weak": "float", "auc_strong": "float"}
@@ -61,6 +61,7 @@ class DiagnoseOptionsSpec:
 
     items: tuple[str, ...] | None = None
     aux: tuple[str, ...] | None = None
+    add_aux: tuple[str, ...] | None = None
     categorical: tuple[str, ...] | None = None
     little_items: tuple[str, ...] | None = None
     weight: str | None = None
@@ -103,6 +104,7 @@ class RunPlan:
     weighting_plan: Path | None = None
     weighting_data: Path | None = None
     imputation_plan: Path | None = None
+    min_base: int = 30   # minimum unweighted D for a rate to be ranked (common practice, no source)
     study: Mapping[str, str] = field(default_factory=dict)   # overrides the questionnaire's study block key by key
     lines: Mapping[tuple, int] = field(default_factory=dict)
 
@@ -136,7 +138,7 @@ class RunPlan:
 
         return {
             "format": PLAN_FORMAT, "file": str(self.file), "data": str(self.data),
-            "questionnaire": str(self.questionnaire),
+            "questionnaire": str(self.questionnaire), "min_base": self.min_base,
             "check": {"stop_on_error": self.stop_on_check_error, "top": self.check_top},
             "report": plain(self.report) if self.report is not None else False,
             "diagnose": plain(self.diagnose) if self.diagnose is not None else False,
@@ -281,6 +283,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
               f"use one of {', '.join(SUPPORTED_EXTENSIONS)}")
     questionnaire = r.need_file(doc, "questionnaire", "the questionnaire file", "e.g. questionnaire: survey.yaml")
 
+    min_base = r.values(doc, {"min_base": "int"}, "").get("min_base", 30)
     check = r.values(r.section(doc, "check", CHECK_KEYS), CHECK_KEYS, "check")
     report_on, report = r.switchable(doc, "report", REPORT_KEYS)
     diagnose_on, diagnose = r.switchable(doc, "diagnose", DIAGNOSE_KEYS)
@@ -335,7 +338,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         report=ReportOptions(**report) if report_on else None,
         diagnose=DiagnoseOptionsSpec(**diagnose) if diagnose_on else None,
         weighting_plan=weighting.get("plan"), weighting_data=weighting.get("data"),
-        imputation_plan=imputation.get("plan"), study=study, lines=dict(r.lines),
+        imputation_plan=imputation.get("plan"), min_base=min_base, study=study, lines=dict(r.lines),
     )
 
 

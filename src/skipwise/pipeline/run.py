@@ -1,8 +1,11 @@
 """``skipwise run``: the whole pipeline from one run plan, into one hand-over package.
 
-Order: load the definitions (questionnaire, weighting and imputation plans),
-check every output path, then read, check, classify, report, diagnose, weigh,
-impute and export.  Every file is first written into a hidden staging folder
+Order: load the definitions (questionnaire, weighting and imputation plans) and
+check that every column the weighting plan needs is in the data or the weighting
+file, check every output path, then read, check, classify, join the interview
+answers to the sample file, weigh, report, diagnose, impute and export.
+Weighting comes before the report and the diagnostics so both can use the final
+weight.  Every file is first written into a hidden staging folder
 beside the package folder, under the package's lock; only when every step has
 succeeded is the staging folder swapped in for the package
 (:class:`skipwise.publish.PackagePublisher`), so a failed, interrupted or
@@ -33,9 +36,10 @@ STEPS: dict[str, str] = {
     "read": "read the data",
     "check": "check the questionnaire against the data",
     "classify": "give every cell its status",
+    "join": "join the interview answers to the sample file by case id",
+    "weigh": "compute outcome rates and weights",
     "report": "write the item nonresponse workbook",
     "diagnose": "diagnose the missingness mechanism",
-    "weigh": "compute outcome rates and weights",
     "impute": "impute in-universe item nonresponse",
     "export": "write the final data files and the codebook",
 }
@@ -179,6 +183,19 @@ def _load_definitions(plan: RunPlan, st: S.RunState) -> None:
         raise SkipwiseError(errors)
 
 
+def _check_weighting_columns(plan: RunPlan, st: S.RunState) -> None:
+    """Every column the weighting plan needs is in the data or the weighting file (names only are read)."""
+    if st.weighting_plan is None:
+        return
+    from skipwise.pipeline.join import check_weighting_columns, column_names
+
+    data_cols = column_names(plan.data)
+    weighting_cols = column_names(plan.weighting_data) if plan.weighting_data is not None else None
+    check_weighting_columns(st.weighting_plan, data_cols, weighting_cols,
+                            case_id=st.weighting_plan.case_id or st.q.case_id, data_file=plan.data,
+                            weighting_file=plan.weighting_data)
+
+
 def _weighting_loader(path: Path):
     from skipwise.weighting.plan import load_plan
 
@@ -225,6 +242,7 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
     reporter.step("plan", STEPS["plan"])
     try:
         _load_definitions(plan, st)
+        _check_weighting_columns(plan, st)
     except SkipwiseError as err:
         raise StepFailed("plan", err) from None
     inputs = [("run_plan", plan.file), ("data", plan.data), ("questionnaire", plan.questionnaire),
@@ -265,9 +283,10 @@ def _steps(st: S.RunState, reporter: Reporter, records: list[StepRecord]) -> Non
     plan = st.plan
     todo: list[tuple[str, Callable | None]] = [
         ("read", S.read_step), ("check", S.check_step), ("classify", S.classify_step),
+        ("join", S.join_step if st.weighting_plan is not None else None),
+        ("weigh", S.weigh_step if st.weighting_plan is not None else None),
         ("report", S.report_step if plan.report is not None else None),
         ("diagnose", _diagnose if plan.diagnose is not None else None),
-        ("weigh", S.weigh_step if st.weighting_plan is not None else None),
         ("impute", S.impute_step if st.imputation_plan is not None else None),
         ("export", _export),
     ]
@@ -302,12 +321,9 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
             if form == "columns" and frame is None:
                 frame, meta, data_name = out, out_meta, st.targets[role].name
             reporter.info(f"wrote {st.targets[role].name}")
-    weight = weight_name = None
-    if st.weigh is not None:
-        weight_name = f"{st.weighting_plan.prefix}final"
-        weight = S.nan_to_zero(st.weights[weight_name])
-    elif st.plan.report is not None and st.plan.report.weight:
-        weight_name = st.plan.report.weight
+    # The codebook's weighted rates use the report's weight, so the two show the same numbers.
+    weight_name, weight = S.report_weight(st)
+    if weight_name is not None and weight is None:
         weight = S.nan_to_zero(st.data[weight_name])
     files = [(st.targets[r].name, _describe(r)) for r in st.targets]
     from skipwise.ddi import ddi_bytes

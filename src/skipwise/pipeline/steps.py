@@ -16,14 +16,14 @@ from typing import Any, Callable
 import numpy as np
 import pandas as pd
 
-from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.io import SurveyMeta, get_meta
 from skipwise.pipeline.plan import RunPlan
 from skipwise.pipeline.reporting import Reporter, SilentReporter, classify_progress
 
 __all__ = ["RunState", "weigh_with_progress", "weight_meta", "weight_labels", "imputation_paths",
-           "imputed_frames", "imputation_meta", "read_step", "check_step", "classify_step", "report_step",
-           "weigh_step", "impute_step", "final_frame", "write_data"]
+           "imputed_frames", "imputation_meta", "read_step", "check_step", "classify_step", "join_step", "report_step",
+           "weigh_step", "report_weight", "impute_step", "final_frame", "write_data"]
 
 
 @dataclass
@@ -37,6 +37,8 @@ class RunState:
     imputation_plan: Any = None           # ImputePlan
     data: pd.DataFrame | None = None
     weighting_data: pd.DataFrame | None = None
+    joined: pd.DataFrame | None = None    # the frame weighting runs on (sample file + joined answers)
+    joined_columns: list[str] = field(default_factory=list)
     check: Any = None                     # DataCheck
     cl: Any = None                        # Classification
     weights: pd.DataFrame | None = None   # weight columns aligned with ``data`` (NaN: not in the weighting file)
@@ -183,13 +185,67 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
     reporter.info(f"{len(st.cl.faults):,} routing faults (the fault list names case ids)")
 
 
+def report_weight(st: RunState) -> tuple[str | None, np.ndarray | None]:
+    """The weight of the package's rates: ``report.weight`` (a data column or a weight the run made),
+    else the final weight when the run weighted, else none.  Blank weights count as 0."""
+    o = st.plan.report
+    name = o.weight if o is not None else None
+    made = st.weights if st.weights is not None else pd.DataFrame(index=st.data.index)
+    if name is None and st.weigh is not None:
+        name = f"{st.weighting_plan.prefix}final"
+    if name is None:
+        return None, None
+    if name in made.columns:
+        return name, nan_to_zero(made[name])
+    if name in st.data.columns:
+        return name, None  # the report reads and checks the data column itself
+    weights = list(made.columns)
+    raise SkipwiseError(Problem(
+        code=ProblemCode.MISSING_COLUMN, category=Category.USAGE, file=str(st.plan.file),
+        line=st.plan.line("report", "weight"), item=name,
+        message=f"report weight '{name}' is neither a column of the data nor a weight the run made",
+        hint=did_you_mean(name, [*map(str, st.data.columns), *weights]) or
+        (f"weights made by the run: {', '.join(weights[:6])}" if weights else "name a column of the data file")))
+
+
 def report_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.rates import item_rates, worst_lines
     from skipwise.report import write_item_report
 
     o = st.plan.report
-    write_item_report(st.data, st.q, st.targets["item_report"], classification=st.cl, weight=o.weight, by=o.by,
+    name, w = report_weight(st)
+    write_item_report(st.data, st.q, st.targets["item_report"], classification=st.cl, weight=name, by=o.by,
                       case_ids=o.case_ids, top_items=o.top_items, top_patterns=o.top_patterns,
-                      fault_rows=o.fault_rows, input_path=st.plan.data, overwrite=True)
+                      fault_rows=o.fault_rows, min_base=st.plan.min_base, weights=w,
+                      input_path=st.plan.data, overwrite=True)
+    if name is not None and w is None:
+        w = nan_to_zero(st.data[name])
+    rates = item_rates(st.cl, w, min_base=st.plan.min_base)
+    reporter.info("highest item nonresponse rates" + (f" (weighted by {name})" if name else "") + ":")
+    for line in worst_lines(rates, weighted=w is not None):
+        reporter.info(line)
+    if w is not None and (w == 0).any():
+        reporter.info(f"{int((w == 0).sum()):,} case(s) have weight 0 in {name}: counted in the unweighted "
+                      "rates only (see the report's Overview)")
+
+
+def join_step(st: RunState, reporter: Reporter) -> None:
+    """Join the estimate variables the weighting file lacks from the interviews, by case id."""
+    from skipwise.pipeline.join import join_answers
+
+    spec = st.weighting_plan
+    if st.weighting_data is None:
+        st.joined = st.data
+        return
+    case_id = spec.case_id or st.q.case_id
+    st.joined, st.joined_columns = join_answers(st.weighting_data, st.data, spec, case_id,
+                                                weighting_file=str(st.plan.weighting_data))
+    if st.joined_columns:
+        matched = int(st.weighting_data[case_id].isin(st.data[case_id]).sum())
+        reporter.info(f"joined {', '.join(st.joined_columns)} from {st.plan.data.name} to "
+                      f"{st.plan.weighting_data.name} by {case_id}: {matched:,} of {len(st.joined):,} cases matched")
+    else:
+        reporter.info("the weighting file holds every variable the weighting plan names: nothing to join")
 
 
 def weigh_step(st: RunState, reporter: Reporter) -> None:
@@ -197,7 +253,7 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
 
     spec = st.weighting_plan
     own = st.weighting_data is not None
-    frame = st.weighting_data if own else st.data
+    frame = st.joined if st.joined is not None else (st.weighting_data if own else st.data)
     share = st.cl.cases["share_answered"]
     case_id = spec.case_id or st.q.case_id
     if own:
@@ -215,9 +271,10 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
     cols = list(res.weight_columns)
     if own:
         meta = weight_meta(res)
+        written = res.data.drop(columns=st.joined_columns, errors="ignore")  # the weighting file as given, plus its weights
         for role in ("weighted_frame", "weighted_frame_parquet"):
             if role in st.targets:
-                write_data(res.data, st.targets[role], meta, reporter)
+                write_data(written, st.targets[role], meta, reporter)
         by_id = res.data.set_index(case_id)[cols]
         if by_id.index.has_duplicates:
             raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,

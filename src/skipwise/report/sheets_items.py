@@ -15,7 +15,9 @@ __all__ = ["ItemsLayout", "write_items_sheet", "write_subgroups_sheet", "ITEMS_H
 #: Row of the Items sheet's header (title and definition note above it).
 ITEMS_HEADER_ROW = 3
 
-_TEXT_COLS = ("Section", "Item", "Label", "Asked if (rule as written)")
+_TEXT_COLS = ("Section", "Item", "Label", "Asked if (rule as written)", "Below minimum base")
+#: A rate on a base under the minimum: shown, with a marker (the cell stays a number).
+SMALL_PCT = st.PCT + '" *"'
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -62,9 +64,11 @@ def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> 
     ws.auto_filter.ref = st.table_ref(ITEMS_HEADER_ROW, last, len(cols))
     ws.append(st.title_row(ws, "Item nonresponse by item (interview order)"))
     ws.append(st.note_row(ws, (
-        "Item nonresponse rate = (nonresponse reasons + item_missing) / cases in the item's universe "
-        "excluding breakoff and left_blank. gate_unknown, breakoff and left_blank are counted apart and are in neither part of the "
-        "rate. Each reason's rate uses the same denominator.")))
+        "D = cells in the item's universe excluding breakoff and left_blank. Answered rate, item nonresponse "
+        "rate ((nonresponse reasons + item_missing) / D) and fault rate ((wrong_code + invalid where asked) "
+        "/ D) add up to 100%; each reason's rate uses D too. gate_unknown, breakoff, off_route, left_blank "
+        "and invalid values where not asked are counted apart. Items with D under the minimum base are "
+        "marked and left out of rankings and charts. Status meanings: see the Overview.")))
     ws.append(st.header_row(ws, cols))
     for row in st.frame_rows(ws, table, _formats(table), wrap=("Asked if (rule as written)",)):
         ws.append(row)
@@ -98,7 +102,8 @@ def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFram
         "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff and left_blank"
         + (", as ratios of weighted totals." if sub.weighted else ".")
         + " Blank: no case of the group was in the item's universe. Small groups give unstable rates.")))
-    ws.append(st.note_row(ws, "Group values of missing cells are shown as '(missing)'."))
+    ws.append(st.note_row(ws, "Group values of missing cells are shown as '(missing)'. A rate marked * rests on "
+                              f"fewer than {sub.min_base} cells in universe (the minimum base): read it with care."))
     ws.append(st.header_row(ws, header))
     size_fmt = st.WEIGHTED if sub.weighted else st.INT
     size_row = [st.text_cell(ws, ""), st.text_cell(ws, "(cases in group)"), st.text_cell(ws, ""),
@@ -109,5 +114,6 @@ def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFram
     for i, item in enumerate(items["Item"]):
         row = [st.text_cell(ws, items["Section"].iat[i]), st.text_cell(ws, item), st.text_cell(ws, items["Label"].iat[i]),
                st.value_cell(ws, items[overall].iat[i], st.PCT)]
-        row += [st.value_cell(ws, v, st.PCT) for v in sub.rates.loc[item].to_numpy()]
+        flags = sub.small.loc[item].to_numpy() if sub.small is not None else [False] * len(groups)
+        row += [st.value_cell(ws, v, SMALL_PCT if f else st.PCT) for v, f in zip(sub.rates.loc[item].to_numpy(), flags)]
         ws.append(row)

@@ -12,23 +12,26 @@ from skipwise.report import styles as st
 __all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS"]
 
 DEFINITIONS: tuple[tuple[str, str], ...] = (
-    ("Item nonresponse rate",
-     "(cells with a nonresponse reason + item_missing cells) / (cases in the item's universe, excluding "
-     "breakoff and left_blank). In universe: the routing rule held, or it was unknown but the cell shows the item was "
-     "asked (an answer or a nonresponse code). In-universe wrong_code and invalid cells are in the "
-     "denominator but not the numerator. With a weight: the same ratio of weighted totals, "
-     "Σw·[nonresponse] / Σw·[in universe, not breakoff or left_blank]."),
-    ("Reason rate (e.g. dont_know rate, refused rate)",
-     "cells carrying that nonresponse reason / the same denominator as the item nonresponse rate."),
-    ("item_missing rate", "blank in-universe cells with no code / the same denominator."),
-    ("gate_unknown", "the item's universe could not be decided because an input of its rule is unknown, "
-                     "and the cell is blank or structurally coded. Counted apart: in neither numerator "
-                     "nor denominator of any rate."),
+    ("D (the rates' base)",
+     "cells in the item's universe, excluding breakoff and left_blank: answered + nonresponse reasons + "
+     "item_missing + wrong_code + invalid where the item was asked. In universe: the routing rule held, "
+     "or it was unknown but the cell shows the item was asked (an answer or a nonresponse code). With a "
+     "weight: the sum of the weights of those cells."),
+    ("Item nonresponse rate", "(cells with a nonresponse reason + item_missing cells) / D. With a weight: "
+                              "Σw·[nonresponse] / Σw·[in D]."),
+    ("Answered rate, fault rate", "answered / D and (wrong_code + invalid where asked) / D. The three "
+                                  "rates add up to 100%."),
+    ("Reason rate (e.g. dont_know rate, refused rate)", "cells carrying that nonresponse reason / D."),
+    ("item_missing rate", "blank in-universe cells with no code / D."),
+    ("Counted apart", "gate_unknown (whether the item was asked is unknown), breakoff (blank after the "
+                      "interview ended), off_route, left_blank (an optional item left blank) and invalid "
+                      "values where the item was not asked or the routing is undecided: in neither "
+                      "numerator nor denominator of any rate."),
     ("left_blank", "blank in-universe cells of an item marked optional (e.g. an open comment box): no "
                    "answer was required. Counted apart: in neither numerator nor denominator of any rate, "
                    "and not in a case's share of applicable items answered."),
-    ("breakoff", "blank cells after the point where the interview ended. Counted apart: in neither "
-                 "numerator nor denominator of any rate."),
+    ("Minimum base", "a rate on fewer cells in D (unweighted) than the minimum base is shown but marked, "
+                     "and left out of rankings, charts and the choice of the Patterns columns."),
     ("Routing faults", "off_route (an answer or code where the routing says not asked), wrong_code (a "
                        "not-asked code where the item was asked) and invalid (a value outside the item's "
                        "values or range that is no declared code)."),
@@ -64,6 +67,8 @@ class OverviewInfo:
     case_ids: bool
     faults_total: int
     faults_shown: int
+    notes: tuple[str, ...] = ()
+    labels: dict[str, str] | None = None   # status token -> human label
 
 
 def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, title: str = "Overview") -> None:
@@ -94,10 +99,16 @@ def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, t
         ws.append([st.text_cell(ws, label, font=None), st.value_cell(ws, value, fmt)])
     ws.append([])
     ws.append(st.title_row(ws, "Share of all cells by status", sub=True))
+    if info.labels:  # the human label beside each status token (the token stays for machines)
+        shares = shares.assign(meaning=[info.labels.get(s, "") for s in shares["status"]])
     cols = ["Status", "Cells", "Share of cells"] + (["Weighted share"] if "weighted share" in shares.columns else [])
+    cols += ["Meaning"] if info.labels else []
     ws.append(st.header_row(ws, cols))
     for row in st.frame_rows(ws, shares, {"cells": st.INT, "share": st.PCT, "weighted share": st.PCT}):
         ws.append(row)
+    for note in info.notes:
+        ws.append([])
+        ws.append([st.text_cell(ws, "Note"), st.text_cell(ws, note)])
     ws.append([])
     ws.append(st.title_row(ws, "Definitions", sub=True))
     for term, text in DEFINITIONS:

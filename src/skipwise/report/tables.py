@@ -19,6 +19,7 @@ import pandas as pd
 
 from skipwise.classify import statuses as S
 from skipwise.classify.result import Classification
+from skipwise.rates import ItemRates, item_rates
 
 __all__ = [
     "Figures", "compute_figures", "in_codes", "ITEM_RATE", "ITEM_RATE_W", "items_table", "status_shares", "subgroup_rates", "SubgroupTable",
@@ -121,37 +122,47 @@ def _ratio(num: np.ndarray, den: np.ndarray) -> np.ndarray:
     return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
 
 
-def items_table(c: Classification, fig: Figures) -> pd.DataFrame:
+#: Column of the rate's denominator D on the Items sheet.
+BASE_COL = "D: in universe, excl. breakoff and left_blank"
+#: Column marking items whose unweighted D is under the minimum base.
+SMALL_COL = "Below minimum base"
+ANSWERED_RATE, FAULT_RATE = "Answered rate", "Fault rate"
+
+
+def items_table(c: Classification, fig: Figures, rates: ItemRates | None = None) -> pd.DataFrame:
     """One row per item in interview order: rule, counts of every status and the rates.
 
-    Rates follow DESIGN §3: (nonresponse reasons + ``item_missing``) over the
-    cases in the item's universe excluding ``breakoff`` and ``left_blank``; each reason's rate has
-    the same denominator.  With weights the weighted rates (ratios of
-    weighted totals) are added beside the unweighted ones.
+    Every rate comes from :func:`skipwise.rates.item_rates` (the package's one
+    definition): answered, item nonresponse and fault shares of D, where D is the
+    cells in universe excluding ``breakoff`` and ``left_blank``; each reason's
+    rate has the same denominator.  With weights the weighted rate (a ratio of
+    weighted totals) stands right beside each unweighted one.
     """
     q = c.questionnaire
-    reasons = list(q.nonresponse_reasons)
-    nr_cols = list(c.nonresponse_statuses)
+    rates = rates if rates is not None else item_rates(c, fig.weight)
+    u = rates.table(False)
+    w = rates.table(True) if rates.weighted else None
     items = [q.item(i) for i in c.items]
     out = pd.DataFrame({
         "Section": [it.section for it in items], "Item": list(c.items), "Label": [it.label for it in items],
         "Asked if (rule as written)": [it.rule_text for it in items],
-        "Cases": len(c.index), "In universe (excl. breakoff, left_blank)": fig.denom,
+        "Cases": u["cases"].to_numpy(), BASE_COL: u["D"].to_numpy(),
+        SMALL_COL: np.where(u["below_min_base"].to_numpy(), f"yes (D < {rates.min_base})", ""),
     })
     for status in c.categories:
         out[status] = fig.counts[status].to_numpy()
-    nonresp = fig.counts[nr_cols].sum(axis=1).to_numpy()
-    out["Nonresponse"] = nonresp
-    out[ITEM_RATE] = _ratio(nonresp, fig.denom)
-    if fig.wcounts is not None:
-        out["In universe (weighted)"] = fig.wdenom
-        out[ITEM_RATE_W] = _ratio(fig.wcounts[nr_cols].sum(axis=1).to_numpy(), fig.wdenom)
-    for reason in reasons:
-        out[f"{reason} rate"] = _ratio(fig.counts[reason].to_numpy(), fig.denom)
-    out[f"{S.ITEM_MISSING} rate"] = _ratio(fig.counts[S.ITEM_MISSING].to_numpy(), fig.denom)
-    if fig.wcounts is not None:
-        for reason in reasons:
-            out[f"{reason} rate (weighted)"] = _ratio(fig.wcounts[reason].to_numpy(), fig.wdenom)
+    out["invalid where asked (in D)"] = u["invalid_in_universe"].to_numpy()
+    out["Nonresponse"] = u["nonresponse"].to_numpy()
+    out["Faults (in D)"] = u["faults"].to_numpy()
+    if w is not None:
+        out["D (weighted)"] = w["D"].to_numpy()
+        out["Cases of weight 0 in D"] = w["zero_weight"].to_numpy()
+    pairs = [(ITEM_RATE, "nonresponse_rate"), (ANSWERED_RATE, "answered_rate"), (FAULT_RATE, "fault_rate")]
+    pairs += [(f"{reason} rate", f"{reason}_rate") for reason in (*q.nonresponse_reasons, S.ITEM_MISSING)]
+    for label, col in pairs:
+        out[label] = u[col].to_numpy()
+        if w is not None:
+            out[f"{label} (weighted)"] = w[col].to_numpy()
     return out
 
 
@@ -171,22 +182,57 @@ def status_shares(c: Classification, fig: Figures) -> pd.DataFrame:
 class SubgroupTable:
     """Item nonresponse rate of every item in every group of every ``by`` column.
 
-    ``rates`` has one row per item and one column per (variable, value);
-    ``sizes`` holds the (weighted) number of cases of each group.
+    ``rates`` has one row per item and one column per (variable, group label);
+    ``sizes`` holds the (weighted) number of cases of each group; ``small`` is
+    True where the group cell's unweighted D is under the minimum base (shown,
+    marked, never ranked).
     """
 
     rates: pd.DataFrame
     sizes: pd.Series
     weighted: bool
+    small: pd.DataFrame | None = None
+    min_base: int = 30
 
 
-def _groups(values: pd.Series) -> tuple[np.ndarray, list[str]]:
+#: A numeric grouping column without value labels and with more distinct values than this is
+#: shown in quintile bins (common practice, no source).
+MAX_UNBINNED = 12
+BINS = 5
+
+
+def _fmt_number(x: float) -> str:
+    return f"{int(x)}" if float(x).is_integer() else f"{x:.4g}"
+
+
+def group_codes(values: pd.Series, value_labels: dict | None = None) -> tuple[pd.Series, list[str]]:
+    """Groups of a ``by`` column as (group number per case, NaN where missing) and one label per group.
+
+    Labelled codes read by their value label ("Northfold" rather than "1"), codes
+    as whole numbers ("1", never "1.0"), and a numeric column with many distinct
+    values in quintile bins named by their observed ends ("19–41").
+    """
+    labels_of = {_plain_key(k): str(v) for k, v in (value_labels or {}).items()}
+    numeric = pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values)
+    if numeric and not labels_of and values.nunique() > MAX_UNBINNED:
+        x = values.astype("float64")
+        bins = pd.qcut(x, BINS, labels=False, duplicates="drop")
+        ends = x.groupby(bins).agg(["min", "max"])
+        labels = [f"{_fmt_number(lo)}\u2013{_fmt_number(hi)}" if lo != hi else _fmt_number(lo)
+                  for lo, hi in zip(ends["min"], ends["max"])]
+        codes = pd.Series(bins.to_numpy(), index=values.index).map({b: i for i, b in enumerate(ends.index)})
+        return codes.astype("float64"), labels
     codes, uniques = pd.factorize(values, sort=True, use_na_sentinel=True)
-    labels = [_group_label(u) for u in uniques]
-    if (codes < 0).any():
-        codes = np.where(codes < 0, len(labels), codes)
-        labels.append(MISSING_GROUP)
-    return codes.astype(np.int64), labels
+    labels = [labels_of.get(_plain_key(u), _group_label(u)) for u in uniques]
+    return pd.Series(np.where(codes < 0, np.nan, codes), index=values.index), labels
+
+
+def _plain_key(value: object) -> object:
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and value.is_integer():
+        return int(value)
+    return value
 
 
 def _group_label(value: object) -> str:
@@ -196,34 +242,32 @@ def _group_label(value: object) -> str:
 
 
 def subgroup_rates(c: Classification, data: pd.DataFrame, by: tuple[str, ...],
-                   weight: np.ndarray | None = None) -> SubgroupTable:
-    """Σw·1[nonresponse] / Σw·1[in universe, not breakoff or left_blank] per item within each group."""
-    n, p = c.codes.shape
-    w = np.ones(n) if weight is None else weight
-    nr_codes = _nr_codes(c)
-    brk, lb = c.code(S.BREAKOFF), c.code(S.LEFT_BLANK)
-    applicable = c.universe_mask().to_numpy()
+                   weight: np.ndarray | None = None, *, min_base: int = 30,
+                   value_labels: dict[str, dict] | None = None) -> SubgroupTable:
+    """Item nonresponse rate (:func:`skipwise.rates.item_rates`) per item within each group."""
     cols: dict[tuple[str, str], np.ndarray] = {}
+    small: dict[tuple[str, str], np.ndarray] = {}
     sizes: dict[tuple[str, str], float] = {}
+    w = np.ones(len(c.index)) if weight is None else np.asarray(weight, dtype=np.float64)
     for var in by:
-        g, labels = _groups(data[var])
-        k = len(labels)
-        num = np.empty((p, k))
-        den = np.empty((p, k))
-        for j in range(p):
-            col = c.codes[:, j]
-            num[j] = np.bincount(g, weights=w * in_codes(col, nr_codes), minlength=k)
-            den[j] = np.bincount(g, weights=w * (applicable[:, j] & (col != brk) & (col != lb)), minlength=k)
-        size = np.bincount(g, weights=w, minlength=k)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            rate = np.where(den > 0, num / np.where(den > 0, den, 1), np.nan)
-        for i, lab in enumerate(labels):
-            cols[(var, lab)] = rate[:, i]
-            sizes[(var, lab)] = float(size[i])
+        codes, labels = group_codes(data[var], (value_labels or {}).get(var))
+        r = item_rates(c, weight, by=codes, min_base=min_base)
+        t = r.table(weight is not None)
+        p = len(c.items)
+        gnum = codes.fillna(-1).to_numpy(dtype=np.int64)
+        for gi, key in enumerate(r.groups):  # the table is group-major: p rows per group
+            lab = MISSING_GROUP if key is None else labels[int(key)]
+            part = t.iloc[gi * p:(gi + 1) * p]
+            cols[(var, lab)] = part["nonresponse_rate"].to_numpy()
+            small[(var, lab)] = part["below_min_base"].to_numpy(dtype=bool)
+            sizes[(var, lab)] = float(w[gnum == (-1 if key is None else int(key))].sum())
     rates = pd.DataFrame(cols, index=list(c.items))
+    flags = pd.DataFrame(small, index=list(c.items))
     if cols:
         rates.columns = pd.MultiIndex.from_tuples(list(cols))
-    return SubgroupTable(rates=rates, sizes=pd.Series(sizes, dtype=np.float64), weighted=weight is not None)
+        flags.columns = pd.MultiIndex.from_tuples(list(small))
+    return SubgroupTable(rates=rates, sizes=pd.Series(sizes, dtype=np.float64), weighted=weight is not None,
+                         small=flags, min_base=min_base)
 
 
 #: Completeness bins: tenths of the share of applicable items answered, then exactly 100 %.

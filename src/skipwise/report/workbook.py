@@ -17,6 +17,7 @@ from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.questionnaire.model import Questionnaire
+from skipwise.rates import DEFAULT_MIN_BASE, ItemRates, item_rates, status_label
 from skipwise.report import tables as T
 from skipwise.report.patterns import nonresponse_patterns, pick_items
 from skipwise.report.sheets_completeness import write_charts_sheet, write_completeness_sheet
@@ -37,7 +38,8 @@ MAX_GROUPS = 200
 
 
 def _check_options(data: pd.DataFrame, weight: str | None, by: tuple[str, ...], top_items: int,
-                   top_patterns: int, fault_rows: int, file: str | None) -> np.ndarray | None:
+                   top_patterns: int, fault_rows: int, file: str | None, min_base: int = DEFAULT_MIN_BASE,
+                   ) -> np.ndarray | None:
     """Collect every problem with the options, then raise them together; return the weights."""
     problems: list[Problem] = []
     cols = [str(c) for c in data.columns]
@@ -50,6 +52,9 @@ def _check_options(data: pd.DataFrame, weight: str | None, by: tuple[str, ...], 
         if value < 1:
             problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item=name,
                                     message=f"{name} must be at least 1, got {value}", hint="pass a positive number"))
+    if min_base < 0:
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="min_base",
+                                message=f"min_base must be 0 or more, got {min_base}", hint="pass 0 or more"))
     if fault_rows < 0:
         problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="fault_rows",
                                 message=f"fault_rows must be 0 or more, got {fault_rows}", hint="pass 0 or more"))
@@ -80,6 +85,38 @@ def _weights(series: pd.Series, name: str, file: str | None) -> tuple[np.ndarray
     return w, None
 
 
+def _value_labels(data: pd.DataFrame, q: Questionnaire, by: tuple[str, ...]) -> dict[str, dict]:
+    """Value labels of the grouping columns: the file's own, else the questionnaire item's values."""
+    from skipwise.io import get_meta
+
+    meta = get_meta(data)
+    out: dict[str, dict] = {}
+    for var in by:
+        labels = meta.value_labels.get(var)
+        if not labels and var in q.column_owner and q.item(q.column_owner[var]).values:
+            labels = dict(q.item(q.column_owner[var]).values)
+        if labels:
+            out[var] = dict(labels)
+    return out
+
+
+def _weight_notes(weight: str | None, w: np.ndarray | None, rates: ItemRates) -> tuple[str, ...]:
+    """Say where cases of weight 0 are counted (the weighting gives break-offs and nonrespondents 0)."""
+    if w is None:
+        return ()
+    zero = int(np.count_nonzero(w == 0))
+    if not zero:
+        return ()
+    return (f"{zero:,} case(s) have weight 0 in '{weight}' (for example interviews the weighting treats as "
+            "break-offs or nonrespondents, or cases not in the weighting file). They are counted in the "
+            "unweighted counts and rates, and add nothing to the weighted ones; the Items sheet shows, per "
+            "item, how many of its cells in D have weight 0.",)
+
+
+def _status_meanings(c: Classification) -> dict[str, str]:
+    return {s: status_label(s, c.questionnaire) for s in c.categories}
+
+
 def _sha256(path: Path) -> str:
     h = hashlib.sha256()
     with open(path, "rb") as fh:
@@ -100,6 +137,8 @@ def write_item_report(
     top_items: int = 12,
     top_patterns: int = 20,
     fault_rows: int = DEFAULT_FAULT_ROWS,
+    min_base: int = DEFAULT_MIN_BASE,
+    weights: np.ndarray | None = None,
     input_path: str | Path | None = None,
     overwrite: bool = True,
 ) -> Path:
@@ -128,6 +167,13 @@ def write_item_report(
         Items in the pattern grid (those with the highest rates) and patterns shown.
     fault_rows
         Most fault rows listed (never more than a worksheet holds); counts cover all faults.
+    min_base
+        Minimum unweighted D (cells in universe excl. breakoff and left_blank): items and
+        subgroup cells under it are shown, marked, and left out of the pattern-column choice
+        (common practice, no source).
+    weights
+        The weights of ``weight`` when they are not a column of ``data`` (a run passes the
+        final weight it just computed; blanks count as 0).
     input_path
         The data file read, named with its SHA-256 on the Overview sheet.
     overwrite
@@ -151,22 +197,28 @@ def write_item_report(
     """
     path = check_writable(path, overwrite=overwrite)
     by = tuple(by)
-    w = _check_options(data, weight, by, top_items, top_patterns, fault_rows,
-                       str(input_path) if input_path else None)
+    w = _check_options(data if weights is None else data.drop(columns=[weight], errors="ignore"),
+                       None if weights is not None else weight, by, top_items, top_patterns, fault_rows,
+                       str(input_path) if input_path else None, min_base)
+    if weights is not None:
+        w = np.nan_to_num(np.asarray(weights, dtype=np.float64), nan=0.0)
     c = classification if classification is not None else run_classify(data, questionnaire)
     q = questionnaire
 
     fig = T.compute_figures(c, w)
-    items = T.items_table(c, fig)
+    rates_all = item_rates(c, w, min_base=min_base)
+    items = T.items_table(c, fig, rates_all)
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
     faults, n_faults = T.fault_rows(c, fig, limit)
     rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
-    chosen = pick_items(rates, top_items)
+    # Items under the minimum base are never chosen for the grid: one case can make a rate of 100%.
+    chosen = pick_items(rates.where(~rates_all.below_min_base.to_numpy()), top_items)
     idx = [c.items.index(name) for name in chosen]
     nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
     mask = np.column_stack([T.in_codes(c.codes[:, j], nr_codes) for j in idx]) if idx else np.zeros((len(c.index), 0), dtype=bool)
     patterns = nonresponse_patterns(mask, chosen, top=top_patterns, weight=w)
-    subgroups = T.subgroup_rates(c, data, by, w) if by else None
+    subgroups = T.subgroup_rates(c, data, by, w, min_base=min_base,
+                                 value_labels=_value_labels(data, q, by)) if by else None
     info = OverviewInfo(
         survey_name=q.name, survey_title=q.title,
         input_file=str(input_path) if input_path else None,
@@ -175,6 +227,7 @@ def write_item_report(
         version=skipwise.__version__, cases=len(c.index), items=len(c.items), weight=weight,
         total_weight=float(w.sum()) if w is not None else None, by=by, case_ids=case_ids,
         faults_total=n_faults, faults_shown=len(faults),
+        notes=_weight_notes(weight, w, rates_all), labels=_status_meanings(c),
     )
 
     wb = Workbook(write_only=True)

@@ -10,6 +10,7 @@ the second) as ``duplicate-name``.
 from __future__ import annotations
 
 import math
+import os
 from pathlib import Path
 from typing import Any
 
@@ -293,12 +294,31 @@ def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | N
         est = EstimateSpec(means=c.names(m, "means", p), proportions=c.names(m, "proportions", p),
                            exclude_values=tuple(excl if isinstance(excl, list) else [excl]))
     out = c.mapping(top.get("output"), ("output",), ("workbook", "prefix"))
+    workbook = _workbook_path(c, out.get("workbook"), file)
     c.problems.raise_if_any(headline=f"{len(c.problems)} problem(s) in weighting plan {file or ''}".strip())
     return WeightingPlan(
         file=file, dispositions=disp, case_id=c.name(top, "case_id", ()), e=e,
         base_probability=base.get("probability"), base_weight=base.get("weight"), eligibility_classes=elig,
         nonresponse=nr, calibration=cal, trimming=trim, replicates=rep, estimates=est,
-        workbook=out.get("workbook"), prefix=str(out.get("prefix", "wt_")), lines=dict(lines or {}))
+        workbook=workbook, prefix=str(out.get("prefix", "wt_")), lines=dict(lines or {}))
+
+
+def _workbook_path(c, value: Any, file: str | None) -> str | None:
+    """``output.workbook`` resolved against the plan's folder; a path leaving it is refused."""
+    if value is None:
+        return None
+    p = ("output", "workbook")
+    if not isinstance(value, str) or not value.strip():
+        c.add(ProblemCode.BAD_VALUE, p, f"'output.workbook' must be a file name, got {value!r}")
+        return None
+    base = Path(file).resolve().parent if file else Path.cwd()
+    target = Path(value)
+    resolved = Path(os.path.normpath(base / target))
+    if target.is_absolute() or (resolved != base and base not in resolved.parents):
+        c.add(ProblemCode.BAD_VALUE, p, f"'output.workbook' {value!r} leads out of the plan's folder {base}",
+              "name a file in the plan's folder or below it, or give the path with --workbook")
+        return None
+    return str(resolved)
 
 
 def load_plan(path: str | Path | None = None, *, text: str | None = None) -> WeightingPlan:

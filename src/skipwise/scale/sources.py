@@ -1,0 +1,102 @@
+"""Input partitions for the dask engine: Parquet files, folders and globs, split by row groups.
+
+A partition is a file and a run of its row groups, fixed by the input alone (not
+by the number of workers), so results never depend on the cluster.  Every
+partition is read as :func:`skipwise.io.read_survey` reads a whole file (codes
+as stored, labels from the file's skipwise metadata).
+"""
+
+from __future__ import annotations
+
+import glob
+from dataclasses import dataclass
+from pathlib import Path
+
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+
+__all__ = ["Part", "parquet_parts", "read_part", "DEFAULT_PARTITION_ROWS"]
+
+#: Rows a partition holds at most when a file's row groups allow splitting it (consecutive groups are joined).
+DEFAULT_PARTITION_ROWS = 250_000
+
+
+@dataclass(frozen=True)
+class Part:
+    """One partition: a Parquet file and the row groups of it that belong to this partition."""
+
+    path: str
+    row_groups: tuple[int, ...]
+    rows: int
+
+
+def _files(source: str | Path) -> list[Path]:
+    text = str(source)
+    path = Path(text)
+    if path.is_dir():
+        files = sorted(p for p in path.iterdir() if p.suffix.lower() == ".parquet" and not p.name.startswith("."))
+    elif any(ch in text for ch in "*?["):
+        files = sorted(Path(p) for p in glob.glob(text) if p.lower().endswith(".parquet"))
+    elif path.is_file():
+        files = [path]
+    else:
+        raise SkipwiseError(Problem(code=ProblemCode.FILE_NOT_FOUND, category=Category.USAGE, file=text,
+                                    message="no such file or folder", hint="check the path"))
+    if not files:
+        raise SkipwiseError(Problem(code=ProblemCode.FILE_NOT_FOUND, category=Category.USAGE, file=text,
+                                    message="no Parquet files (.parquet) found",
+                                    hint="the dask engine reads a Parquet file, a folder of them or a glob"))
+    bad = [f for f in files if f.suffix.lower() != ".parquet"]
+    if bad:
+        raise SkipwiseError(Problem(code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(bad[0]),
+                                    message="the dask engine reads Parquet input only",
+                                    hint="convert the file to Parquet first (skipwise writes .parquet), "
+                                         "or use the in-memory engine"))
+    return files
+
+
+def parquet_parts(source: str | Path, partition_rows: int = DEFAULT_PARTITION_ROWS) -> list[Part]:
+    """The partitions of a Parquet file, folder or glob, in file order; every file must have the same columns."""
+    import pyarrow
+    import pyarrow.parquet as pq
+
+    parts: list[Part] = []
+    names: list[str] | None = None
+    for f in _files(source):
+        try:
+            info = pq.ParquetFile(f)
+        except (pyarrow.ArrowException, OSError) as exc:
+            raise SkipwiseError(Problem(code=ProblemCode.FILE_UNREADABLE, category=Category.DATA, file=str(f),
+                                        message=f"not a readable Parquet file ({exc})",
+                                        hint="check the file was copied completely")) from None
+        cols = list(info.schema_arrow.names)
+        if names is None:
+            names = cols
+        elif cols != names:
+            raise SkipwiseError(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, file=str(f),
+                                        message="its columns differ from the first file's",
+                                        hint="every part of a folder must hold the same columns in the same order"))
+        groups: list[int] = []
+        rows = 0
+        for g in range(info.num_row_groups):
+            n = info.metadata.row_group(g).num_rows
+            if groups and rows + n > partition_rows:
+                parts.append(Part(str(f), tuple(groups), rows))
+                groups, rows = [], 0
+            groups.append(g)
+            rows += n
+        if groups or info.num_row_groups == 0:
+            parts.append(Part(str(f), tuple(groups), rows))
+    return parts
+
+
+def read_part(part: Part) -> pd.DataFrame:
+    """One partition as a DataFrame with its survey metadata (as read_survey gives a whole file)."""
+    import pyarrow.parquet as pq
+
+    from skipwise.io.readers import parquet_frame
+
+    pf = pq.ParquetFile(part.path)
+    table = pf.read_row_groups(list(part.row_groups)) if part.row_groups else pf.schema_arrow.empty_table()
+    return parquet_frame(table, Path(part.path))
