@@ -191,6 +191,8 @@ def _demo_frame(q) -> pd.DataFrame:
                 cols[c] = [1, 0, 0]
         elif it.values:
             cols[it.name] = [list(it.values)[0]] * 3
+        elif it.type.value == "text":
+            cols[it.name] = ["A comment", None, None]
         else:
             cols[it.name] = [it.range[0]] * 3
     return pd.DataFrame(cols)
@@ -202,6 +204,7 @@ def test_demo_questionnaire_with_hand_made_frame():
     df.loc[:, "rent_month"] = [-1, -1, 400]      # not a renter: structural code
     df.loc[:, "income"] = [-7, 2100, -9]         # don't know, refused
     df.loc[:, "commute_minutes"] = [997, 20, 35]  # "varies": a substantive code
+    df.loc[:, "savings"] = [1, -8, 2]              # "prefer not to say" (the web form's code)
     assert check_data(df, q).problems == []
 
     df.loc[:, "hh_size"] = [2, 9, 12]            # range 1..8

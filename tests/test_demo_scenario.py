@@ -20,7 +20,8 @@ from skipwise.questionnaire.model import CodeKind, ItemType
 from skipwise.rules import ast
 
 STATUSES = {"answered", "skipped", "dont_know", "refused", "item_missing", "wrong_code", "off_route",
-            "gate_unknown", "breakoff", "invalid"}   # DESIGN §3
+            "gate_unknown", "breakoff", "invalid", "left_blank",   # DESIGN §3
+            "prefer_not_to_say"}                                   # the scenario's web-only reason
 INTERVIEWED = (110, 120, 212)
 
 
@@ -67,7 +68,7 @@ def test_sizes(n, q, sc):
     assert len(s.interviews) == interviewed.sum()
     assert list(s.interviews["case_id"]) == list(s.sample.loc[interviewed, "case_id"])
     assert list(s.interviews.columns) == [q.case_id, *CONTEXT, *q.columns]
-    assert list(s.truth_status.columns) == list(q.item_names) and len(q.item_names) == 56
+    assert list(s.truth_status.columns) == list(q.item_names) and len(q.item_names) == 57
     assert s.truth_status.shape[0] == len(s.interviews)
     assert list(s.truth_values.columns) == list(q.columns)
     assert set(s.sample["disposition"]) <= {110, 120, 211, 212, 220, 230, 310, 390, 410}
@@ -89,6 +90,11 @@ def test_truth_cells_hold_what_their_status_says(q, sc):
     data, truth = sc.interviews, sc.truth_status
     for it in q.items:
         st = truth[it.name].to_numpy(dtype=object)
+        if it.type is ItemType.TEXT:  # the open comment box: a text, or blank
+            blank = data[it.name].isna().to_numpy()
+            assert set(st) <= {"answered", "left_blank", "breakoff"}, it.name
+            assert blank[st != "answered"].all() and not blank[st == "answered"].any(), it.name
+            continue
         cols = data[list(it.columns)].to_numpy(dtype=float)
         blank = np.isnan(cols).all(axis=1)
         codes = {float(c.value): c for c in it.codes}
@@ -107,6 +113,7 @@ def test_truth_cells_hold_what_their_status_says(q, sc):
         assert (blank | (first == -1))[st == "skipped"].all(), it.name
         assert (cols[st == "dont_know"] == -7).all(), it.name
         assert (cols[st == "refused"] == -9).all(), it.name
+        assert (cols[st == "prefer_not_to_say"] == -8).all(), it.name
         assert (first[st == "wrong_code"] == -1).all(), it.name
         assert blank[np.isin(st, ["item_missing", "breakoff"])].all(), it.name
         assert (blank | (first == -1))[st == "gate_unknown"].all(), it.name
@@ -117,6 +124,9 @@ def test_truth_cells_hold_what_their_status_says(q, sc):
 def test_answered_cells_hold_the_true_value(q, sc):
     for it in q.items:
         ans = (sc.truth_status[it.name] == "answered").to_numpy()
+        if it.type is ItemType.TEXT:
+            assert (sc.interviews[it.name][ans] == sc.truth_values[it.name][ans]).all(), it.name
+            continue
         for col in it.columns:
             assert_allclose(sc.interviews[col].to_numpy(float)[ans], sc.truth_values[col].to_numpy(float)[ans],
                             rtol=0, atol=0, err_msg=col)
@@ -143,6 +153,26 @@ def test_breakoffs(sc):
     after = np.logical_or.accumulate(bo, axis=1)
     later = sc.truth_status.to_numpy(dtype=object)[after]
     assert set(pd.unique(later)) <= {"breakoff", "skipped"}
+
+
+def test_optional_comment_box(q, sc):
+    """The closing comment box is optional (DESIGN §3): blanks are left_blank, never item nonresponse."""
+    st = sc.truth_status["comment"]
+    disp = sc.interviews["disposition"].to_numpy()
+    done = disp == 110
+    assert set(st[done]) == {"answered", "left_blank"}
+    assert (st[~done] == "breakoff").all()            # blank after the break-off point
+    assert 0.85 < (st[done] == "left_blank").mean() < 0.99   # most leave it blank
+    assert q.item("comment").optional and q.item("comment").text.startswith("Is there anything else")
+
+
+def test_pinned_reason_number_and_web_only_reason(q, sc):
+    assert q.reason_numbers["prefer_not_to_say"] == 21   # pinned with number: in the questionnaire
+    assert q.item("savings").code_for("prefer_not_to_say").number == 21
+    st = sc.truth_status["savings"]
+    web = (sc.interviews["interview_mode"] == 2).to_numpy()
+    assert (st == "prefer_not_to_say").any()
+    assert not (st[~web] == "prefer_not_to_say").any() and not (st[web] == "refused").any()
 
 
 def test_design_weights_add_up_to_the_frame(sc):
@@ -214,12 +244,15 @@ def test_write_round_trips(tmp_path, small):
     assert all(p.exists() for p in paths.values())
     sav = read_survey(paths["interviews_sav"])
     # pyreadstat reads the file back (an outside reader): the same numbers, codes kept as values
-    assert_allclose(sav.to_numpy(float), small.interviews.to_numpy(float), rtol=0, atol=1e-12)
+    num = [c for c in small.interviews.columns if c != "comment"]   # the open text box is text
+    assert_allclose(sav[num].to_numpy(float), small.interviews[num].to_numpy(float), rtol=0, atol=1e-12)
+    assert (sav["comment"].fillna("").replace("", None).dropna().tolist()
+            == small.interviews["comment"].dropna().tolist())
     meta = sav.attrs["survey_meta"]
     assert sorted(meta.missing_values["income"]) == [-9, -7, -1]
     assert meta.value_labels["district"][1] == "Fennick"
     dta = pd.read_stata(paths["interviews_dta"], convert_categoricals=False)   # pandas' own Stata reader
-    assert_allclose(dta[list(small.interviews.columns)].to_numpy(float), small.interviews.to_numpy(float))
+    assert_allclose(dta[num].to_numpy(float), small.interviews[num].to_numpy(float))
     back = yaml.safe_load(paths["population_totals"].read_text(encoding="utf-8"))
     assert back == small.population_totals
     status = pd.read_parquet(paths["truth_status"])
@@ -237,6 +270,8 @@ def test_processing_codes_by_mode(q, sc):
     """In-person exports store -1 in skipped cells, web exports leave them blank."""
     web = (sc.interviews["interview_mode"] == 2).to_numpy()
     for it in q.items:
+        if it.type is ItemType.TEXT:
+            continue  # the comment box has no routing: never skipped
         skipped = (sc.truth_status[it.name] == "skipped").to_numpy(dtype=bool)
         cells = sc.interviews[it.name if it.type is not ItemType.MULTI else it.columns[0]].to_numpy(float)
         assert np.isnan(cells[skipped & web]).all(), it.name

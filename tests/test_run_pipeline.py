@@ -28,7 +28,7 @@ sections:
     items:
       - {name: pet, label: Keeps a pet, type: categorical, values: {1: "Yes", 2: "No"}}
       - {name: pets, label: Number of pets, type: integer, range: [1, 9], asked_if: pet == 1}
-      - {name: mood, label: Mood today, type: integer, range: [0, 10]}
+      - {name: mood, label: Mood today, type: integer, range: [0, 10], text: "How is your mood today, from 0 to 10?"}
 """
 WEIGHTS = """\
 format: 1
@@ -212,6 +212,7 @@ def test_codebook_lists_every_output_variable(ran):
     assert "| D: in universe, excluding break-off and optional blanks | 40 |" in mood
     assert "| item nonresponse rate | 7.5% |" in mood and "|   of which refused | 5.0% |" in mood
     assert "weighted (wt_final)" in md and "Calibration (rake)" in md and "2 imputation(s), seed 11" in md
+    assert "How is your mood today, from 0 to 10?" in md and "How is your mood today, from 0 to 10?" in shown
 
 
 def test_existing_outputs_need_overwrite_and_are_listed_together(ran):

@@ -19,6 +19,11 @@ finding (problem code)       severity meaning
                                       codes; once for a global code, only when it occurs
                                       in none of the items it applies to
 ``undeclared-column``        note     a data column the questionnaire does not mention
+``unnumbered-reason``        note     a nonresponse reason with neither a built-in number
+                                      nor a ``number:``: its number may change when
+                                      reasons are added (docs/statuses.md)
+``no-stata-letter``          note     a reason numbered above 28: no recoded ``.dta``
+                                      can hold it (Stata's letters ``.i``-``.z``)
 ============================ ======== ===================================================
 
 Every count is a sum over rows, so counts of chunks of a file add up.
@@ -54,6 +59,8 @@ SEVERITY: dict[ProblemCode, Severity] = {
     ProblemCode.BAD_DATA: Severity.ERROR,
     ProblemCode.UNUSED_CODE: Severity.NOTE,
     ProblemCode.UNDECLARED_COLUMN: Severity.NOTE,
+    ProblemCode.UNNUMBERED_REASON: Severity.NOTE,
+    ProblemCode.NO_STATA_LETTER: Severity.NOTE,
 }
 
 #: Fields of :meth:`DataCheck.to_rows`.
@@ -257,4 +264,30 @@ def check_data(data: pd.DataFrame, questionnaire: Questionnaire, *, top: int = 5
     extra = [_problem(ProblemCode.UNDECLARED_COLUMN, f"column '{c}' is not in the questionnaire", q, str(c),
                       "add it as an item, or list it under context if it is frame or paradata")
              for c in data.columns if str(c) not in known]
-    return DataCheck(problems=problems + unused + extra, n_cases=len(data), n_columns=data.shape[1])
+    return DataCheck(problems=problems + unused + reason_number_notes(q) + extra, n_cases=len(data),
+                     n_columns=data.shape[1])
+
+
+def reason_number_notes(q: Questionnaire) -> list[Problem]:
+    """Notes on reasons whose stable number is not fixed, or too high for a recoded ``.dta``."""
+    from skipwise.questionnaire.numbers import BUILTIN_REASON_NUMBERS, LAST_STATA_LETTER
+
+    codes = [c for c in (*q.codes, *(c for it in q.items for c in it.codes)) if c.kind.value == "nonresponse"]
+    out = []
+    for reason in sorted(q.reason_numbers, key=q.reason_numbers.__getitem__):
+        number = q.reason_numbers[reason]
+        first = next(c for c in codes if c.reason == reason)
+        pinned = any(c.number is not None for c in codes if c.reason == reason)
+        if not pinned and reason not in BUILTIN_REASON_NUMBERS:
+            out.append(Problem(code=ProblemCode.UNNUMBERED_REASON, category=Category.DEFINITION, file=q.path,
+                               line=first.line, message=f"reason '{reason}' has no built-in number and no "
+                               f"'number:'; it is numbered {number} here, which can change when reasons are "
+                               "added or removed", hint=f"pin it: add 'number: {number}' to its code "
+                               "(docs/statuses.md lists the built-in numbers)"))
+        if number > LAST_STATA_LETTER:
+            out.append(Problem(code=ProblemCode.NO_STATA_LETTER, category=Category.DEFINITION, file=q.path,
+                               line=first.line, message=f"reason '{reason}' has number {number}: a recoded "
+                               ".dta cannot hold it (Stata's letters .i-.z take reasons 11-28)",
+                               hint="pin a free number from 11 to 28 with 'number:', or write .dta files in "
+                               "the columns form"))
+    return out

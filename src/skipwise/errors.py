@@ -65,6 +65,9 @@ class ProblemCode(str, Enum):
     OS_ERROR = "os-error"
     OUT_OF_MEMORY = "out-of-memory"
     OUTPUT_LOCKED = "output-locked"
+    # stable reason numbers (docs/statuses.md)
+    UNNUMBERED_REASON = "unnumbered-reason"
+    NO_STATA_LETTER = "no-stata-letter"
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -34,12 +34,12 @@ from skipwise.classify import statuses as S
 from skipwise.classify.cells import column_views
 from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.generated import Generated, check_generated
 from skipwise.io import SurveyMeta, get_meta
 from skipwise.questionnaire.model import ItemType
 
-__all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy", "fault_listing",
-           "faults_path",
-           "STATUS_SUFFIX"]
+__all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy",
+           "STATUS_SUFFIX", "status_columns", "fault_listing", "faults_path"]
 
 STATUS_SUFFIX = "_status"
 #: Extended missing letters of Stata, ``.a`` ... ``.z``: statuses 2-9 take ``.a``-``.h``, reasons 11-28 ``.i``-``.z``.
@@ -89,7 +89,7 @@ def _check_letters(cl: Classification, numeric_items: list[str]) -> None:
         for reason in item.nonresponse_reasons:
             if letter_of(numbers[reason]) is None:
                 problems.append(Problem(
-                    code=ProblemCode.BAD_VALUE, category=Category.USAGE, item=name, file=cl.questionnaire.path,
+                    code=ProblemCode.NO_STATA_LETTER, category=Category.USAGE, item=name, file=cl.questionnaire.path,
                     line=(item.code_for(reason) or item).line,
                     message=f"reason '{reason}' of item '{name}' has number {numbers[reason]}: Stata's extended "
                             "missing letters .i-.z only hold reasons 11-28",
@@ -112,14 +112,10 @@ def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta
     lookup = np.array([numbers[c] for c in cl.categories], dtype=np.int16)
     labels = {v: k for k, v in numbers.items()}
     new = {}
-    for j, name in enumerate(cl.items):
-        if items is not None and name not in items:
-            continue
+    chosen = [(j, name) for j, name in enumerate(cl.items) if items is None or name in items]
+    check_generated(status_columns([name for _, name in chosen]), data.columns)
+    for j, name in chosen:
         col = name + STATUS_SUFFIX
-        if col in data.columns:
-            raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_NAME, category=Category.DATA, item=name,
-                                        message=f"the data already has a column '{col}'",
-                                        hint="rename it before exporting statuses"))
         new[col] = lookup[cl.codes[:, j]]
         meta.column_labels[col] = f"skipwise status of {name}"
         meta.value_labels[col] = dict(labels)
@@ -127,6 +123,13 @@ def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta
     out = pd.concat([data, pd.DataFrame(new, index=data.index)], axis=1)
     out.attrs = {}
     return out, meta
+
+
+def status_columns(items: list[str] | tuple[str, ...]) -> list[Generated]:
+    """The ``<item>_status`` names the export adds, for the generated-name guard."""
+    return [Generated(name=name + STATUS_SUFFIX, role=f"status column of '{name}'",
+                      hint="rename the data's column before exporting statuses, or use the recoded form")
+            for name in items]
 
 
 def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyMeta | None = None

@@ -85,5 +85,14 @@ def classify_command(
     for status, count in shares.items():
         if count:
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
+    _echo_invalid_hint(cl, data, questionnaire)
     typer.echo(f"wrote {out}")
     typer.echo(f"wrote {fault_file} ({len(cl.faults):,} routing faults; it lists case ids)")
+
+
+def _echo_invalid_hint(cl, data: Path, questionnaire: Path) -> None:
+    from skipwise.classify.hints import invalid_hint
+
+    hint = invalid_hint(cl, data=str(data), questionnaire=str(questionnaire))
+    if hint:
+        typer.echo(hint)

@@ -29,7 +29,22 @@ import numpy as np
 from skipwise.demo.items import ITEM_NAMES
 
 __all__ = ["MECHANISMS", "nonresponse_probs", "OFF_ROUTE_RATE", "WRONG_CODE_RATE", "INVALID_RATE",
-           "INVALID_VALUES", "ASK_ANYWAY_RATE"]
+           "INVALID_VALUES", "ASK_ANYWAY_RATE", "WEB_DECLINE_CODE", "COMMENT_RATE", "COMMENTS"]
+
+#: Items whose web form offers "Prefer not to say": a web refusal is stored as this code
+#: (reason ``prefer_not_to_say``, pinned to number 21 in the questionnaire), in person as -9.
+WEB_DECLINE_CODE: Mapping[str, float] = {"savings": -8.0}
+#: Share of interviewed cases who write something in the closing comment box (the rest leave it blank).
+COMMENT_RATE = 0.06
+#: What they write (invented).
+COMMENTS = (
+    "The bus to Fennick should run on Sundays.",
+    "Please mend the footpath along the Oldmere road.",
+    "More evening trains from Brackwater, please.",
+    "Thank you, it was interesting to think about.",
+    "The questions about income were too personal.",
+    "Tollin Heath needs a doctor's surgery again.",
+)
 
 #: Item -> (total rate, share don't know, share refused); the rest of the rate is blanks.
 _MCAR: dict[str, tuple[float, float, float]] = {

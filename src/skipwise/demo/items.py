@@ -7,9 +7,10 @@ an explicit numpy condition in three-valued (Kleene) logic:
 ``F=0 < U=1 < T=2``; *and* is the minimum, *not* is ``2 - x``.
 
 A comparison reads an earlier item's recorded state: an answered item has
-its value; a skipped (or off-route) item is *absent* and every comparison
-with it is false; any other item is *unknown* and comparisons with it are
-unknown.  ``answered(x)`` is a plain fact about the stored cell.
+its value; a skipped (or off-route) item, and an optional item left blank,
+is *absent* and every comparison with it is false; any other item is
+*unknown* and comparisons with it are unknown.  ``answered(x)`` is a plain
+fact about the stored cell.
 
 References
 ----------
@@ -93,6 +94,7 @@ class DemoItem:
     range: tuple[float, float] | None = None
     substantive: tuple[float, ...] = ()
     leaf: bool = True
+    optional: bool = False   # an open text box: no answer required (a blank is left_blank)
 
 
 def _work(extra: Rule | None = None) -> Rule:
@@ -157,11 +159,12 @@ def _build() -> tuple[DemoItem, ...]:
                  rule=lambda r: _not(r.answered("income"))),
         DemoItem(name="savings", columns=("savings",), valid=YES_NO),
         DemoItem(name="recontact", columns=("recontact",), valid=YES_NO),
+        DemoItem(name="comment", columns=("comment",), optional=True),
     ]
     return tuple(it)
 
 
-#: Items in interview order (47; the set ``modes`` is one item with five columns).
+#: Items in interview order (57 with the roster's 24; the set ``modes`` is one item with five columns).
 ITEMS: tuple[DemoItem, ...] = _build()
 ITEM_NAMES: tuple[str, ...] = tuple(i.name for i in ITEMS)
 COLUMNS: tuple[str, ...] = tuple(c for i in ITEMS for c in i.columns)

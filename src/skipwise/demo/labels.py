@@ -51,6 +51,9 @@ def survey_meta(questionnaire: str | Path, *, missing_codes: Sequence[float] = (
                 meta.column_labels[col] = f"{item.label}: {opt_label}"[:250]
                 meta.value_labels[col] = {_key(item.selected): "Selected", _key(item.unselected): "Not selected",
                                           **codes}
+        elif item.type is ItemType.TEXT:
+            meta.column_labels[item.name] = item.label  # a text column carries no numeric labels or codes
+            continue
         else:
             meta.column_labels[item.name] = item.label
             vals = {_key(k): v for k, v in (item.values or {}).items()}

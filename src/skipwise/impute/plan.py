@@ -15,7 +15,7 @@ from skipwise.errors import Category, Problem, ProblemCode, ProblemList, Skipwis
 from skipwise.impute.fit import method_misfit
 from skipwise.impute.skipaware import NEVER_IMPUTED, SKIP_METHODS, ItemRule, SkipAwareSpec
 from skipwise.questionnaire.model import Questionnaire
-from skipwise.questionnaire.yamlread import LineDict, load_yaml_text, read_text_file
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 
 __all__ = ["ImputePlan", "OutputSpec", "load_plan", "check_plan", "TOP_KEYS", "RULE_KEYS", "OUTPUT_KEYS"]
 
@@ -25,6 +25,8 @@ RULE_KEYS = ("method", "classes", "covariates", "donors", "max_donor_use", "weig
 OUTPUT_KEYS = ("form", "imputation_column", "flag_suffix")
 FORMS = ("files", "stacked")
 SKIP_FILLS = ("auto", "blank", "code")
+#: Most imputations a plan may ask for (each is a full copy of the data in memory).
+MAX_IMPUTATIONS = 1000
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -84,21 +86,37 @@ class _Reader:
     def line_of(self, m: dict, key: str) -> int | None:
         return m.key_line(key) if isinstance(m, LineDict) else None
 
-    def integer(self, m: dict, key: str, default: int | None, low: int) -> int | None:
+    def integer(self, m: dict, key: str, default: int | None, low: int, high: int | None = None) -> int | None:
         if key not in m or m[key] is None:
             return default
         v = m[key]
-        if isinstance(v, bool) or not isinstance(v, int) or v < low:
-            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a whole number >= {low}, got {v!r}")
+        if isinstance(v, bool) or not isinstance(v, int) or v < low or (high is not None and v > high):
+            bound = f"from {low} to {high:,}" if high is not None else f">= {low}"
+            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a whole number {bound}, got {v!r}",
+                     "common practice: 5 to 100 imputations" if key == "imputations" else None)
             return default
         return v
+
+    def text(self, m: dict, key: str, default: str) -> str:
+        """A name as the text written (YAML 1.2 rule); a list, mapping or empty text is refused."""
+        if key not in m:
+            return default
+        t = m.text(key) if isinstance(m, LineDict) else (m[key] if isinstance(m[key], str) else None)
+        if not t or not t.strip():
+            self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a name, got {m[key]!r}")
+            return default
+        return t
 
     def names(self, m: dict, key: str) -> tuple[str, ...]:
         v = m.get(key)
         if v is None:
             return ()
+        if isinstance(m, LineDict) and not isinstance(v, (str, list, dict)):
+            v = m.text(key)  # a name is the text written (YAML 1.2 rule)
         if isinstance(v, str):
             v = [v]
+        if isinstance(v, LineList):
+            v = [v.text(i) if not isinstance(x, (list, dict)) else x for i, x in enumerate(v)]
         if not isinstance(v, list) or not all(isinstance(x, str) for x in v):
             self.add(ProblemCode.BAD_VALUE, self.line_of(m, key), f"'{key}' must be a list of names")
             return ()
@@ -137,7 +155,7 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
     """Check a plan's structure and build it (names are checked by :func:`check_plan`)."""
     r = _Reader(file)
     top = r.mapping(doc if doc is not None else LineDict(), (), TOP_KEYS, 1) or LineDict()
-    if "format" in top and top["format"] != 1:
+    if "format" in top and not is_version(top["format"], 1):
         r.add(ProblemCode.FORMAT_VERSION, r.line_of(top, "format"), f"plan format {top['format']!r} is not supported",
               "use format: 1")
     seed = top.get("seed")
@@ -157,12 +175,12 @@ def parse_plan(doc: Any, file: str | None = None) -> ImputePlan:
     statuses = r.names(top, "statuses") or None
     out = r.mapping(top.get("output"), ("output",), OUTPUT_KEYS, r.line_of(top, "output")) or {}
     output = OutputSpec(form=r.choice(out, "form", FORMS, "files"),
-                        imputation_column=str(out.get("imputation_column", "imputation")),
-                        flag_suffix=str(out.get("flag_suffix", "_imp")))
+                        imputation_column=r.text(out, "imputation_column", "imputation"),
+                        flag_suffix=r.text(out, "flag_suffix", "_imp"))
     spec = SkipAwareSpec(
         default=default if default.method != "none" else ItemRule(), items=rules,
         include=r.names(top, "only") or None, exclude=tuple(excluded), statuses=statuses,
-        m=r.integer(top, "imputations", 5, 1), seed=seed,
+        m=r.integer(top, "imputations", 5, 1, MAX_IMPUTATIONS), seed=seed,
         skip_fill=r.choice(top, "skip_fill", SKIP_FILLS, "auto"),
         max_redraws=r.integer(top, "max_redraws", 20, 0),
     )
@@ -221,4 +239,28 @@ def check_plan(plan: ImputePlan, q: Questionnaire, columns: Iterable[str]) -> No
                 pl.add(ProblemCode.TYPE_CLASH, bad, line=plan.line(*path), item=t,
                        hint="give the item its own method under items:" if name is None
                        else "choose one of the methods that fit")
+    _check_outputs(plan, q, columns, pl)
     pl.raise_if_any(headline=f"{len(pl)} problem(s) in imputation plan {plan.file or ''}".strip())
+
+
+def _check_outputs(plan: ImputePlan, q: Questionnaire, columns: list[str], pl: ProblemList) -> None:
+    """At least one item to impute, and flag / imputation-number names that clash with nothing."""
+    from skipwise.generated import Generated, generated_problems
+
+    targets = plan.spec.targets(q)
+    if not targets:
+        where = next((k for k in ("only", "exclude", "items", "default") if plan.line(k) is not None), None)
+        pl.add(ProblemCode.BAD_VALUE, "the plan leaves no item to impute", line=plan.line(where) if where else None,
+               hint="check 'only', 'exclude' and the items set to method: none (text, date and multi items "
+                    "are imputed only when named under items:)")
+        return
+    out = plan.output
+    names = []
+    if out.form == "stacked":
+        names.append(Generated(name=out.imputation_column, role="imputation column", file=plan.file,
+                               line=plan.line("output", "imputation_column"),
+                               hint="set output.imputation_column in the plan to a name the data does not use"))
+    names += [Generated(name=f"{t}{out.flag_suffix}", role=f"imputation flag of '{t}'", file=plan.file,
+                        line=plan.line("output", "flag_suffix"),
+                        hint="set output.flag_suffix in the plan to another suffix") for t in targets]
+    pl.extend(generated_problems(names, columns))

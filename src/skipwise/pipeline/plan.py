@@ -15,7 +15,7 @@ from typing import Any, Mapping
 
 from skipwise.errors import Category, ProblemCode, ProblemList, did_you_mean
 from skipwise.io.readers import SAS_OUTPUT_REASON, SUPPORTED_EXTENSIONS
-from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 from skipwise.questionnaire.model import STUDY_KEYS
 
 __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "load_run_plan",
@@ -187,7 +187,11 @@ class _Reader:
         for key, kind in schema.items():
             if d is None or key not in d or d[key] is None:
                 continue
-            got = self.value(d[key], kind, f"{where}.{key}" if where else key, d.value_mark(key).line)
+            v = d[key]
+            if kind in ("str", "path", "folder", "names") and isinstance(d, LineDict):
+                # names and paths are the text written (YAML 1.2 rule): `weight: 2024` is "2024"
+                v = d.text(key) if not isinstance(v, list) else _texts(v)
+            got = self.value(v, kind, f"{where}.{key}" if where else key, d.value_mark(key).line)
             if got is not None:
                 out[key] = got
         return out
@@ -274,7 +278,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
               "and 'output'", 1, "see docs/run-plan.md")
         r.problems.raise_if_any()
     r.keys(doc, TOP_KEYS, "the plan", ())
-    if doc.get("format") != PLAN_FORMAT:
+    if not is_version(doc.get("format"), PLAN_FORMAT):
         r.add(ProblemCode.FORMAT_VERSION, f"format must be {PLAN_FORMAT}, found {doc.get('format')!r}",
               doc.key_line("format") if "format" in doc else 1, f"write 'format: {PLAN_FORMAT}' at the top")
     data = r.need_file(doc, "data", "the survey data file", "e.g. data: interviews.sav")
@@ -352,3 +356,10 @@ def load_run_plan(path: str | Path) -> RunPlan:
     """
     path = Path(path)
     return loads_run_plan(read_text_file(path), path)
+
+
+def _texts(v: list) -> list:
+    """The entries of a list as the texts written (lists and mappings inside are kept as they are)."""
+    if not isinstance(v, LineList):
+        return v
+    return [v.text(i) if not isinstance(x, (list, dict)) and v.text(i) is not None else x for i, x in enumerate(v)]

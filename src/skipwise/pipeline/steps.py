@@ -150,6 +150,9 @@ def read_step(st: RunState, reporter: Reporter) -> None:
         from skipwise.impute.plan import check_plan
 
         check_plan(st.imputation_plan, st.q, st.data.columns)
+    from skipwise.pipeline.outnames import check_run_columns
+
+    check_run_columns(st)  # every generated column name, before any file is written
 
 
 def check_step(st: RunState, reporter: Reporter) -> None:
@@ -183,6 +186,11 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
     reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
                   + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
     reporter.info(f"{len(st.cl.faults):,} routing faults (the fault list names case ids)")
+    from skipwise.classify.hints import invalid_hint
+
+    hint = invalid_hint(st.cl, data=str(st.plan.data), questionnaire=str(st.plan.questionnaire))
+    if hint:
+        reporter.info(hint)
 
 
 def report_weight(st: RunState) -> tuple[str | None, np.ndarray | None]:

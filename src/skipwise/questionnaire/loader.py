@@ -19,7 +19,8 @@ from skipwise.questionnaire.model import (
 from skipwise.questionnaire.names import NameTable
 from skipwise.questionnaire.model import STUDY_KEYS
 from skipwise.questionnaire.numbers import code_number, number_reasons
-from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
+from skipwise.questionnaire.templates import expand, template_problem
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 from skipwise.rules import ast
 from skipwise.rules.parser import RuleSyntaxError, parse_rule
 
@@ -97,8 +98,10 @@ class _Builder:
                      "'sections'", 1, hint="see docs/questionnaire-format.md")
             self.problems.raise_if_any()
         self.check_keys(doc, TOP_KEYS, "the file")
+        from skipwise.questionnaire.values import normalize_texts
+        normalize_texts(self, doc)
         fmt = doc.get("format")
-        if fmt != 1:
+        if not is_version(fmt, 1):
             self.add(ProblemCode.FORMAT_VERSION, f"format must be 1, found {fmt!r}",
                      doc.key_line("format") if "format" in doc else 1, hint="write 'format: 1' at the top")
         survey = self.survey(doc)
@@ -278,8 +281,11 @@ class _Builder:
             self.add(ProblemCode.BAD_VALUE, f"roster 'max' must be a whole number from 1 to 99, found {mx!r}",
                      r.key_line("max") if "max" in r else r.line)
             ok = False
-        if not isinstance(col, str) or "{item}" not in col or "{n}" not in col:
-            self.add(ProblemCode.BAD_VALUE, "roster 'column' must contain {item} and {n}", r.key_line("column"))
+        why = template_problem(col, ("item", "n"), ("item", "n"))
+        if why:
+            self.add(ProblemCode.BAD_VALUE, f"roster 'column' {col!r}: {why}", r.key_line("column"),
+                     d.get("name") if isinstance(d.get("name"), str) else None,
+                     "e.g. column: '{item}_{n}'")
             ok = False
         return Roster(count=count, max=mx, column=col, line=r.line) if ok else None
 
@@ -363,7 +369,7 @@ class _Builder:
         itype: ItemType = spec["type"]
         if itype is ItemType.MULTI:
             pattern = d.get("column", "{item}_{option}")
-            columns = tuple(pattern.format(item=name, option=k) for k, _ in spec["options"])
+            columns = tuple(expand(pattern, item=name, option=k) for k, _ in spec["options"])
         else:
             columns = (name,)
         item = Item(name=name, type=itype, section=section, label=str(d.get("label", "")),

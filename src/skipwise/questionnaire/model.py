@@ -61,7 +61,9 @@ class Roster:
     line: int | None = None
 
     def column_name(self, item: str, n: int) -> str:
-        return self.column.format(item=item, n=n)
+        from skipwise.questionnaire.templates import expand
+
+        return expand(self.column, item=item, n=n)
 
 
 @dataclass(frozen=True, kw_only=True)

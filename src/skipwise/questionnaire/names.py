@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Any
 
 from skipwise.errors import ProblemCode, did_you_mean
 from skipwise.questionnaire.model import Item, ItemType
+from skipwise.questionnaire.templates import expand, template_problem
 from skipwise.questionnaire.yamlread import LineDict, Mark
 from skipwise.rules import ast
 
@@ -55,7 +56,8 @@ class NameTable:
             pattern = "{item}_{n}"
             if roster is not None and isinstance(roster.get("max"), int) and not isinstance(roster.get("max"), bool):
                 members = list(range(1, max(1, min(roster["max"], 99)) + 1))
-                pattern = roster.get("column", pattern) if isinstance(roster.get("column"), str) else pattern
+                given = roster.get("column", pattern)
+                pattern = given if template_problem(given, ("item", "n"), ("item", "n")) is None else pattern
             items = sec.get("items") if isinstance(sec.get("items"), list) else []
             bases = [it.get("name") for it in items if isinstance(it, LineDict) and isinstance(it.get("name"), str)]
             if roster is not None and isinstance(sname, str):
@@ -69,7 +71,7 @@ class NameTable:
                     cols = [name]
                     if it.get("type") == "multi" and isinstance(it.get("options"), dict):
                         col_pat = it.get("column", "{item}_{option}")
-                        if isinstance(col_pat, str):
+                        if template_problem(col_pat, ("item", "option"), ("item", "option")) is None:
                             cols += [_safe_format(col_pat, item=name, option=k) for k in it["options"]]
                     for col in cols:
                         if col in reserved:
@@ -219,7 +221,5 @@ def _norm(v: Any) -> Any:
 
 
 def _safe_format(pattern: str, **kw: Any) -> str:
-    try:
-        return pattern.format(**kw)
-    except (KeyError, IndexError, ValueError):
-        return pattern
+    """The template expanded as plain text (the loader refuses invalid templates itself)."""
+    return expand(pattern, **kw)

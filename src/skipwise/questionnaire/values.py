@@ -6,12 +6,13 @@ from typing import TYPE_CHECKING, Any
 
 from skipwise.errors import ProblemCode
 from skipwise.questionnaire.model import Code, ItemType
-from skipwise.questionnaire.yamlread import LineDict
+from skipwise.questionnaire.templates import template_problem
+from skipwise.questionnaire.yamlread import LineDict, LineList
 
 if TYPE_CHECKING:  # pragma: no cover
     from skipwise.questionnaire.loader import _Builder
 
-__all__ = ["check_item_values", "check_collisions"]
+__all__ = ["check_item_values", "check_collisions", "normalize_texts"]
 
 
 def _num(v: Any) -> bool:
@@ -63,8 +64,10 @@ def check_item_values(b: "_Builder", d: LineDict, itype: ItemType, name: str):
             opts = b.need_map(raw, "'options'", d.key_line("options"), name)
             options = tuple((k, str(v)) for k, v in (opts or {}).items())
         col = d.get("column", "{item}_{option}")
-        if not isinstance(col, str) or "{item}" not in col or "{option}" not in col:
-            b.add(ProblemCode.BAD_VALUE, "multi 'column' must contain {item} and {option}", d.key_line("column"), name)
+        why = template_problem(col, ("item", "option"), ("item", "option"))
+        if why:
+            b.add(ProblemCode.BAD_VALUE, f"multi 'column' {col!r}: {why}", d.key_line("column"), name,
+                  "e.g. column: '{item}_{option}'")
         sel, unsel = d.get("selected", 1), d.get("unselected", 0)
         if sel is None or sel == unsel:
             b.add(ProblemCode.BAD_VALUE, "'selected' must be a value different from 'unselected'",
@@ -102,3 +105,73 @@ def _same(a: Any, b: Any) -> bool:
     if _num(a) and _num(b):
         return float(a) == float(b)
     return a == b
+
+
+#: Keys whose values are texts (names, labels, reasons): kept as written in the file.
+_SURVEY_TEXTS = ("name", "title", "case_id")
+_SECTION_TEXTS = ("name", "label")
+_ITEM_TEXTS = ("name", "label", "text", "column")
+_CODE_TEXTS = ("reason", "label")
+_LABELLED = ("values", "options")
+
+
+def normalize_texts(b: "_Builder", doc: LineDict) -> None:
+    """Replace every text value of the questionnaire by its source text, in place (YAML 1.2 rule).
+
+    ``label: 2024`` is the text "2024", ``label: 1.50`` is "1.50" and ``name: true`` is "true":
+    the file's own characters, never a number or boolean turned back into text.  A list or a
+    mapping where a text belongs is refused with its line; an empty or null label is "".
+    """
+
+    def texts(d: Any, keys: tuple[str, ...], what: str, item: str | None = None) -> None:
+        if not isinstance(d, LineDict):
+            return
+        for key in keys:
+            if key in d:
+                _one(b, d, key, f"'{key}' of {what}", item, is_label=key in ("label", "title", "text"))
+
+    survey = doc.get("survey")
+    texts(survey, _SURVEY_TEXTS, "the survey")
+    context = doc.get("context")
+    if isinstance(context, LineList):
+        for i in range(len(context)):
+            t = context.text(i)
+            if t is not None and context[i] is not None:
+                context[i] = t
+    for code in _codes(doc.get("codes")):
+        texts(code, _CODE_TEXTS, "a code")
+    for sec in doc.get("sections") if isinstance(doc.get("sections"), list) else []:
+        texts(sec, _SECTION_TEXTS, "a section")
+        items = sec.get("items") if isinstance(sec, LineDict) else None
+        for it in items if isinstance(items, list) else []:
+            if not isinstance(it, LineDict):
+                continue
+            texts(it, ("name",), "an item")
+            name = it.get("name") if isinstance(it.get("name"), str) else None
+            texts(it, _ITEM_TEXTS[1:], "an item", name)
+            for code in _codes(it.get("codes")):
+                texts(code, _CODE_TEXTS, "a code", name)
+            for key in _LABELLED:
+                labels = it.get(key)
+                if isinstance(labels, LineDict):
+                    for k in list(labels):
+                        _one(b, labels, k, f"the label of {key[:-1]} {k!r}", name, is_label=True)
+
+
+def _codes(raw: Any) -> list:
+    return [c for c in raw if isinstance(c, LineDict)] if isinstance(raw, LineList) else []
+
+
+def _one(b: "_Builder", d: LineDict, key: Any, what: str, item: str | None, is_label: bool) -> None:
+    value = d[key]
+    text = d.text(key)
+    if text is None:
+        kind = "a list" if isinstance(value, list) else "a mapping"
+        b.add(ProblemCode.BAD_VALUE, f"{what} must be a text, found {kind}", d.key_line(key), item,
+              "write the text on one line, quoted if it holds ':', '[' or '{'")
+        d[key] = ""
+    elif value is None:
+        if is_label:
+            d[key] = ""  # an empty label; a missing name is left None for the loader to report
+    elif not isinstance(value, str):
+        d[key] = text

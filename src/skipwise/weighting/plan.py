@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from skipwise.errors import ProblemCode, ProblemList, SkipwiseError, did_you_mean
-from skipwise.questionnaire.yamlread import LineDict, LineList, load_yaml_text, read_text_file
+from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 from skipwise.weighting.adjust import DEFAULT_MAX_FACTOR, DEFAULT_MIN_RESPONDENTS
 from skipwise.weighting.outcomes import OUTCOME_CATEGORIES
 from skipwise.weighting.propensity import DEFAULT_PROPENSITY_CLASSES
@@ -102,6 +102,8 @@ class _Checker:
         v = m.get(key)
         if v is None:
             return None
+        if isinstance(m, LineDict) and not isinstance(v, (str, list, dict)):
+            v = m.text(key)  # a name is the text written (YAML 1.2 rule): `column: 2024` is "2024"
         if not isinstance(v, str) or not v:
             self.add(ProblemCode.BAD_VALUE, path + (key,), f"'{key}' must be a column name, got {v!r}")
             return None
@@ -109,8 +111,12 @@ class _Checker:
 
     def names(self, m: dict, key: str, path: tuple) -> tuple[str, ...]:
         v = m.get(key, [])
+        if isinstance(m, LineDict) and key in m and not isinstance(v, (str, list, dict)):
+            v = m.text(key)
         if isinstance(v, str):
             v = [v]
+        if isinstance(v, LineList):
+            v = [v.text(i) if not isinstance(x, (list, dict)) else x for i, x in enumerate(v)]
         if not isinstance(v, list) or not all(isinstance(x, str) for x in v):
             self.add(ProblemCode.BAD_VALUE, path + (key,), f"'{key}' must be a list of column names")
             return ()
@@ -213,7 +219,7 @@ def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | N
         c.problems.add(ProblemCode.DUPLICATE_NAME, f"key '{path[-1]}' is given twice", line=line,
                        item=".".join(map(str, path)), hint="keep one of them (the second would silently win)")
     top = c.mapping(raw, (), TOP_KEYS, required=("format", "dispositions"))
-    if "format" in top and top["format"] != PLAN_FORMAT:
+    if "format" in top and not is_version(top["format"], PLAN_FORMAT):
         c.add(ProblemCode.FORMAT_VERSION, ("format",), f"plan format {top['format']!r} is not supported",
               f"write format: {PLAN_FORMAT}")
     disp = _dispositions(c, top.get("dispositions")) if "dispositions" in top else DispositionSpec(column="", codes={})

@@ -2,13 +2,14 @@
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
-from typing import Callable
+from typing import Callable, Iterable
 
 import numpy as np
 import pandas as pd
 
-from skipwise.errors import Problem, ProblemCode, SkipwiseError
+from skipwise.generated import Generated, check_generated
 from skipwise.weighting.diagnostics import weight_summary
 from skipwise.weighting.outcomes import count_outcomes, outcome_rates
 from skipwise.weighting.pipeline import STAGES, ChainResult, Prepared, prepare, run_chain
@@ -17,7 +18,7 @@ from skipwise.weighting.replicates import (
     ReplicateDesign, bootstrap_design, jackknife_design, replicate_standard_errors, run_replicates,
 )
 
-__all__ = ["WeighResult", "weigh", "CAUTIONS"]
+__all__ = ["WeighResult", "weigh", "CAUTIONS", "planned_weight_columns"]
 
 #: Shown in reports, the workbook and the command's help.
 CAUTIONS: tuple[str, ...] = (
@@ -94,6 +95,7 @@ def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series
     on_design
         Called once with the number of replicates before they run.
     """
+    check_generated(planned_weight_columns(plan, frame.columns), frame.columns)
     prep = prepare(frame, plan, share_answered=share_answered)
     chain = run_chain(prep, prep.base)
     counts = count_outcomes(prep.outcome)
@@ -129,13 +131,28 @@ def _output_frame(frame: pd.DataFrame, plan: WeightingPlan, prep: Prepared, chai
         width = max(3, len(str(reps.shape[1])))
         for r in range(reps.shape[1]):
             new[f"{p}rep{r + 1:0{width}d}"] = reps[:, r]
-    clash = [c for c in new if c in frame.columns]
-    if clash:
-        raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_NAME, item=clash[0], file=plan.file,
-                                    line=plan.line("output", "prefix"),
-                                    message=f"output column(s) {clash[:5]} already exist in the data",
-                                    hint="set output.prefix in the plan to another prefix"))
+    check_generated([_generated(plan, c, "weight column") for c in new], frame.columns)
     added = pd.DataFrame(new, index=frame.index)
     out = pd.concat([frame, added], axis=1)
     out.attrs = dict(frame.attrs)
     return out, tuple(new)
+
+
+def _generated(plan: WeightingPlan, name: str, role: str) -> Generated:
+    return Generated(name=name, role=role, file=plan.file, line=plan.line("output", "prefix"),
+                     hint="set output.prefix in the weighting plan to another prefix")
+
+
+def planned_weight_columns(plan: WeightingPlan, columns: Iterable[object] = ()) -> list[Generated]:
+    """The weight columns the plan adds (``<prefix>outcome``, one per stage), for the name guard.
+
+    The number of replicate columns is known only once the design is built, so every existing
+    column that has the form of one (``<prefix>rep`` and digits) is listed as a clash too.
+    """
+    p = plan.prefix
+    names = [_generated(plan, f"{p}outcome", "outcome column")]
+    names += [_generated(plan, f"{p}{stage}", f"{stage} weight column") for stage in STAGES]
+    if plan.replicates is not None:
+        form = re.compile(re.escape(p) + r"rep[0-9]+")
+        names += [_generated(plan, str(c), "replicate weight column") for c in columns if form.fullmatch(str(c))]
+    return names
