@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import hashlib
 import shutil
+import sys
 from collections import Counter
 from pathlib import Path
 
@@ -23,14 +24,15 @@ import yaml
 from typer.testing import CliRunner
 
 import skipwise.cli as cli_package
-import skipwise.cli.app as cli_app
 from skipwise.cli import app
 from skipwise.errors import ProblemCode
 
 HERE = Path(__file__).parent / "bad_inputs"
 CATALOGUE = yaml.safe_load((HERE / "catalogue.yaml").read_text(encoding="utf-8"))["cases"]
 # The command modules, and the app module whose top-level handler reports OS and memory errors.
-CMD_MODULES = [getattr(cli_package, name) for name in dir(cli_package) if name.startswith("cmd_")] + [cli_app]
+# (the package's attribute ``app`` is the Typer application, so the module comes from sys.modules)
+CMD_MODULES = [getattr(cli_package, name) for name in dir(cli_package) if name.startswith("cmd_")] + [
+    sys.modules["skipwise.cli.app"]]
 runner = CliRunner()
 
 
@@ -63,6 +65,19 @@ def make_inputs(case: dict, inputs: Path, out: Path) -> None:
             _truncate(_good_sav(inputs / "full.zsav"), inputs / "d_truncated.zsav")
         elif what == "existing_out":
             (out / "exists.csv").write_text("id\n1\n")
+        elif what == "dir_out":  # a folder where the output file should go
+            (out / "d.csv").mkdir()
+        elif what == "foreign_package":  # a user's file in the run's package folder
+            (out / "package").mkdir()
+            (out / "package" / "notes.txt").write_text("not skipwise's\n")
+        elif what == "utf16_csv":
+            (inputs / "d_utf16.csv").write_bytes((HERE / "good_data.csv").read_text().encode("utf-16"))
+        elif what == "damaged_xlsx":  # a zip holding a workbook part that is not XML
+            import zipfile
+
+            with zipfile.ZipFile(inputs / "d_damaged.xlsx", "w") as z:
+                z.writestr("[Content_Types].xml", bytes(range(256)) * 50)
+                z.writestr("xl/workbook.xml", bytes(range(256)) * 50)
         else:
             raise AssertionError(f"unknown make entry {what!r}")
 

@@ -135,3 +135,16 @@ def test_demo_codebook_rates_equal_counts_of_the_delivered_status_columns(demo):
         assert stats["item-nonresponse-rate"] == pytest.approx(nonresp / d, abs=1e-6), col
         checked += 1
     assert checked >= 20
+
+
+def test_demo_codebook_carries_the_study_block_and_question_texts(demo):
+    etree = pytest.importorskip("lxml.etree")
+    out, _, _ = demo
+    ns = {"d": "ddi:codebook:2_5"}
+    doc = etree.parse(str(out / "package/codebook.xml"))
+    dates = {d.get("event"): d.get("date") for d in doc.findall("d:stdyDscr/d:stdyInfo/d:sumDscr/d:collDate", ns)}
+    assert dates == {"start": "2026-03-02", "end": "2026-05-29"}  # from the run plan's study block
+    assert "stratified" in doc.findtext("d:stdyDscr/d:method/d:dataColl/d:sampProc", namespaces=ns)  # questionnaire's
+    assert doc.findtext("d:dataDscr/d:var[@name='income']/d:qstn/d:qstnLit", namespaces=ns).startswith("What was")
+    md = (out / "package/codebook.md").read_text()
+    assert "| Fieldwork from | 2026-03-02 |" in md and "| question text | What was your household" in md

@@ -319,3 +319,61 @@ def test_files_of_one_command_appear_together_or_not_at_all(tmp_path, monkeypatc
             tb.write_text("new b")
     assert a.read_text() == "old a" and b.read_text() == "old b"
     assert sorted(p.name for p in tmp_path.iterdir()) == ["a.csv", "b.csv"]
+
+
+# -- smaller: what messages say -------------------------------------------------------------------
+def test_damaged_workbook_message_is_short_and_printable(tmp_path):
+    import zipfile
+
+    bad = tmp_path / "d.xlsx"
+    with zipfile.ZipFile(bad, "w") as z:  # workbook parts full of binary noise
+        z.writestr("[Content_Types].xml", bytes(range(256)) * 50)
+        z.writestr("xl/workbook.xml", bytes(range(256)) * 50)
+    result = runner.invoke(app, ["check", str(bad), "-q", str(HERE / "good_q.yaml")])
+    assert result.exit_code == 1 and "not a readable Excel workbook" in result.output
+    assert len(result.output) < 600 and "\\x" not in result.output
+    assert all(ch.isprintable() for ch in result.output.replace("\n", ""))
+
+
+def test_formula_without_a_computed_value_gives_a_note(tmp_path):
+    import openpyxl
+
+    wb = openpyxl.Workbook()  # openpyxl stores formulas without computing them: no cached value
+    ws = wb.active
+    ws.append(["id", "age"])
+    ws.append([1, 30])
+    ws.append([2, "=B2+1"])
+    wb.save(tmp_path / "d.xlsx")
+    q = tmp_path / "q.yaml"
+    q.write_text("format: 1\nsurvey: {name: t, case_id: id}\nsections:\n  - name: main\n    items:\n"
+                 "      - {name: age, type: integer, range: [0, 120]}\n")
+    result = runner.invoke(app, ["check", str(tmp_path / "d.xlsx"), "-q", str(q)])
+    assert "note:" in result.output and "1 formula cell(s) hold no computed value (B3" in result.output
+
+
+def test_nul_in_text_is_refused_for_spss_naming_the_column(tmp_path):
+    import pandas as pd
+
+    pd.DataFrame({"id": [1, 2, 3], "town": ["Orrin", "Lowe\x00sby", "Marrow"]}).to_parquet(tmp_path / "d.parquet")
+    q = tmp_path / "q.yaml"
+    q.write_text("format: 1\nsurvey: {name: t, case_id: id}\nsections:\n  - name: main\n    items:\n"
+                 "      - {name: town, type: text}\n")
+    out = tmp_path / "c.sav"
+    result = runner.invoke(app, ["classify", str(tmp_path / "d.parquet"), "-q", str(q), "-o", str(out)])
+    assert result.exit_code == 1, result.output
+    assert f"{out}, item 'town': text holds a NUL character in 1 row(s) (data row 2)" in result.output
+    assert ".part" not in result.output and not out.exists()
+    # Parquet holds the character as it is (pandas reads it back unchanged)
+    ok = runner.invoke(app, ["classify", str(tmp_path / "d.parquet"), "-q", str(q), "-o", str(tmp_path / "c.parquet")])
+    assert ok.exit_code == 0, ok.output
+    assert pd.read_parquet(tmp_path / "c.parquet")["town"].tolist()[1] == "Lowe\x00sby"
+
+
+def test_weighting_workbook_is_resolved_against_the_plan_folder(tmp_path):
+    from skipwise.weighting.plan import load_plan
+
+    plans = tmp_path / "plans"
+    plans.mkdir()
+    text = (HERE / "good_weights.yaml").read_text() + "output: {workbook: books/w.xlsx}\n"
+    (plans / "w.yaml").write_text(text)
+    assert load_plan(plans / "w.yaml").workbook == str(plans / "books/w.xlsx")

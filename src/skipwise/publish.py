@@ -111,11 +111,12 @@ def os_error_problem(exc: OSError, *, path: str | Path | None = None) -> Problem
     doing = "cannot write the output" if writing else "cannot use this path"
     if shown is not None:
         where = shown
-    if writing and exc.errno in (errno.ENOENT, errno.EACCES, errno.EPERM) and where is not None:
-        parent = Path(where).parent
-        if parent.is_dir() and _is_system_folder(parent):
+    if exc.errno in (errno.ENOENT, errno.EACCES, errno.EPERM) and where is not None:
+        parent = next((f for f in Path(where).parents if f.exists()), None)
+        if parent is not None and parent.is_dir() and _is_system_folder(parent):
             cause, hint = (f"{parent} is a system folder that does not accept new files",
                            "write the output to an ordinary folder")
+            doing = "cannot write the output"
     if exc.errno == errno.ENAMETOOLONG and name is not None:
         longest = max((len(os.fsencode(part)) for part in Path(os.fsdecode(name)).parts), default=0)
         cause += f" ({longest} bytes in one name; most allow 255)"
@@ -386,9 +387,15 @@ class PackagePublisher:
         return self.folder.with_name(f".{self.folder.name}{PREVIOUS_MARK}")
 
     def __enter__(self) -> "PackagePublisher":
+        try:
+            return self._enter()
+        except OSError as exc:
+            raise SkipwiseError(os_error_problem(exc, path=self.folder)) from None
+
+    def _enter(self) -> "PackagePublisher":
         self.folder = Path(os.path.abspath(self.folder))
         missing = [p for p in [self.folder.parent, *self.folder.parent.parents] if not p.exists()]
-        self.folder.parent.mkdir(parents=True, exist_ok=True)
+        _make_folder(self.folder.parent)
         self._made = missing  # folders to remove again if nothing is published
         self._lock()
         try:

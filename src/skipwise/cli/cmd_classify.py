@@ -41,7 +41,7 @@ def classify_command(
     """
     from skipwise.classify.export import fault_listing, faults_path, recoded_copy, with_status_columns
     from skipwise.io import get_meta, write_survey
-    from skipwise.io.atomic import atomic_output, check_writable
+    from skipwise.publish import check_writable, publish_files
     from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
 
     if engine is Engine.DASK:
@@ -72,8 +72,7 @@ def classify_command(
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
-        with atomic_output(out, overwrite=overwrite) as tmp_out, \
-                atomic_output(fault_file, overwrite=overwrite) as tmp_faults:
+        with publish_files([out, fault_file], overwrite=overwrite) as (tmp_out, tmp_faults):
             with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
             fault_listing(cl).to_csv(tmp_faults, index=False)

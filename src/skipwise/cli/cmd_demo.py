@@ -24,7 +24,7 @@ def demo_command(
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace outputs of an earlier run.")] = False,
 ) -> None:
     """Generate the invented Marrowby Valley scenario into OUT/data, write OUT/plan.yaml and run it
-    (check, classify, report, diagnose, weigh, impute, export into OUT/package), then compare the
+    (check, classify, join, weigh, report, diagnose, impute, export into OUT/package), then compare the
     results with the generator's truth.
 
     Everything in the scenario is invented; the outputs still show how real files would be

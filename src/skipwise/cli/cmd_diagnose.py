@@ -70,6 +70,10 @@ def diagnose(
     adjust: Annotated[str, typer.Option(help="Adjustment of the items' p-values for testing many items: holm (family-wise error, any dependence), bh (false discovery rate) or none.")] = "holm",
     auc_weak: Annotated[float, typer.Option(help="AUC from which a flagged item's effect is called moderate (effect size only; it never flags an item).")] = 0.60,
     auc_strong: Annotated[float, typer.Option(help="AUC from which a flagged item's association is called strong (effect size only).")] = 0.70,
+    min_base: Annotated[int, typer.Option(
+        "--min-base", min=0, help="Minimum cells in universe (D, unweighted) for an item's rate to be judged and "
+                                  "ranked; items under it are shown but marked (default 30: common practice, "
+                                  "no source).")] = 30,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace the output file if it exists.")] = False,
 ) -> None:
     """Diagnose the missingness mechanism (help text: ``_HELP``)."""
@@ -146,6 +150,10 @@ def diagnose(
             # R-indicator needs the nonrespondents); item analyses use only the rows of ``mf``
             rep = run_diagnostics(mf, aux_frame, options=opts, weights=w, response=resp_ind,
                                   progress=lambda _label: bar.update(1))
+        from skipwise.pipeline.diagnose import with_package_rates
+        from skipwise.rates import item_rates
+
+        rep = with_package_rates(rep, item_rates(cls, min_base=min_base))
         write_diagnostics_workbook(rep, output, overwrite=overwrite)
     except SkipwiseError as err:
         fail(err)
@@ -161,13 +169,22 @@ def _print_summary(rep, output: Path) -> None:
                    f"({lr.n_cases:,} cases, {lr.n_patterns} patterns, {lr.n_variables} variables)")
     else:
         typer.echo("Little's MCAR test: not run (see the workbook's notes)")
-    s = rep.summary.sort_values("nonresponse_rate", ascending=False).head(10)
-    typer.echo("Highest item nonresponse (in-scope cells):")
+    from skipwise.rates import format_rate
+
+    ranked = rep.summary[~rep.summary["below_min_base"]] if "below_min_base" in rep.summary else rep.summary
+    key = "package_nonresponse_rate" if "package_nonresponse_rate" in ranked else "nonresponse_rate"
+    s = ranked.sort_values(key, ascending=False, kind="stable").head(10)
+    typer.echo("Highest item nonresponse (package rate of D; the models' base is answered + nonresponse cells):")
     for r in s.itertuples():
         auc = "" if pd.isna(r.auc) else f", AUC {r.auc:.2f}"
         p = "" if pd.isna(r.model_p_adjusted) else f", adjusted p {r.model_p_adjusted:.2g}"
         flag = "FLAGGED (evidence against MCAR)" if r.flagged else r.association
-        typer.echo(f"  {r.item:<20} {r.nonresponse_rate:6.1%} of {r.in_scope:,}{p}{auc}; {flag}; {r.suggested}")
+        pkg = (f"{format_rate(r.package_nonresponse_rate):>6} of D = {int(r.package_D):,}; "
+               if key == "package_nonresponse_rate" and not pd.isna(r.package_D) else "")
+        typer.echo(f"  {r.item:<20} {pkg}model base {r.in_scope:,}{p}{auc}; {flag}; {r.suggested}")
+    small = int(rep.summary["below_min_base"].sum()) if "below_min_base" in rep.summary else 0
+    if small:
+        typer.echo(f"  ({small} item(s) with D under the minimum base are not ranked)")
     if rep.sensitivity is not None and rep.sensitivity.tipping_point is not None:
         sv = rep.sensitivity
         typer.echo(f"Sensitivity of {sv.item}: the mean is {sv.conclusion} {sv.threshold:g} unless nonrespondents "

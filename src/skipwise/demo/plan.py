@@ -48,6 +48,10 @@ def run_plan_text(*, interviews: str = "data/marrowby-2026.sav", questionnaire: 
         "  status_columns: [input, parquet]",
         "  recoded: [dta]",
         "  imputed_format: parquet",
+        "study:                         # overrides the questionnaire's study block key by key",
+        "  fieldwork_start: 2026-03-02",
+        "  fieldwork_end: 2026-05-29",
+        "  citation: Marrowby Valley Statistics Unit (2026). Household Life Survey 2026 (invented demo data).",
         "",
     ])
 

@@ -134,10 +134,14 @@ def _glance(ws, rep: DiagnosticsReport) -> None:
     cols = ["item", "in_scope", "nonresponse", "nonresponse_rate", "auc", "neg_log10_model_p", "model_p",
             "model_p_adjusted", "flagged", "little_p", "min_compare_p", "out_of_universe", "set_aside",
             "association", "suggested"]
+    # The package's rate (of D, as in the item report) beside the models' own base (in_scope).
+    cols += [c for c in ("package_D", "package_nonresponse_rate", "below_min_base") if c in df.columns]
     ws.cell(row=1, column=1, value="Item nonresponse and evidence against MCAR, per item").font = _TITLE
-    ws.cell(row=2, column=1, value="Rates over in-scope cells; AUC and p-values from the nonresponse model "
-                                   "on the auxiliaries (blank: not estimable).")
-    end = _table(ws, df[cols], 4, formats={"nonresponse_rate": PCT, "auc": NUM, "neg_log10_model_p": "0.00",
+    ws.cell(row=2, column=1, value="nonresponse_rate: of the model's base in_scope (answered + nonresponse cells); "
+                                   "package_nonresponse_rate: the package's item nonresponse rate of D (as in the "
+                                   "item report). AUC and p-values from the nonresponse model on the auxiliaries "
+                                   "(blank: not estimable).")
+    end = _table(ws, df[cols], 4, formats={"nonresponse_rate": PCT, "package_nonresponse_rate": PCT, "auc": NUM, "neg_log10_model_p": "0.00",
                                          "model_p": P, "model_p_adjusted": P, "little_p": P,
                                          "min_compare_p": P})
     ws.freeze_panes = "B5"

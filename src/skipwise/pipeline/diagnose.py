@@ -18,7 +18,30 @@ from skipwise.pipeline.plan import DiagnoseOptionsSpec, RunPlan
 from skipwise.pipeline.reporting import Reporter
 from skipwise.questionnaire import Questionnaire
 
-__all__ = ["diagnose_step"]
+__all__ = ["diagnose_step", "with_package_rates", "PACKAGE_COLUMNS"]
+
+#: Columns :func:`with_package_rates` adds to the diagnostics summary.
+PACKAGE_COLUMNS = ("package_D", "package_nonresponse_rate", "below_min_base")
+
+
+def with_package_rates(rep, rates):
+    """The diagnostics report with the package's rate of every item beside the model's own base.
+
+    The models are fitted on answered + nonresponse cells (``in_scope``, of the cases
+    diagnosed), so their rate ``nonresponse_rate`` has another base than the package's item
+    nonresponse rate (:func:`skipwise.rates.item_rates`: of D, every cell in universe
+    excluding breakoff and left_blank, over the whole file).  Both are kept, each with its
+    base; ``below_min_base`` marks items whose D is under the minimum base ("too few to judge").
+    """
+    import dataclasses
+
+    t = rates.table(False)
+    s = rep.summary.copy()
+    known = s["item"].isin(t.index)
+    for col, src in zip(PACKAGE_COLUMNS, ("D", "nonresponse_rate", "below_min_base")):
+        s[col] = s["item"].map(t[src]).where(known)
+    s["below_min_base"] = s["below_min_base"].fillna(False).astype(bool)
+    return dataclasses.replace(rep, summary=s)
 
 
 def _unknown(names: list[str], valid: list[str], what: str, plan: RunPlan, key: str) -> list[Problem]:
@@ -103,6 +126,9 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
     with reporter.progress("diagnosing", len(todo) + 2) as advance:
         rep = run_diagnostics(mf, aux, options=opts, weights=weights, response=resp_ind,
                               progress=lambda _label: advance(1))
+    from skipwise.rates import item_rates
+
+    rep = with_package_rates(rep, item_rates(cl, min_base=plan.min_base))
     write_diagnostics_workbook(rep, target, overwrite=True)
     if rep.little is not None:
         p = "n/a" if np.isnan(rep.little.p_value) else f"{rep.little.p_value:.4g}"
