@@ -40,7 +40,7 @@ WEIGHTING_KEYS = {"plan": "path", "data": "path"}
 IMPUTATION_KEYS = {"plan": "path"}
 STUDY_PLAN_KEYS = {key: "text" for key in STUDY_KEYS}
 OUTPUT_KEYS = {"folder": "folder", "name": "str", "status_columns": "formats", "recoded": "formats",
-               "imputed_format": "format"}
+               "imputed_format": "format", "timestamp": "timestamp"}
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -87,6 +87,7 @@ class OutputOptions:
     status_columns: tuple[str, ...] = ("input", "parquet")
     recoded: tuple[str, ...] = ()
     imputed_format: str = "input"
+    timestamp: str | None = None   # ISO date-time written inside the files (default: the data file's mtime)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -209,6 +210,12 @@ class _Reader:
             return float(v) if number else bad("a number")
         if kind == "str":
             return v.strip() if isinstance(v, str) and v.strip() else bad("a name")
+        if kind == "timestamp":  # an unquoted ISO date may load as a date: keep its ISO text
+            import datetime as _dt
+
+            if isinstance(v, (_dt.date, _dt.datetime)):
+                return v.isoformat()
+            return v.strip() if isinstance(v, str) and v.strip() else bad('an ISO date-time, e.g. "2026-06-30T12:00:00"')
         if kind == "text":
             return str(v).strip() if (isinstance(v, str) or number) and str(v).strip() else bad("a single text")
         if kind in ("path", "folder"):
@@ -316,6 +323,14 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
     if "status_columns" in out and not out["status_columns"]:
         r.add(ProblemCode.BAD_VALUE, "'output.status_columns' needs at least one format",
               r.lines.get(("output", "status_columns")), "e.g. [input, parquet]")
+    if "timestamp" in out:
+        from skipwise.io.stable import parse_timestamp
+
+        try:
+            parse_timestamp(out["timestamp"])
+        except ValueError:
+            r.add(ProblemCode.BAD_VALUE, f"'output.timestamp' must be an ISO date or date-time, found "
+                  f"{out['timestamp']!r}", r.lines.get(("output", "timestamp")), 'e.g. timestamp: "2026-06-30T12:00:00"')
     if data is not None and "name" in out and out["name"] != Path(out["name"]).name:
         r.add(ProblemCode.BAD_VALUE, "'output.name' is a file stem, not a path", r.lines.get(("output", "name")),
               "e.g. name: lake-survey-2026")
@@ -335,7 +350,8 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
     assert data is not None and questionnaire is not None
     output = OutputOptions(folder=out["folder"], name=out.get("name", data.stem),
                            status_columns=out.get("status_columns", ("input", "parquet")),
-                           recoded=out.get("recoded", ()), imputed_format=out.get("imputed_format", "input"))
+                           recoded=out.get("recoded", ()), imputed_format=out.get("imputed_format", "input"),
+                           timestamp=out.get("timestamp"))
     return RunPlan(
         file=file.resolve(), data=data, questionnaire=questionnaire, output=output,
         stop_on_check_error=check.get("stop_on_error", False), check_top=check.get("top", 5),
