@@ -71,6 +71,18 @@ def test_classify_writes_status_columns_and_faults(files):
     assert again.exit_code == 1 and "--overwrite" in again.output
 
 
+def test_classify_jobs_option_gives_the_same_file(files):
+    tmp, q, data = files
+    for jobs in ("1", "2"):
+        result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / f"j{jobs}.csv"),
+                                     "--jobs", jobs])
+        assert result.exit_code == 0, result.output
+    assert (tmp / "j1.csv").read_bytes() == (tmp / "j2.csv").read_bytes()
+    assert (tmp / "j1_faults.csv").read_bytes() == (tmp / "j2_faults.csv").read_bytes()
+    bad = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / "j0.csv"), "--jobs", "0"])
+    assert bad.exit_code != 0 and not (tmp / "j0.csv").exists()
+
+
 def test_classify_recoded_dta_read_by_pandas(files):
     tmp, q, data = files
     out = tmp / "coded.dta"

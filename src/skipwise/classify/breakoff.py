@@ -44,10 +44,12 @@ def last_activity(kinds: np.ndarray, counted: np.ndarray | None = None) -> np.nd
     (optional items).  One pass over the item columns (contiguous in the Fortran-ordered matrix),
     never over cases.
     """
-    last = np.full(kinds.shape[0], -1, dtype=np.int32)
+    # position + 1 of the latest activity so far: a running maximum, no masked copy per item
+    last = np.zeros(kinds.shape[0], dtype=np.int32)
     for j in range(kinds.shape[1]):
         if counted is None or counted[j]:
-            np.copyto(last, np.int32(j), where=kinds[:, j] >= K.NONRESP)  # NONRESP, SUBST, INVALID
+            np.maximum(last, (kinds[:, j] >= K.NONRESP) * np.int32(j + 1), out=last)  # NONRESP, SUBST, INVALID
+    last -= 1
     return last
 
 
@@ -81,7 +83,10 @@ def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q:
             end = np.where(given, reached, end)
             broke = broke | given
     for j in range(p):
-        status[:, j][candidate(j) & broke & (end < j)] = breakoff
+        turn = candidate(j) & broke & (end < j)
+        if turn.any():  # arithmetic on the int8 column: breakoff where turned, unchanged elsewhere
+            col = status[:, j]
+            col += turn.view(np.int8) * (np.int8(breakoff) - col)
 
 
 def _position_of_last_item(column: pd.Series, q: Questionnaire) -> np.ndarray:

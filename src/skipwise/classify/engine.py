@@ -33,6 +33,8 @@ their counts added.
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ThreadPoolExecutor
 from typing import Callable
 
 import numpy as np
@@ -46,7 +48,7 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_y
 from skipwise.questionnaire.model import Item, ItemType, Questionnaire
 from skipwise.rules.evaluate import ABSENT, KNOWN, TRUE, UNK, UNKNOWN, Operand, evaluate, isin_small
 
-__all__ = ["classify", "check_columns"]
+__all__ = ["classify", "check_columns", "default_jobs", "BLOCK_ROWS"]
 
 ProgressFn = Callable[[int, int], None]
 
@@ -98,9 +100,8 @@ class _Env:
         item, code = self._codes[name]
         return isin_small(code, [i for i, c in enumerate(item.codes) if c.reason == reason])
 
-    def add(self, item: Item, dec: K.Decoded, status: np.ndarray, state_of: np.ndarray) -> None:
-        """Record an item's rule values: its state is looked up from its status codes."""
-        state = np.take(state_of, status)
+    def add(self, item: Item, dec: K.Decoded, state: np.ndarray) -> None:
+        """Record an item's rule values (``state``: the rule state its statuses give)."""
         answered = dec.kind == K.SUBST
         self._codes[item.name] = (item, dec.code)
         self._answered[item.name] = answered
@@ -113,7 +114,20 @@ class _Env:
                 self._codes[col] = (item, dec.code)
 
 
-def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: ProgressFn | None = None) -> Classification:
+#: Rows per block.  Fixed, so the blocks (and so the results) never depend on ``jobs``.
+BLOCK_ROWS = 1 << 16
+
+
+def default_jobs() -> int:
+    """Threads used when none are asked for: the machine's cores (those this process may use)."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except (AttributeError, OSError):  # not every platform has affinity masks
+        return max(1, os.cpu_count() or 1)
+
+
+def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: ProgressFn | None = None,
+             jobs: int | None = None) -> Classification:
     """Give every (case, item) of ``data`` exactly one status (DESIGN §3).
 
     Parameters
@@ -125,6 +139,10 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
         A loaded :class:`~skipwise.questionnaire.Questionnaire`.
     progress
         Optional callback ``progress(items_done, items_total)``.
+    jobs
+        Threads classifying blocks of rows at once (default: the machine's
+        cores).  Classification is row-local and the blocks are fixed, so
+        the result is the same for every ``jobs``.
 
     Returns
     -------
@@ -134,37 +152,103 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
     Raises
     ------
     SkipwiseError
-        When questionnaire columns are missing from the data.
+        When questionnaire columns are missing from the data, or ``jobs`` is not a positive number.
     """
     q = questionnaire
     check_columns(data, q)
+    jobs = default_jobs() if jobs is None else jobs
+    if isinstance(jobs, bool) or not isinstance(jobs, (int, np.integer)) or jobs < 1:
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE,
+                                    message=f"jobs must be a whole number of at least 1, not {jobs!r}",
+                                    hint="give the number of threads, e.g. 2, or leave it out to use every core"))
     cats = status_categories(q)
-    code_of = {c: i for i, c in enumerate(cats)}
     n, p = len(data), len(q.items)
     status = np.empty((n, p), dtype=np.int8, order="F")
     kinds = np.empty((n, p), dtype=np.int8, order="F")
     universe = np.empty((n, p), dtype=np.int8, order="F")
-    env = _Env(data, q)
-    # Rule value of each status: answered is known; skipped, off_route and left_blank absent; the rest unknown.
-    state_of = np.array([KNOWN if c == S.ANSWERED else ABSENT if c in S.ABSENT_AS_INPUT else UNKNOWN
-                         for c in cats], dtype=np.int8)
-    base = _status_table(code_of).ravel()
-    base_optional = _status_table(code_of, optional=True).ravel()
-    for j, item in enumerate(q.items):
-        dec = K.decode_item(item, data)
-        u = evaluate(item.rule, env) if item.rule is not None else np.full(n, TRUE, dtype=np.int8)
-        st = np.take(base_optional if item.optional else base, dec.kind * np.int8(3) + u)
-        nonresp = st < 0
-        if nonresp.any():
-            reason_code = np.array([code_of.get(c.reason, -1) for c in item.codes] + [-1], dtype=np.int8)
-            st[nonresp] = reason_code[dec.code[nonresp]]
-        status[:, j], kinds[:, j], universe[:, j] = st, dec.kind, u
-        env.add(item, dec, st, state_of)
+    tables = _Tables(q, cats)
+    starts = list(range(0, n, BLOCK_ROWS)) or [0]
+    blocks = [(lo, min(lo + BLOCK_ROWS, n)) for lo in starts]
+    units = len(blocks) * p
+    done = [0]
+
+    def advance(k: int) -> None:
+        done[0] += k
         if progress is not None:
-            progress(j + 1, p)
-    apply_breakoff(status, kinds, data, q, code_of)
+            progress(done[0] * p // units if units else p, p)
+
+    def run(block: tuple[int, int], per_item: Callable[[int], None] | None) -> None:
+        lo, hi = block
+        _classify_block(data.iloc[lo:hi], q, tables, status[lo:hi], kinds[lo:hi], universe[lo:hi], per_item)
+
+    if jobs == 1 or len(blocks) == 1:
+        for block in blocks:
+            run(block, advance)
+    else:
+        with ThreadPoolExecutor(max_workers=min(jobs, len(blocks))) as pool:
+            futures = [pool.submit(run, block, None) for block in blocks]
+            for future in futures:  # in block order, so the first failing block is the one reported
+                future.result()
+                advance(p)
     return Classification(questionnaire=q, codes=status, kinds=kinds, universe=universe, categories=cats,
                           index=data.index, case_ids=data[q.case_id].to_numpy(), data=data)
+
+
+class _Tables:
+    """Lookup tables of one questionnaire, shared by every block."""
+
+    def __init__(self, q: Questionnaire, cats: tuple[str, ...]):
+        self.code_of = code_of = {c: i for i, c in enumerate(cats)}
+        # Rule value of each status: answered is known; skipped, off_route and left_blank absent; the rest unknown.
+        self.state_of = np.array([KNOWN if c == S.ANSWERED else ABSENT if c in S.ABSENT_AS_INPUT else UNKNOWN
+                                  for c in cats], dtype=np.int8)
+        self.base = _status_table(code_of).ravel()
+        self.base_optional = _status_table(code_of, optional=True).ravel()
+        self.reason_code = {item.name: np.array([code_of.get(c.reason, -1) for c in item.codes] + [-1], dtype=np.int8)
+                            for item in q.items}
+        self.words = {item.name: self._words(item) for item in q.items} if len(cats) <= 64 else {}
+
+    def _words(self, item: Item) -> tuple[int, int, int, tuple[int, ...]] | None:
+        """Packed outcome words of the numeric fast path (:func:`cells.packed_word`); None: no fast path."""
+        table = (self.base_optional if item.optional else self.base).reshape(5, 3)
+
+        def word(kind: int, reason: int = -1) -> int | None:
+            statuses = tuple(int(reason if s < 0 else s) for s in table[kind])
+            if min(statuses) < 0:
+                return None
+            return K.packed_word(statuses, kind, tuple(int(self.state_of[s]) for s in statuses))  # type: ignore
+
+        codes = [word(K.KIND_OF[c.kind], int(r)) for c, r in zip(item.codes, self.reason_code[item.name])]
+        words = (word(K.BLANK), word(K.SUBST), word(K.INVALID))
+        if any(w is None for w in (*words, *codes)):
+            return None
+        return (*words, tuple(codes))  # type: ignore[return-value]
+
+
+def _classify_block(data: pd.DataFrame, q: Questionnaire, t: _Tables, status: np.ndarray, kinds: np.ndarray,
+                    universe: np.ndarray, per_item: Callable[[int], None] | None) -> None:
+    """Classify the rows of ``data`` into the matching rows of the three matrices (in place)."""
+    n = len(data)
+    env = _Env(data, q)
+    for j, item in enumerate(q.items):
+        # The rule reads earlier items only, so the universe comes first.
+        u = evaluate(item.rule, env) if item.rule is not None else np.full(n, TRUE, dtype=np.int8)
+        words = t.words.get(item.name)
+        series = data[item.name] if item.type is not ItemType.MULTI else None
+        if words is not None and series is not None and K.numeric_fast_path(item, series):
+            dec, st, state = K.decode_numeric(item, series, words, u)
+        else:
+            dec = K.decode_item(item, data)
+            st = np.take(t.base_optional if item.optional else t.base, dec.kind * np.int8(3) + u)
+            nonresp = st < 0
+            if nonresp.any():
+                st[nonresp] = t.reason_code[item.name][dec.code[nonresp]]
+            state = np.take(t.state_of, st)
+        status[:, j], kinds[:, j], universe[:, j] = st, dec.kind, u
+        env.add(item, dec, state)
+        if per_item is not None:
+            per_item(1)
+    apply_breakoff(status, kinds, data, q, t.code_of)
 
 
 def _status_table(code_of: dict[str, int], *, optional: bool = False) -> np.ndarray:

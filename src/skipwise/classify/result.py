@@ -16,9 +16,9 @@ import pandas as pd
 
 from skipwise.classify import cells as K
 from skipwise.classify import statuses as S
+from skipwise.classify.faultlist import fault_listing
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
-from skipwise.questionnaire.model import ItemType, Questionnaire
-from skipwise.rules import ast
+from skipwise.questionnaire.model import Questionnaire
 from skipwise.rules.evaluate import TRUE, UNK, isin_small
 
 __all__ = ["Classification", "status_categories"]
@@ -168,26 +168,12 @@ class Classification:
     # -- routing faults -----------------------------------------------------------------------
     @cached_property
     def faults(self) -> pd.DataFrame:
-        """One row per ``off_route``, ``wrong_code`` or ``invalid`` cell, with the rule and its inputs."""
-        frames = []
-        fault_codes = [self.code(s) for s in S.FAULT_STATUSES]
-        for j, name in enumerate(self.items):
-            rows = np.flatnonzero(isin_small(self.codes[:, j], fault_codes))
-            if rows.size == 0:
-                continue
-            item = self.questionnaire.item(name)
-            frames.append(pd.DataFrame({
-                "case_id": self.case_ids[rows],
-                "item": name,
-                "status": np.asarray(self.categories, dtype=object)[self.codes[rows, j]],
-                "value": _stored_text(self.data, item.columns, rows, multi=item.type is ItemType.MULTI),
-                "rule": item.rule_text,
-                "inputs": _inputs_text(self.data, self.questionnaire, item.rule, rows),
-            }))
-        cols = ["case_id", "item", "status", "value", "rule", "inputs"]
-        if not frames:
-            return pd.DataFrame({c: pd.Series(dtype=object) for c in cols})
-        return pd.concat(frames, ignore_index=True)[cols]
+        """One row per ``off_route``, ``wrong_code`` or ``invalid`` cell, with the rule and its inputs.
+
+        Built on first use, column by column (:mod:`skipwise.classify.faultlist`).
+        """
+        return fault_listing(self.questionnaire, self.codes, self.categories,
+                             [self.code(s) for s in S.FAULT_STATUSES], self.case_ids, self.data)
 
     # -- analysis views -----------------------------------------------------------------------
     def analysis_values(self, data: pd.DataFrame | None = None) -> pd.DataFrame:
@@ -218,36 +204,3 @@ def _weights(weight: pd.Series | np.ndarray | None, n: int) -> np.ndarray | None
                                     hint="give one weight per case, in the data's row order"))
     return np.where(np.isnan(w), 0.0, w)
 
-
-def _cell_text(series: pd.Series) -> pd.Series:
-    """Stored cells as text; whole numbers without a trailing '.0'."""
-    if pd.api.types.is_numeric_dtype(series.dtype) and not pd.api.types.is_bool_dtype(series.dtype):
-        x = series.to_numpy(dtype=np.float64, na_value=np.nan)
-        whole = np.isfinite(x) & (np.floor(x) == x)
-        text = np.where(whole, np.char.mod("%d", np.where(whole, x, 0).astype(np.int64)), x.astype(str))
-        return pd.Series(np.where(np.isnan(x), "", text), index=series.index, dtype=object)
-    return series.astype(object).where(series.notna(), "").astype(str)
-
-
-def _joined(part: pd.DataFrame, columns: list[str]) -> np.ndarray:
-    """``col=value; col=value`` of each row of ``part`` (vectorized string concatenation)."""
-    joined = pd.Series("", index=part.index, dtype=object)
-    for k, col in enumerate(columns):
-        joined = joined + ("; " if k else "") + col + "=" + _cell_text(part[col])
-    return joined.to_numpy(dtype=object)
-
-
-def _stored_text(data: pd.DataFrame, columns: tuple[str, ...], rows: np.ndarray, *, multi: bool) -> np.ndarray:
-    part = data.iloc[rows]
-    if not multi:
-        return _cell_text(part[columns[0]]).to_numpy(dtype=object)
-    return _joined(part, list(columns))
-
-
-def _inputs_text(data: pd.DataFrame, q: Questionnaire, rule: ast.BoolNode | None, rows: np.ndarray) -> np.ndarray:
-    """Stored values of the columns a rule reads (a set read as a whole shows its option columns)."""
-    if rule is None:
-        return np.full(rows.size, "", dtype=object)
-    names = dict.fromkeys(n for n, _ in ast.names(rule))
-    columns = [c for n in names for c in (q.item(n).columns if n in q else (n,))]
-    return _joined(data.iloc[rows], list(dict.fromkeys(columns)))

@@ -31,6 +31,9 @@ def classify_command(
     engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
+    jobs: Annotated[int | None, typer.Option(
+        "--jobs", min=1, help="Threads classifying blocks of rows at once (default: every core of the "
+                              "machine). The result is the same for every number.")] = None,
 ) -> None:
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
@@ -64,7 +67,7 @@ def classify_command(
         check_writable(out, overwrite=overwrite, inputs=inputs)
         check_writable(fault_file, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
-        cl = classify_with_progress(frame, q)
+        cl = classify_with_progress(frame, q, jobs=jobs)
         meta = get_meta(frame)
         fmt = out.suffix.lower().lstrip(".")
         if chosen is ExportForm.COLUMNS:

@@ -23,13 +23,14 @@ def load_inputs(data_path: Path, questionnaire_path: Path) -> tuple[pd.DataFrame
     return read_survey(data_path), q
 
 
-def classify_with_progress(data: pd.DataFrame, q: Questionnaire, *, label: str = "classifying"):
-    """Classify, with a progress bar over items when the file is large."""
+def classify_with_progress(data: pd.DataFrame, q: Questionnaire, *, label: str = "classifying",
+                           jobs: int | None = None):
+    """Classify, with a progress bar over items when the file is large (``jobs``: threads, default all cores)."""
     from skipwise.classify import classify
     from skipwise.pipeline.reporting import classify_progress
 
     with classify_progress(EchoReporter(), len(q.items), data.shape[0] * len(q.items), label) as step:
-        return classify(data, q, progress=step)
+        return classify(data, q, progress=step, jobs=jobs)
 
 
 class EchoReporter:

@@ -136,6 +136,7 @@ def _date_kind(s: pd.Series, fmt: str) -> str:
 def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: list[Problem], *,
                     ext_missing_ok: bool) -> Prepared:
     out = Prepared(frame=pd.DataFrame(index=pd.RangeIndex(len(df))))
+    columns: dict = {}
     for col in df.columns:
         s = df[col].reset_index(drop=True)
         if isinstance(s.dtype, pd.CategoricalDtype):
@@ -169,13 +170,11 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
             elif inferred in ("date", "datetime", "datetime64"):
                 kind, s = "datetime", pd.to_datetime(s)
             elif inferred in ("mixed", "mixed-integer"):
-                num = pd.to_numeric(s, errors="coerce")
-                rest = s.notna() & num.isna()
-                text = s[rest].astype(str)
-                odd = text[~text.str.fullmatch(EXT_LETTER.pattern)]
-                if len(odd):
+                num, rest, texts, codes = split_numbers(s)
+                odd = [t for t in texts if not EXT_LETTER.fullmatch(t)]
+                if odd:
                     problems.append(problem(path, "column mixes numbers and text, or holds values that are neither "
-                                                  f"numbers, text nor dates (e.g. {odd.iloc[0]!r})", item=str(col),
+                                                  f"numbers, text nor dates (e.g. {odd[0]!r})", item=str(col),
                                             hint="make the column all numbers or all text"))
                 elif not ext_missing_ok:
                     problems.append(problem(path, "column holds Stata extended missing values (.a-.z) or SAS "
@@ -185,11 +184,11 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                                                  "or write .dta or .parquet"))
                 else:
                     kind = "extmiss"
-                    mixed = num.astype(object)
-                    bare = _bare_letters(text, str(col), path, problems)
-                    mixed[rest] = bare
-                    out.letters[col] = set(pd.unique(bare.dropna()))
-                    s = mixed
+                    mixed = numbers_as_objects(s, num)
+                    bare = np.array([stata_letter(t, str(col), path, problems) for t in texts], dtype=object)
+                    mixed[rest] = bare[codes[rest]]
+                    out.letters[col] = {b for b in bare if b is not None}
+                    s = pd.Series(mixed, dtype=object)
         if kind == "datetime":
             if isinstance(s.dtype, pd.DatetimeTZDtype):
                 s = s.dt.tz_localize(None)
@@ -201,8 +200,43 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
         out.kinds[col] = kind
         if kind == "text":
             _refuse_nul(s, str(col), path, problems)
-        out.frame[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s
+        columns[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s.reset_index(drop=True)
     _refuse_nul_labels(meta, [str(c) for c in df.columns], path, problems)
+    if columns:  # one frame built at once, not one insertion per column
+        out.frame = pd.DataFrame(columns, index=pd.RangeIndex(len(df)))
+    return out
+
+
+def split_numbers(s: pd.Series) -> tuple[np.ndarray, np.ndarray, list[str], np.ndarray]:
+    """Numbers and texts of an object column, each distinct value converted once.
+
+    Returns the values as numbers (``pd.to_numeric(errors="coerce")``, NaN for text and blanks),
+    the mask of stored values that are no numbers, those values' distinct texts (in order of first
+    appearance) and, per row, the index of its text among them (meaningful where the mask is set).
+    """
+    codes, uniques = pd.factorize(np.asarray(s.to_numpy(dtype=object), dtype=object), use_na_sentinel=True)
+    as_numbers = pd.to_numeric(pd.Series(uniques, dtype=object), errors="coerce").to_numpy(
+        dtype=np.float64, na_value=np.nan)
+    num = np.append(as_numbers, np.nan)[codes]  # code -1 (blank) takes the appended NaN
+    textual = np.flatnonzero(np.isnan(as_numbers))
+    position = np.full(len(uniques) + 1, -1, dtype=np.int64)
+    position[textual] = np.arange(textual.size)
+    rest = (codes >= 0) & np.isnan(num)
+    return num, rest, [str(uniques[k]) for k in textual], position[codes]
+
+
+def numbers_as_objects(s: pd.Series, num: np.ndarray) -> np.ndarray:
+    """``num`` as an object array, reusing the column's own float objects (no boxing per cell).
+
+    Cells that hold a Python float already keep it; blanks become NaN and every other cell (an
+    int, numeric text, a numpy scalar) its number, as ``num.astype(object)`` would give.
+    """
+    values = s.to_numpy(dtype=object)
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    plain = np.append(np.fromiter((type(u) is float for u in uniques), dtype=bool, count=len(uniques)), False)
+    out = values.copy()
+    redo = ~plain[codes]
+    out[redo] = num[redo].astype(object)
     return out
 
 

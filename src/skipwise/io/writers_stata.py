@@ -10,7 +10,7 @@ import pandas as pd
 from skipwise.errors import SkipwiseError
 from skipwise.io.meta import SurveyMeta, normalize_value
 from skipwise.io.writers_common import (
-    EXT_LETTER, Job, check_names, note, prepare_columns, problem, stata_letter,
+    EXT_LETTER, Job, check_names, note, prepare_columns, problem, split_numbers, stata_letter,
 )
 
 __all__ = ["prepare_dta"]
@@ -92,10 +92,12 @@ def _numbers_first(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
     out = frame
     for col in columns:
         s = frame[col]
+        first = s.iloc[:100]  # the head decides; most columns are settled without reading the rest
+        if not split_numbers(first)[1][first.notna().to_numpy()].all():
+            continue
         present = s.notna().to_numpy()
-        is_letter = present & pd.to_numeric(s, errors="coerce").isna().to_numpy()  # letters are no numbers
-        head = slice(0, 100)
-        if not is_letter[head][present[head]].all() or is_letter[present].all():
+        is_letter = split_numbers(s)[1]  # letters are no numbers (each distinct value tested once)
+        if is_letter[present].all():
             continue
         numbers = pd.unique(s[present & ~is_letter])
         letters = pd.unique(s[is_letter])

@@ -1,0 +1,70 @@
+"""End to end: ``skipwise classify big.sav -q q.yaml -o out.sav``, beside pyreadstat's own read and write.
+
+Figure: wall time and peak memory (largest resident set) of the command in a child process on
+bench_classify's 1,000,000 x 200 file.  Floors measured in the same run: pyreadstat's read of the
+input .sav, and pyreadstat's write of the command's result frame (the data plus 200 status
+columns).  Targets: at most 1.2x (read + write floors); peak at most 2x the frame in memory.
+
+    python benchmarks/bench_cli_sav.py [--cases N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+import pyreadstat
+
+from _common import children_peak_mb, result, scaled
+from bench_classify import make_data, questionnaire_text
+from skipwise.classify import classify
+from skipwise.classify.export import with_status_columns
+from skipwise.questionnaire import loads_questionnaire
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--cases", type=int, default=scaled(1_000_000))
+    args = ap.parse_args()
+    rng = np.random.default_rng(1)
+    text = questionnaire_text(200, 100, rng)
+    data = make_data(args.cases, 200, rng)
+    frame_mb = data.memory_usage(deep=True).sum() / 2**20
+    with tempfile.TemporaryDirectory() as tmp:
+        src, qfile, out = Path(tmp) / "big.sav", Path(tmp) / "q.yaml", Path(tmp) / "out.sav"
+        qfile.write_text(text)
+        pyreadstat.write_sav(data, str(src))
+        del data
+        t0 = time.perf_counter()
+        data, _ = pyreadstat.read_sav(str(src), user_missing=True)
+        read = time.perf_counter() - t0
+        res, _ = with_status_columns(data, classify(data, loads_questionnaire(text)))
+        del data
+        t0 = time.perf_counter()
+        pyreadstat.write_sav(res, str(Path(tmp) / "floor.sav"))
+        write = time.perf_counter() - t0
+        del res
+        skipwise = [sys.executable, "-m", "skipwise"]
+        t0 = time.perf_counter()
+        done = subprocess.run([*skipwise, "classify", str(src), "-q", str(qfile), "-o", str(out)],
+                              capture_output=True, text=True, env=os.environ)
+        secs = time.perf_counter() - t0
+        if done.returncode != 0:
+            print(done.stdout, done.stderr)
+            raise SystemExit("the command failed")
+        peak = children_peak_mb()
+    floor = read + write
+    print(f"classify .sav -> .sav : {secs:.1f} s, peak {peak:,.0f} MB ({peak / frame_mb:.2f}x the {frame_mb:,.0f} MB frame)")
+    print(f"floors                : read {read:.1f} s + write {write:.1f} s = {floor:.1f} s")
+    result(f"CLI classify .sav {args.cases:,} x 200", f"{secs:.1f} s, peak {peak / frame_mb:.2f}x frame",
+           f"{floor:.1f} s", secs / floor, "<= 1.2x, peak <= 2x frame", secs <= 1.2 * floor and peak <= 2 * frame_mb)
+
+
+if __name__ == "__main__":
+    main()
