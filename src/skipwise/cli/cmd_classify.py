@@ -46,6 +46,7 @@ def classify_command(
     from skipwise.io import get_meta, write_survey
     from skipwise.publish import check_writable, publish_files
     from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
+    from skipwise.io.stable import stamp_file, timestamp_of
 
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
@@ -78,6 +79,7 @@ def classify_command(
         with publish_files([out, fault_file], overwrite=overwrite) as (tmp_out, tmp_faults):
             with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
+            stamp_file(tmp_out, timestamp_of(data))  # the write time inside the file: the data's own
             fault_listing(cl).to_csv(tmp_faults, index=False)
     except SkipwiseError as err:
         fail(err)
