@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test venv clean bench
+.PHONY: demo test venv clean bench bench-all
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -22,8 +22,16 @@ demo: $(STAMP)
 test: $(STAMP)
 	$(BIN)/python -m pytest
 
+# The speed table's workloads (benchmarks/README.md); SKIPWISE_BENCH_SCALE scales the cases.
+BENCH_TABLE := classify faults cli_sav recoded_dta report little pmm
 bench: $(STAMP)
-	for f in benchmarks/bench_*.py; do echo "== $$f"; $(BIN)/python $$f || exit 1; done
+	@for b in $(BENCH_TABLE); do echo "== benchmarks/bench_$$b.py"; \
+	  $(BIN)/python benchmarks/bench_$$b.py | tee -a .bench.log || exit 1; done; \
+	echo "== summary"; grep '^RESULT' .bench.log; rm -f .bench.log
+
+bench-all: bench
+	$(BIN)/python benchmarks/bench_weighting.py
+	$(BIN)/python benchmarks/bench_impute.py
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .hypothesis

@@ -32,6 +32,16 @@ def best_of(fn: Callable[[], object], repeat: int = REPEAT) -> tuple[float, obje
     return best, out
 
 
+def cpu_of(fn: Callable[[], object]) -> tuple[float, float, object]:
+    """Wall and CPU seconds (this process, all its threads) of one call, and its result.
+
+    On a shared machine the CPU seconds show the work done when other processes hold the cores.
+    """
+    w0, c0 = time.perf_counter(), time.process_time()
+    out = fn()
+    return time.perf_counter() - w0, time.process_time() - c0, out
+
+
 def children_peak_mb() -> float:
     """Largest resident set of any finished child process so far, in MB (Linux reports KB)."""
     return resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024

@@ -18,7 +18,7 @@ import tracemalloc
 import numpy as np
 import pandas as pd
 
-from _common import REPEAT, best_of, result, scaled
+from _common import REPEAT, best_of, cpu_of, result, scaled
 from skipwise.classify import classify
 from skipwise.questionnaire import loads_questionnaire
 
@@ -82,6 +82,7 @@ def main() -> None:
     floor = numpy_floor(data, q.item_names)
     secs, cl = best_of(lambda: classify(data, q, jobs=args.jobs))
     del cl
+    wall1, cpu1, _ = cpu_of(lambda: classify(data, q, jobs=1))
     tracemalloc.start()
     classify(data, q, jobs=args.jobs)
     extra_mb = tracemalloc.get_traced_memory()[1] / 2**20
@@ -89,6 +90,7 @@ def main() -> None:
     rate = cells / secs / 1e6
     print(f"cases x items        : {args.cases:,} x {args.items} ({args.rules} rules, depth <= 3)")
     print(f"classify             : {secs:.2f} s (best of {REPEAT}) = {rate:.0f} M cells/s")
+    print(f"one thread           : {wall1:.2f} s wall, {cpu1:.2f} s CPU = {cells / cpu1 / 1e6:.0f} M cells per CPU second")
     print(f"floor (numpy 3 cmp)  : {floor:.2f} s")
     print(f"ratio to the floor   : {secs / floor:.1f}x")
     print(f"memory added         : {extra_mb:,.0f} MB beside the {input_mb:,.0f} MB frame "

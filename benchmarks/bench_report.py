@@ -88,11 +88,21 @@ def openpyxl_floor(report: Path, target: Path) -> float:
     from openpyxl.cell import WriteOnlyCell
 
     source = load_workbook(report, read_only=True)
+    styles: dict = {}  # style id -> (font, fill, border, alignment, number format), copied once
     sheets = []
     for ws in source.worksheets:  # read (not timed): values and styles of every cell
-        rows = [[(cell.value, copy(cell.font), copy(cell.fill), copy(cell.border), copy(cell.alignment),
-                  cell.number_format) for cell in row if cell.value is not None or getattr(cell, "has_style", False)]
-                for row in ws.iter_rows()]
+        rows = []
+        for row in ws.iter_rows():
+            cells = []
+            for cell in row:
+                sid = getattr(cell, "style_id", 0)
+                if cell.value is None and not sid:
+                    continue
+                if sid and sid not in styles:
+                    styles[sid] = (copy(cell.font), copy(cell.fill), copy(cell.border), copy(cell.alignment),
+                                   cell.number_format)
+                cells.append((cell.value, styles.get(sid)))
+            rows.append(cells)
         sheets.append((ws.title, rows))
     source.close()
     t0 = time.perf_counter()
@@ -101,10 +111,10 @@ def openpyxl_floor(report: Path, target: Path) -> float:
         ws = wb.create_sheet(title)
         for row in rows:
             cells = []
-            for value, font, fill, border, alignment, number_format in row:
+            for value, style in row:
                 cell = WriteOnlyCell(ws, value=value)
-                cell.font, cell.fill, cell.border, cell.alignment = font, fill, border, alignment
-                cell.number_format = number_format
+                if style is not None:
+                    cell.font, cell.fill, cell.border, cell.alignment, cell.number_format = style
                 cells.append(cell)
             ws.append(cells)
     wb.save(target)

@@ -69,7 +69,8 @@ def reference(package):
         state = np.where(st == "answered", KNOWN, np.where(np.isin(st, ["skipped", "off_route", "left_blank"]),
                                                           ABSENT, UNKNOWN)).astype(np.int8)
         for c in (item.name, *item.columns):
-            col = df[c].to_numpy(dtype=float) if c in df.columns else np.full(len(df), np.nan)
+            col = (pd.to_numeric(df[c], errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+                   if c in df.columns else np.full(len(df), np.nan))  # text items: no rule reads them as numbers
             rec.value[c] = np.where(st == "answered", col, np.nan)
             rec.state[c] = state
             rec.has_answer[c] = st == "answered"

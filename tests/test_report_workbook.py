@@ -190,7 +190,7 @@ def test_patterns_match_pandas_groupby(tmp_path):
 
 def test_structure_names_panes_filters(tiny, tmp_path):
     df, q = tiny
-    path = write_item_report(df, q, tmp_path / "st.xlsx", weight="wt", by=["region"])
+    path = write_item_report(df, q, tmp_path / "st.xlsx", weight="wt", by=["region"], min_base=1)
     wb = openpyxl.load_workbook(path)
     assert wb.sheetnames == list(SHEETS)
     assert wb["Items"].freeze_panes == "C4"
@@ -317,3 +317,18 @@ def test_one_pass_figures_equal_classifier_methods(tiny):
         for status, n in hand[item].value_counts().items():
             assert fig.counts.loc[item, status] == n, (item, status)
     assert fig.answered.tolist() == (hand == "answered").sum(axis=1).tolist()
+
+
+def test_worst_items_chart_leaves_out_small_bases_and_sorts(tiny, tmp_path):
+    df, q = tiny
+    path = write_item_report(df, q, tmp_path / "c.xlsx", min_base=5)
+    ws = openpyxl.load_workbook(path)["Charts"]
+    rows = [r[29:31] for r in ws.iter_rows(min_row=4, values_only=True) if len(r) > 30 and r[29]]
+    # Hand, from HAND: D = a 6, b 2, c 5, d 5, e 5, f 2; nonresponse a 1, c 2, d 0, e 1.
+    # b and f (D = 2 < 5) are left out; worst first.
+    assert [r[0] for r in rows] == ["c", "e", "a", "d"]
+    assert_allclose([r[1] for r in rows], [2 / 5, 1 / 5, 1 / 6, 0.0], rtol=1e-12)
+    items = openpyxl.load_workbook(path)["Items"]
+    header, table = _sheet_table(items, 3)
+    marked = {r[header.index("Item")] for r in table if r[header.index("Below minimum base")]}
+    assert marked == {"b", "f"}

@@ -58,7 +58,7 @@ def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q:
     """Turn the blank cells after each broken-off interview's end into ``breakoff`` (in place)."""
     spec = q.breakoff
     n, p = status.shape
-    if n == 0 or p == 0:
+    if n == 0 or p == 0 or not spec.enabled:
         return
     missing, unknown, breakoff = code_of[S.ITEM_MISSING], code_of[S.GATE_UNKNOWN], code_of[S.BREAKOFF]
     left_blank = code_of[S.LEFT_BLANK]

@@ -84,7 +84,7 @@ def diagnose(
         from skipwise.cli.common import classify_with_progress
         from skipwise.diagnostics import SuggestionThresholds
         from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
-        from skipwise.diagnostics.survey import check_unit_auxiliaries, survey_inputs
+        from skipwise.diagnostics.survey import check_unit_auxiliaries, sensitivity_problem, survey_inputs
         from skipwise.diagnostics.workbook import write_diagnostics_workbook
         from skipwise.io import read_survey
         from skipwise.io.atomic import check_writable
@@ -106,6 +106,8 @@ def diagnose(
                            hint=did_you_mean(n, q.item_names)) for n in named if n not in q.item_names]
         if unknown:
             raise SkipwiseError(unknown)
+        if sensitivity and (bad := sensitivity_problem(q, sensitivity, file=str(questionnaire))):
+            raise SkipwiseError(bad)
         data = read_survey(data_path)
         rows = None
         resp_ind = None

@@ -14,6 +14,7 @@ from pathlib import Path
 
 from skipwise.draft import Draft, DraftCode, DraftItem, guess_code, _lift
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.publish import clean_message
 from skipwise.questionnaire.model import CodeKind, ItemType
 
 __all__ = ["draft_from_ddi"]
@@ -57,7 +58,7 @@ def _parse(path: Path) -> ET.Element:
     try:
         root = ET.fromstring(raw)
     except ET.ParseError as err:
-        raise _fail(path, f"not well-formed XML ({err})", "check that the file is a DDI-Codebook XML document") from None
+        raise _fail(path, f"not well-formed XML ({clean_message(err)})", "check that the file is a DDI-Codebook XML document") from None
     if root.tag != "{ddi:codebook:2_5}codeBook":
         raise _fail(path, f"the root element is {root.tag.split('}')[-1]!r}, not a DDI-Codebook 2.5 codeBook",
                     "export the codebook as DDI-Codebook 2.5 (namespace ddi:codebook:2_5)")

@@ -96,7 +96,7 @@ class MissingnessFrame:
         n_total = len(keep)
         n_keep = int(keep.sum())
         desc = (f"{n_keep:,} of {n_total:,} cases: those in scope (in universe, and answered or "
-                f"item nonresponse) for all {len(items)} chosen variables")
+                f"item nonresponse) for every chosen item ({', '.join(items)})")
         return JointFrame(frame=self.values.loc[keep, items], n_cases_total=n_total,
                           n_dropped=n_total - n_keep, description=desc)
 

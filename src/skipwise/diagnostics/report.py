@@ -225,6 +225,7 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
                 if len(frame) < before:
                     notes.append(("Little's test", "", f"{before - len(frame):,} cases with a missing "
                                   "auxiliary were left out."))
+        # the number of variables is stated once, by the test's result (console and workbook alike)
         scope = joint.description + (f"; with the numeric auxiliaries {', '.join(map(str, frame.columns[len(l_items):]))}"
                                      if frame.shape[1] > len(l_items) else "")
         try:

@@ -17,7 +17,8 @@ from skipwise.diagnostics.frame import MissingnessFrame, missingness_frame
 from skipwise.diagnostics.report import choose_little_items
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
-__all__ = ["SurveyInputs", "survey_inputs", "default_auxiliaries", "check_unit_auxiliaries", "CORE_ITEMS", "WELL_ANSWERED", "MAX_LEVELS"]
+__all__ = ["SurveyInputs", "survey_inputs", "default_auxiliaries", "check_unit_auxiliaries",
+           "sensitivity_problem", "CORE_ITEMS", "WELL_ANSWERED", "MAX_LEVELS"]
 
 #: Respondent items used as auxiliaries by default, when the questionnaire has them: the core
 #: demographics that item nonresponse most often depends on (common practice, no source).
@@ -231,3 +232,24 @@ def _check_unit_auxiliaries(aux: pd.DataFrame, responded: pd.Series) -> None:
                      "auxiliaries to the default choice"))
     if problems:
         raise SkipwiseError(problems)
+
+
+def sensitivity_problem(questionnaire, item: str, *, file: str | None = None, line: int | None = None
+                        ) -> Problem | None:
+    """Refuse a sensitivity item that is not numeric: shifting the mean of category codes means nothing.
+
+    The delta adjustment shifts the nonrespondents' mean of a quantity (Rubin 1987; van Buuren
+    2018, *Flexible Imputation of Missing Data*, on delta adjustment [memory]), so it needs an
+    ``integer`` or ``number`` item.
+    """
+    from skipwise.questionnaire import ItemType
+
+    if item not in questionnaire.item_names:
+        return None
+    kind = questionnaire.item(item).type
+    if kind in (ItemType.INTEGER, ItemType.NUMBER):
+        return None
+    return Problem(code=ProblemCode.TYPE_CLASH, category=Category.USAGE, item=item, file=file, line=line,
+                   message=f"the sensitivity analysis shifts a mean, and '{item}' is {kind.value}: its codes "
+                           "have no mean",
+                   hint="choose an integer or number item (for a category, a 0/1 item of it)")

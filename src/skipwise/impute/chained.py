@@ -6,7 +6,9 @@ turn and re-impute its missing cells from a model on all other items (current
 values) and the covariates, with *proper* draws (the model parameters are
 drawn from their approximate posterior before each imputation). Models are
 always fitted to the item's observed cases only. The chains' seeds come from
-one ``numpy.random.SeedSequence``, so one seed fixes all M datasets.
+one ``numpy.random.SeedSequence`` (one spawned child per imputation), so one seed fixes all
+M datasets, and the chains may run in parallel processes (``workers``) with the same result
+whatever the number of processes.
 
 References
 ----------
@@ -20,6 +22,8 @@ Rubin, D. B. (1987). *Multiple Imputation for Nonresponse in Surveys*. Wiley.
 
 from __future__ import annotations
 
+import os
+from concurrent.futures import ProcessPoolExecutor
 from dataclasses import dataclass
 from typing import Callable, Collection, Mapping, Sequence
 
@@ -37,6 +41,34 @@ __all__ = ["ChainedResult", "chained_impute", "spawn_generators"]
 def spawn_generators(seed: int | None, m: int) -> list[np.random.Generator]:
     """M independent generators from one seed (numpy SeedSequence spawning)."""
     return [np.random.default_rng(s) for s in np.random.SeedSequence(seed).spawn(m)]
+
+
+def _chain(y: np.ndarray, miss: np.ndarray, todo: list[int], cat_items: list[int], xcov: np.ndarray,
+           methods: list[str], iterations: int, k: int, seq: np.random.SeedSequence):
+    """One chain: (completed item matrix, mean of the imputed values per iteration, fallback notes)."""
+    rng = np.random.default_rng(seq)
+    cur = y.copy()
+    for j in todo:
+        obs = cur[~miss[:, j], j]
+        cur[miss[:, j], j] = obs[rng.integers(0, obs.size, size=int(miss[:, j].sum()))]
+    means, fallbacks = [], set()
+    for _ in range(iterations):
+        for j in todo:
+            x = _predictors(cur, j, cat_items, xcov)
+            mj = miss[:, j]
+            vals, note = draw_values(methods[j], y[~mj, j], x[~mj], x[mj], rng, proper=True, k=k)
+            if note:
+                fallbacks.add((j, note))
+            cur[mj, j] = vals
+        means.append([float(cur[miss[:, j], j].mean()) for j in todo])
+    return cur, means, fallbacks
+
+
+def _run_chains(args: tuple, seqs: list, workers: int) -> list:
+    if workers <= 1 or len(seqs) <= 1:
+        return [_chain(*args, seq) for seq in seqs]
+    with ProcessPoolExecutor(max_workers=min(workers, len(seqs))) as pool:
+        return list(pool.map(_chain, *zip(*[(*args, seq) for seq in seqs])))
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -85,7 +117,7 @@ class ChainedResult:
 def chained_impute(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequence[str] = (),
                    method: str = "pmm", methods: Mapping[str, str] | None = None,
                    categorical: Collection[str] = (), m: int = 5, iterations: int = 10, k: int = 5,
-                   seed: int | None = None,
+                   seed: int | None = None, workers: int | None = 1,
                    progress: Callable[[int], None] | None = None) -> ChainedResult:
     """M completed datasets by chained equations over ``items``.
 
@@ -109,9 +141,13 @@ def chained_impute(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequ
     k
         PMM donor pool size.
     seed
-        One seed for all chains.
+        One seed for all chains: imputation i draws from child i of ``SeedSequence(seed)``.
+    workers
+        Processes running chains at once (default 1; None: one per CPU).  The completed
+        datasets do not depend on it.
     progress
-        Called with 1 after every finished chain (for a progress bar).
+        Called with 1 after every finished chain (for a progress bar; with several workers,
+        the calls come when all chains are done).
 
     Returns
     -------
@@ -147,21 +183,14 @@ def chained_impute(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequ
     cat_items = [j for j in range(len(items)) if items[j] in categorical]
     datasets, chain_rows = [], []
     fallbacks: set[str] = set()
-    for imp, rng in enumerate(spawn_generators(seed, m)):
-        cur = y.copy()
-        for j in todo:
-            obs = cur[~miss[:, j], j]
-            cur[miss[:, j], j] = obs[rng.integers(0, obs.size, size=int(miss[:, j].sum()))]
-        for it in range(iterations):
-            for j in todo:
-                x = _predictors(cur, j, cat_items, xcov)
-                mj = miss[:, j]
-                vals, note = draw_values(methods[items[j]], y[~mj, j], x[~mj], x[mj], rng, proper=True, k=k)
-                if note:
-                    fallbacks.add(f"{items[j]}: {note}")
-                cur[mj, j] = vals
+    n_workers = (os.cpu_count() or 1) if workers is None else int(workers)
+    seqs = np.random.SeedSequence(seed).spawn(m)
+    args = (y, miss, todo, cat_items, xcov, [methods[i] for i in items], iterations, k)
+    for imp, (cur, means, notes_j) in enumerate(_run_chains(args, seqs, n_workers)):
+        fallbacks |= {f"{items[j]}: {note}" for j, note in notes_j}
+        for it, row in enumerate(means):
             chain_rows.append({"imputation": imp + 1, "iteration": it + 1,
-                               **{items[j]: float(cur[miss[:, j], j].mean()) for j in todo}})
+                               **{items[j]: v for j, v in zip(todo, row)}})
         done = data.copy()
         for j in todo:
             col = items[j]

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from skipwise.classify import statuses as S
+from skipwise.impute.draws import distinct_columns
 from skipwise.questionnaire.model import ItemType, Questionnaire
 
 __all__ = ["class_arrays", "predictor_matrix", "item_values"]
@@ -92,5 +93,4 @@ def predictor_matrix(data: pd.DataFrame, status: pd.DataFrame, q: Questionnaire,
     keep = np.ptp(mat, axis=0) > 0 if n else np.zeros(mat.shape[1], bool)
     mat = mat[:, keep]
     # Drop exact duplicates of earlier columns (an indicator repeating another): keeps XᵀX regular.
-    _, first = np.unique(mat.T, axis=0, return_index=True)
-    return mat[:, np.sort(first)]
+    return mat[:, distinct_columns(mat)]

@@ -282,7 +282,7 @@ def parquet_frame(table, path: Path, fmt: str = "parquet") -> pd.DataFrame:
         try:
             meta = SurveyMeta.from_json(raw[META_KEY])
         except (ValueError, TypeError, KeyError) as exc:
-            raise _unreadable(path, f"the file's skipwise metadata is damaged ({exc})") from None
+            raise _unreadable(path, f"the file's skipwise metadata is damaged ({clean_message(exc)})") from None
     table = table.replace_schema_metadata({k: v for k, v in raw.items() if k == b"pandas"})
     df = table.to_pandas()
     df.attrs.clear()

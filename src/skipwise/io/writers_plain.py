@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from skipwise.errors import SkipwiseError
+from skipwise.publish import clean_message
 from skipwise.io.meta import SurveyMeta
 from skipwise.io.readers import META_KEY, MIXED_KEY
 from skipwise.io.writers_common import EXT_LETTER, Job, check_names, problem
@@ -69,7 +70,7 @@ def prepare_parquet(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) ->
     try:
         table = pa.Table.from_pandas(frame, preserve_index=None)
     except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError) as exc:
-        raise SkipwiseError(problem(path, f"the data cannot be stored in Parquet ({exc})",
+        raise SkipwiseError(problem(path, f"the data cannot be stored in Parquet ({clean_message(exc)})",
                                     hint="make each column hold one type of value")) from None
     extra = {META_KEY: meta.to_json().encode("utf-8")}
     if mixed:

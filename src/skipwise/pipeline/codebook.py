@@ -113,7 +113,8 @@ def _weight_blocks(st, frame: pd.DataFrame) -> list[Block]:
                                        else f"the {t.percentile:g}th percentile") + ", then recalibrated")
     if p.replicates is not None and res.design is not None:
         lines.append(f"Replicate weights: {res.design.count} ({res.design.method})"
-                     + (f", seed {p.replicates.seed}" if p.replicates.method != "jackknife" else ""))
+                     + (f", seed {p.replicates.seed}" if p.replicates.method != "jackknife" else "")
+                     + ". " + " ".join(res.design.describe()))
     rr3 = res.rates.get("RR3")
     lines.append(f"Response rate RR3 {format_rate(rr3) if rr3 is not None else 'n/a'} (the professional "
                  f"association's Standard Definitions); Kish design effect of the final weights "

@@ -63,7 +63,7 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
     """
     from skipwise.diagnostics import SuggestionThresholds
     from skipwise.diagnostics.report import DiagnoseOptions, run_diagnostics
-    from skipwise.diagnostics.survey import check_unit_auxiliaries, survey_inputs
+    from skipwise.diagnostics.survey import check_unit_auxiliaries, sensitivity_problem, survey_inputs
     from skipwise.diagnostics.workbook import write_diagnostics_workbook
 
     o: DiagnoseOptionsSpec = plan.diagnose  # type: ignore[assignment]
@@ -85,6 +85,9 @@ def diagnose_step(data: pd.DataFrame, q: Questionnaire, cl: Classification, plan
                                 line=plan.line("diagnose", "add_aux"),
                                 message="'add_aux' adds to the default auxiliaries; with 'aux' there are none",
                                 hint="list every auxiliary under 'aux', or use 'add_aux' alone"))
+    if o.sensitivity and (bad := sensitivity_problem(q, o.sensitivity, file=str(plan.file),
+                                                     line=plan.line("diagnose", "sensitivity"))):
+        problems.append(bad)
     if o.threshold is not None and o.sensitivity is None:
         problems.append(Problem(code=ProblemCode.MISSING_KEY, category=Category.USAGE, file=str(plan.file),
                                 line=plan.line("diagnose", "threshold"), message="'threshold' needs 'sensitivity'",

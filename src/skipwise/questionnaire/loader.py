@@ -217,6 +217,9 @@ class _Builder:
     def breakoff(self, doc: LineDict) -> BreakoffSpec:
         if "breakoff" not in doc:
             return BreakoffSpec()
+        if doc["breakoff"] is False or doc["breakoff"] is True:
+            # `breakoff: false` turns detection off (every blank in universe is then item nonresponse)
+            return BreakoffSpec(enabled=bool(doc["breakoff"]), line=doc.key_line("breakoff"))
         d = self.need_map(doc["breakoff"], "'breakoff'", doc.key_line("breakoff"))
         if d is None:
             return BreakoffSpec()

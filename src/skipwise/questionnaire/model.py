@@ -135,6 +135,7 @@ class BreakoffSpec:
     disposition: str | None = None        # disposition column ...
     breakoff_codes: tuple[object, ...] = ()  # ... and its codes that mean "broke off"
     line: int | None = None
+    enabled: bool = True                  # ``breakoff: false`` turns detection off
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -322,7 +322,7 @@ def load_yaml_text(text: str, file: str | None = None) -> Any:
             hint="check indentation, colons and quotes on this line")) from None
     except yaml.YAMLError as exc:
         raise SkipwiseError(Problem(code=ProblemCode.YAML_SYNTAX, file=file,
-                                    message=f"not valid YAML: {exc}")) from None
+                                    message=f"not valid YAML: {_clean(exc)}")) from None
     except RecursionError:
         raise SkipwiseError(Problem(code=ProblemCode.YAML_SYNTAX, file=file,
                                     message="the file nests too deeply to read",
@@ -335,3 +335,9 @@ def load_yaml_text(text: str, file: str | None = None) -> Any:
             message=f"'{m.text}' (not a number) cannot be used in a definition file",
             hint="write a number, or quote it ('.nan') if you mean the text") for m in loader.nan_marks])
     return doc
+
+
+def _clean(exc: Exception) -> str:
+    from skipwise.publish import clean_message
+
+    return clean_message(exc)

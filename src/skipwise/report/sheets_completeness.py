@@ -16,6 +16,9 @@ __all__ = ["CompletenessLayout", "write_completeness_sheet", "write_charts_sheet
 COMPLETENESS_HEADER_ROW = 3
 #: The item chart shows at most this many items (interview order); the Items sheet has them all.
 CHART_MAX_ITEMS = 250
+#: Column of the Charts sheet's own table of the worst items (right of the charts).
+_TABLE_COL_INDEX = 30
+_TABLE_COL = "AD"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -54,17 +57,36 @@ def write_completeness_sheet(wb: Any, table: pd.DataFrame, summary: list[tuple[s
 
 
 def write_charts_sheet(wb: Any, items: ItemsLayout, comp: CompletenessLayout, items_ws: Any, comp_ws: Any,
-                       *, weighted: bool, title: str = "Charts") -> None:
-    """Native bar charts of the item nonresponse rate by item and of case completeness."""
+                       *, weighted: bool, title: str = "Charts", worst: pd.Series | None = None,
+                       min_base: int | None = None) -> None:
+    """Native bar charts of the item nonresponse rate by item and of case completeness.
+
+    ``worst``: the items' rates at or above the minimum base, worst first; when given the item
+    chart shows those (at most :data:`CHART_MAX_ITEMS`) from a small table on this sheet.
+    """
     ws = wb.create_sheet(title)
     st.printable(ws)
     n_items = items.last_row - items.first_row + 1
+    if worst is not None:
+        n_items = len(worst)
     shown = min(n_items, CHART_MAX_ITEMS)
     ws.append(st.title_row(ws, "Charts"))
     note = "Charts read their figures from the Items and Completeness sheets."
+    if worst is not None:
+        note = ("The item chart shows the items with the highest item nonresponse rate, worst first, from the "
+                f"table at column {_TABLE_COL}; items with D under the minimum base ({min_base}) are left out.")
+    if worst is not None and not len(worst):
+        note = f"No item has at least {min_base} cells in D (the minimum base): there is no item chart."
     if shown < n_items:
-        note += f" The item chart shows the first {shown} of {n_items} items in interview order."
+        note += f" The item chart shows the first {shown} of {n_items} items."
     ws.append(st.note_row(ws, note))
+    if worst is not None:  # the chart's own data: item, rate (rows 3 .. 3 + shown)
+        lead = [None] * (_TABLE_COL_INDEX - 1)
+        ws.append(lead + [st.text_cell(ws, "Item"), st.text_cell(ws, str(worst.name or "Item nonresponse rate"))])
+        for item, rate in worst.head(shown).items():
+            ws.append(lead + [st.text_cell(ws, item), st.value_cell(ws, float(rate), st.PCT)])
+        items_ws, items = ws, ItemsLayout(title=title, first_row=4, last_row=3 + shown,
+                                          item_col=_TABLE_COL_INDEX, rate_col=_TABLE_COL_INDEX + 1)
     if n_items > 0:
         chart = BarChart()
         chart.type = "bar"  # horizontal bars: item names stay readable

@@ -242,8 +242,10 @@ def write_item_report(
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
     comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
                                            title=SHEETS[5])
+    ranked = rates_all.ranked(weighted=w is not None)["nonresponse_rate"]
+    ranked.name = T.ITEM_RATE_W if w is not None else T.ITEM_RATE
     write_charts_sheet(wb, items_layout, comp_layout, items_ws, wb[SHEETS[5]], weighted=w is not None,
-                       title=SHEETS[6])
+                       title=SHEETS[6], worst=ranked, min_base=min_base)
     wb.properties.title = f"Item nonresponse report: {q.title or q.name}"
     wb.properties.creator = f"skipwise {skipwise.__version__}"
     with atomic_output(path, overwrite=overwrite) as tmp:

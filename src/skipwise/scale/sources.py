@@ -15,6 +15,7 @@ from pathlib import Path
 import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.publish import clean_message
 
 __all__ = ["Part", "parquet_parts", "read_part", "DEFAULT_PARTITION_ROWS"]
 
@@ -68,7 +69,7 @@ def parquet_parts(source: str | Path, partition_rows: int = DEFAULT_PARTITION_RO
             info = pq.ParquetFile(f)
         except (pyarrow.ArrowException, OSError) as exc:
             raise SkipwiseError(Problem(code=ProblemCode.FILE_UNREADABLE, category=Category.DATA, file=str(f),
-                                        message=f"not a readable Parquet file ({exc})",
+                                        message=f"not a readable Parquet file ({clean_message(exc)})",
                                         hint="check the file was copied completely")) from None
         cols = list(info.schema_arrow.names)
         if names is None:

@@ -287,11 +287,23 @@ def parse_plan(raw: Any, *, file: str | None = None, lines: dict[tuple, int] | N
     rep = None
     if "replicates" in top:
         p = ("replicates",)
-        m = c.mapping(top["replicates"], p, ("method", "psu", "strata", "count", "seed"))
+        m = c.mapping(top["replicates"], p, ("method", "psu", "strata", "count", "seed", "fpc", "fraction"))
+        fpc = m.get("fpc", False)
+        if not isinstance(fpc, bool):
+            c.add(ProblemCode.BAD_VALUE, p + ("fpc",), f"'fpc' must be true or false, got {fpc!r}")
+            fpc = False
         rep = ReplicateSpec(method=c.choice(m, "method", p, ("jackknife", "bootstrap"), "jackknife"),
                             psu=c.name(m, "psu", p), strata=c.name(m, "strata", p),
                             count=c.number(m, "count", p, 200, low=2, integer=True),
-                            seed=c.number(m, "seed", p, 12345, low=0, integer=True))
+                            seed=c.number(m, "seed", p, 12345, low=0, integer=True),
+                            fpc=fpc, fraction=c.name(m, "fraction", p))
+        if fpc and rep.fraction is None and (rep.psu is not None or base.get("probability") is None):
+            c.add(ProblemCode.MISSING_KEY, p + ("fpc",),
+                  "'fpc: true' needs the sampling fractions: name their column with 'fraction' (each "
+                  "stratum's share of its PSUs sampled); without a PSU column the base 'probability' "
+                  "serves")
+        if rep.fraction is not None and not fpc:
+            c.add(ProblemCode.BAD_VALUE, p + ("fraction",), "'fraction' is used only with 'fpc: true'")
     est = None
     if "estimates" in top:
         p = ("estimates",)

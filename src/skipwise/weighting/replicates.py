@@ -2,7 +2,11 @@
 
 Each replicate multiplies the base weights by its factors and re-runs the whole
 weighting chain (:func:`skipwise.weighting.pipeline.run_chain`), so the
-variance reflects every adjustment and calibration step.
+variance reflects every adjustment and calibration step.  Without ``fraction``
+the variances are with-replacement variances (no finite population correction);
+with the strata's sampling fractions f_h they carry the correction (1 − f_h):
+the jackknife through its coefficients, the bootstrap through Rao & Wu's
+rescaling factor λ_h = √(1 − f_h).
 """
 
 from __future__ import annotations
@@ -38,10 +42,27 @@ class ReplicateDesign:
     factors: np.ndarray
     coef: np.ndarray
     group: np.ndarray
+    fpc: bool = False
 
     @property
     def count(self) -> int:
         return self.factors.shape[1]
+
+    def describe(self) -> tuple[str, ...]:
+        """Method, replicate factors and variance formula in words (rendered by the workbook and codebook)."""
+        fpc = ("with the finite population correction (1 − f_h) from the strata's sampling fractions"
+               if self.fpc else "no finite population correction (with-replacement variance; `fpc: true` "
+               "applies one when the sampling fractions are known)")
+        if self.method in ("JK1", "JKn"):
+            where = "in its stratum h" if self.method == "JKn" else "(one stratum)"
+            return (f"{self.method} delete-one-PSU jackknife, {self.count} replicates: replicate (h, j) gives PSU j "
+                    f"weight 0 and multiplies the other PSUs {where} by n_h/(n_h − 1); every weighting step is "
+                    "re-run in each replicate.",
+                    "Variance: Σ_h (1 − f_h)(n_h − 1)/n_h Σ_j (θ_hj − θ̄_h)².", f"Variance: {fpc}.")
+        return (f"Rao–Wu rescaling bootstrap, {self.count} replicates, n_h − 1 PSUs drawn with replacement per "
+                "stratum: factor 1 − λ_h + λ_h n_h/(n_h − 1) m*_hi, m*_hi the times PSU i was drawn, "
+                "λ_h = √(1 − f_h); every weighting step is re-run in each replicate.",
+                "Variance: 1/R Σ_r (θ_r − θ̄)².", f"Variance: {fpc}.")
 
 
 def _units(frame: pd.DataFrame, psu: str | None, strata: str | None) -> tuple[np.ndarray, np.ndarray]:
@@ -81,19 +102,52 @@ def _check_count(r: int) -> None:
                                     hint="name a PSU column that groups cases, or use the bootstrap"))
 
 
-def jackknife_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None) -> ReplicateDesign:
+def _fractions(fraction: np.ndarray | None, stratum: np.ndarray, n_strata: int, what: str) -> np.ndarray:
+    """Sampling fraction f_h of each stratum (0 where none is given); one value per stratum, 0 ≤ f_h < 1."""
+    if fraction is None:
+        return np.zeros(n_strata)
+    f = np.asarray(fraction, dtype=float)
+    problems = []
+    if np.isnan(f).any() or (f < 0).any() or (f >= 1).any():
+        problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=what,
+                                message="sampling fractions must lie in [0, 1) for every case",
+                                hint="give each stratum's share of its units that was sampled"))
+    else:
+        lo = np.full(n_strata, np.inf)
+        hi = np.full(n_strata, -np.inf)
+        np.minimum.at(lo, stratum, f)
+        np.maximum.at(hi, stratum, f)
+        if (hi - lo > 1e-12 * np.maximum(hi, 1)).any():
+            problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=what,
+                                    message=f"{int((hi - lo > 1e-12).sum())} stratum(s) have more than one "
+                                            "sampling fraction",
+                                    hint="the finite population correction needs one fraction per stratum"))
+        else:
+            return hi
+    raise SkipwiseError(problems)
+
+
+def jackknife_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None, *,
+                     fraction: np.ndarray | None = None) -> ReplicateDesign:
     """Delete-one-PSU jackknife: JK1 without strata, JKn with strata.
 
     Replicate (h, j) sets the weights of PSU j to 0 and multiplies the other PSUs
     of stratum h by ``n_h/(n_h−1)``.  Without a PSU column each case is its own PSU.
+    The variance is ``Σ_h (1 − f_h)(n_h−1)/n_h Σ_j (θ_hj − θ̄_h)²``, with f_h the
+    stratum's sampling fraction (per case in ``fraction``; default 0, no finite
+    population correction).  For the mean of a simple random sample without
+    replacement, JK1 then gives ``(1 − n/N) s²/n`` (Cochran 1977, sec. 2.5); JKn
+    gives the stratified formula ``Σ_h W_h² (1 − f_h) s_h²/n_h`` (sec. 5.3).
 
     References
     ----------
     Quenouille, M. H. (1956). Notes on bias in estimation. *Biometrika* 43, 353–360.
     Wolter, K. M. (2007). *Introduction to Variance Estimation*, 2nd ed., ch. 4. Springer.
+    Cochran, W. G. (1977). *Sampling Techniques*, 3rd ed. Wiley.
     """
     unit, stratum = _units(frame, psu, strata)
     of_unit = _psu_strata(unit, stratum)
+    f_h = _fractions(fraction, stratum, int(stratum.max()) + 1 if len(stratum) else 1, "fraction")
     n_units = len(of_unit)
     _check_count(n_units)
     n_h = np.bincount(of_unit)
@@ -107,17 +161,20 @@ def jackknife_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
     f_units = np.where(same, (n_h / (n_h - 1.0))[of_unit][None, :], 1.0)
     np.fill_diagonal(f_units, 0.0)
     stratified = strata is not None
-    coef = ((n_h - 1.0) / n_h)[of_unit]
+    coef = ((1.0 - f_h) * (n_h - 1.0) / n_h)[of_unit]
     return ReplicateDesign(method="JKn" if stratified else "JK1", factors=f_units[unit], coef=coef,
-                           group=of_unit if stratified else np.zeros(n_units, dtype=np.intp))
+                           group=of_unit if stratified else np.zeros(n_units, dtype=np.intp),
+                           fpc=fraction is not None)
 
 
 def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None, *,
-                     count: int = 200, seed: int = 12345) -> ReplicateDesign:
+                     count: int = 200, seed: int = 12345, fraction: np.ndarray | None = None) -> ReplicateDesign:
     """Rao–Wu rescaling bootstrap with ``m_h = n_h − 1`` PSUs drawn per stratum.
 
-    Replicate factor of PSU i in stratum h: ``(n_h/(n_h−1)) · m*_hi``, with
-    m*_hi the times PSU i was drawn.
+    Replicate factor of PSU i in stratum h: ``1 − λ_h + λ_h (n_h/(n_h−1)) m*_hi``, with
+    m*_hi the times PSU i was drawn and ``λ_h = √(m_h (1 − f_h)/(n_h − 1)) = √(1 − f_h)``
+    (f_h the stratum's sampling fraction, per case in ``fraction``; default 0, when the
+    factor is ``(n_h/(n_h−1)) m*_hi``).  Variance ``1/R Σ_r (θ_r − θ̄)²``.
 
     References
     ----------
@@ -134,6 +191,7 @@ def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
         raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=strata or psu,
                                     message="a stratum has a single PSU; the bootstrap needs two",
                                     hint="collapse single-PSU strata with a neighbouring stratum"))
+    lam = np.sqrt(1.0 - _fractions(fraction, stratum, len(n_h), "fraction"))
     rng = np.random.default_rng(seed)
     f_units = np.zeros((len(of_unit), count))
     for h, nh in enumerate(n_h):  # loop over strata, not cases
@@ -141,9 +199,9 @@ def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
         draws = rng.integers(0, nh, size=(count, nh - 1))
         counts = np.zeros((count, nh))
         np.add.at(counts, (np.repeat(np.arange(count), nh - 1), draws.ravel()), 1.0)
-        f_units[members] = (counts * (nh / (nh - 1.0))).T
+        f_units[members] = (1.0 - lam[h] + lam[h] * counts * (nh / (nh - 1.0))).T
     return ReplicateDesign(method="bootstrap", factors=f_units[unit], coef=np.full(count, 1.0 / count),
-                           group=np.zeros(count, dtype=np.intp))
+                           group=np.zeros(count, dtype=np.intp), fpc=fraction is not None)
 
 
 def replicate_variance(theta_r: np.ndarray, design: ReplicateDesign) -> np.ndarray:

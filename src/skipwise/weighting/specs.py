@@ -80,6 +80,8 @@ class ReplicateSpec:
     strata: str | None = None
     count: int = 200
     seed: int = 12345
+    fpc: bool = False
+    fraction: str | None = None   # column of the stratum's sampling fraction (default: base probability)
 
 
 @dataclass(frozen=True, kw_only=True)

@@ -64,7 +64,14 @@ def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percent
     """Trim weights at a cap, then re-calibrate; repeat until the cap and the margins hold.
 
     The cap is computed once from the weights entering trimming (or given as
-    ``cap``, as replicates do), so the iteration aims at a fixed target.  With no
+    ``cap``), so the iteration aims at a fixed target.  Replicates apply the
+    plan's *rule*, not the full sample's cap: each replicate's cap is its own
+    ``k × median`` (or percentile) of its weights.  Trimming is part of the
+    estimator, so each replicate repeats it as the full sample did, like every
+    other weighting step (Wolter 2007, ch. 4 [memory]); and a jackknife or bootstrap
+    replicate's weights are rescaled by n_h/(n_h − 1), so a fixed full-sample cap
+    would trim the replicates harder than the full sample did and understate
+    the variance.  With no
     calibration step, the weight cut off the capped cases is spread over the
     cases below the cap in proportion to their weights; the capped cases stay
     exactly at the cap and the total is kept.  A case pushed over the cap by

@@ -9,6 +9,7 @@ from typing import Callable, Iterable
 import numpy as np
 import pandas as pd
 
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.generated import Generated, check_generated
 from skipwise.weighting.diagnostics import weight_summary
 from skipwise.weighting.outcomes import count_outcomes, outcome_rates
@@ -71,9 +72,17 @@ def _design(frame: pd.DataFrame, plan: WeightingPlan) -> ReplicateDesign | None:
     spec = plan.replicates
     if spec is None:
         return None
+    fraction = None
+    if spec.fpc:
+        col = spec.fraction or plan.base_probability
+        if col not in frame.columns:
+            raise SkipwiseError(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=col,
+                                        message=f"sampling-fraction column '{col}' (replicates.fpc) is not in the data",
+                                        hint=did_you_mean(col, map(str, frame.columns))))
+        fraction = pd.to_numeric(frame[col], errors="coerce").to_numpy(dtype=float)
     if spec.method == "jackknife":
-        return jackknife_design(frame, spec.psu, spec.strata)
-    return bootstrap_design(frame, spec.psu, spec.strata, count=spec.count, seed=spec.seed)
+        return jackknife_design(frame, spec.psu, spec.strata, fraction=fraction)
+    return bootstrap_design(frame, spec.psu, spec.strata, count=spec.count, seed=spec.seed, fraction=fraction)
 
 
 def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series | None = None,
