@@ -178,8 +178,8 @@ def test_text_must_be_one_text():
                     type: integer
                     text: [How many, people]
             """))
-    assert "'text' of item 'a' must be the question wording as one text" in str(err.value)
-    assert "line 8" in str(err.value)
+    assert "'text' of an item must be a text, found a list" in str(err.value)
+    assert "line 8" in str(err.value) and len(err.value.problems) == 1
 
 
 def test_left_blank_is_never_imputed():

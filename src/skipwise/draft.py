@@ -6,7 +6,9 @@ values.  :func:`draft_questionnaire` turns them into a :class:`Draft`, and
 :func:`render_draft` writes it as questionnaire YAML (format version 1) with a
 comment on every guess, so the user can review it line by line:
 
-- one item per column, in file order, labelled with the variable label;
+- one item per column, in file order, labelled with the variable label; a
+  label longer than 60 characters is also proposed as the item's ``text:``
+  (the question wording), marked for checking;
 - ``categorical`` where value labels cover every observed value that is not a
   special code; else ``integer``/``number`` for numeric columns, ``text`` for
   strings, ``date`` for dates;
@@ -65,6 +67,10 @@ KIND_NOTE = "# guessed: confirm kind"
 OBSERVED_NOTE = "# observed: widen to the valid range"
 STATA = "Stata extended missing"
 SAS = "SAS special missing"
+#: A variable label longer than this many characters also becomes the item's ``text:`` (the
+#: question wording); shorter ones read as names of the variable (common practice, no source).
+TEXT_FROM_LABEL = 60
+TEXT_NOTE = "# from the variable label: check it is the wording as asked"
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -407,6 +413,8 @@ def render_draft(draft: Draft) -> str:
         out.append(f"      - name: {scalar(it.name)}")
         if it.label:
             out.append(f"        label: {scalar(it.label)}")
+        if len(it.label.strip()) > TEXT_FROM_LABEL:  # a long label is usually the question as asked
+            out.append(f"        text: {scalar(it.label.strip())}  {TEXT_NOTE}")
         out.append(f"        type: {it.type.value}")
         if it.values is not None:
             out.append("        values:")

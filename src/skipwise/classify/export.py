@@ -81,20 +81,24 @@ def status_letters(cl: Classification) -> dict[str, str]:
 
 
 def _check_letters(cl: Classification, numeric_items: list[str]) -> None:
-    """Refuse a recoded ``.dta`` when a numeric item carries a reason numbered above 28."""
-    numbers = cl.questionnaire.reason_numbers
-    problems = []
+    """Refuse a recoded ``.dta`` when a numeric item carries a reason numbered above 28 (one problem per reason)."""
+    q = cl.questionnaire
+    carriers: dict[str, list[str]] = {}
     for name in numeric_items:
-        item = cl.questionnaire.item(name)
-        for reason in item.nonresponse_reasons:
-            if letter_of(numbers[reason]) is None:
-                problems.append(Problem(
-                    code=ProblemCode.NO_STATA_LETTER, category=Category.USAGE, item=name, file=cl.questionnaire.path,
-                    line=(item.code_for(reason) or item).line,
-                    message=f"reason '{reason}' of item '{name}' has number {numbers[reason]}: Stata's extended "
-                            "missing letters .i-.z only hold reasons 11-28",
-                    hint="write the 'columns' form (status columns beside the data) for this file, or pin the "
-                         "reason to a free number from 11 to 28 with 'number:' in the questionnaire"))
+        for reason in q.item(name).nonresponse_reasons:
+            if letter_of(q.reason_numbers[reason]) is None:
+                carriers.setdefault(reason, []).append(name)
+    problems = []
+    for reason, names in carriers.items():
+        code = q.item(names[0]).code_for(reason)
+        shown = ", ".join(names[:10]) + (f" and {len(names) - 10} more" if len(names) > 10 else "")
+        problems.append(Problem(
+            code=ProblemCode.NO_STATA_LETTER, category=Category.USAGE, file=q.path, item=names[0],
+            line=code.line if code is not None else None,
+            message=f"reason '{reason}' has number {q.reason_numbers[reason]}, but Stata's extended missing "
+                    f"letters .i-.z only hold reasons 11-28; numeric items carrying it: {shown}",
+            hint="write the 'columns' form (status columns beside the data) for this file, or pin the reason to "
+                 "a free number from 11 to 28 with 'number:' in the questionnaire"))
     if problems:
         raise SkipwiseError(problems, headline=f"{len(problems)} reason(s) cannot be written in recoded .dta form")
 

@@ -336,8 +336,8 @@ class _Builder:
         if "text" not in d:
             return None
         value = d["text"]
-        if isinstance(value, str) and value.strip():
-            return value.strip()
+        if isinstance(value, str):  # "" also after a list or mapping was refused by normalize_texts
+            return value.strip() or None
         self.add(ProblemCode.BAD_VALUE, f"'text' of item '{item}' must be the question wording as one text, "
                  f"found {value!r}", d.key_line("text"), item,
                  "write the wording on one line, or as a block after 'text: >'")
