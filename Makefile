@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test venv clean bench bench-all
+.PHONY: demo test venv clean bench bench-all render
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -35,3 +35,16 @@ bench-all: bench
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .hypothesis
+
+# The demo's workbooks as a reader sees them: LibreOffice (headless) -> PDF -> PNG pages under out/render/.
+# Needs soffice (Debian package libreoffice-calc) and, for the PNGs, pdftoppm (poppler-utils).
+render: demo
+	@command -v soffice >/dev/null || { echo "make render needs LibreOffice: apt-get install libreoffice-calc (and poppler-utils for PNG pages)"; exit 1; }
+	@mkdir -p out/render; profile=$$(mktemp -d); \
+	for wb in item_report diagnostics weighting; do \
+	  mkdir -p out/render/$$wb; \
+	  soffice -env:UserInstallation=file://$$profile --headless --convert-to pdf --outdir out/render/$$wb out/package/$$wb.xlsx >/dev/null 2>&1 || { rm -rf $$profile; echo "LibreOffice could not convert $$wb.xlsx"; exit 1; }; \
+	  rm -f out/render/$$wb/page-*.png; \
+	  if command -v pdftoppm >/dev/null; then pdftoppm -r 60 -png out/render/$$wb/$$wb.pdf out/render/$$wb/page; fi; \
+	  if command -v pdfinfo >/dev/null; then echo "$$wb: $$(pdfinfo out/render/$$wb/$$wb.pdf | awk '/^Pages:/ {print $$2}') pages -> out/render/$$wb/"; fi; \
+	done; rm -rf $$profile

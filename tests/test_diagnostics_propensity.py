@@ -96,7 +96,13 @@ def test_separation_is_a_note_not_a_warning():
     with warnings.catch_warnings():
         warnings.simplefilter("error", RuntimeWarning)
         res = r_indicator(resp, frame, categorical=["region"])
-    assert any("Unstable estimates" in t and "region=c" in t for t in res.notes)
+    # the shared detector's verdict replaces the old "unstable estimates" wording (Albert & Anderson 1984:
+    # a category with no respondent is quasi-complete separation; the other categories overlap)
+    assert res.separation is not None and res.separation.verdict == "quasi-complete"
+    assert "region=c" in res.separation.terms
+    assert any("quasi-complete separation by" in t.lower() and "region=c" in t for t in res.notes)
+    c = res.model.set_index("term").loc["region=c"]
+    assert np.isnan(c["odds_ratio"]) and np.isnan(c["or_high"])  # no finite estimate shown
     assert np.isfinite(res.r_indicator)
 
 
@@ -191,12 +197,11 @@ def test_model_standard_errors_labelled_in_the_workbook(tmp_path, weighted, labe
     assert [r.model_se for r in rep.r_indicators] == [label]
     path = tmp_path / "d.xlsx"
     write_diagnostics_workbook(rep, path)
-    rows = list(load_workbook(path)["Representativeness"].iter_rows(values_only=True))
-    headers = [r for r in rows if r and "model_std_errors" in r]
-    assert len(headers) == 2  # R-indicator table and propensity model table
-    overall = dict(zip(headers[0], rows[rows.index(headers[0]) + 1]))
-    assert overall["model_std_errors"] == label
-    start = rows.index(headers[1])
-    coefs = [dict(zip(headers[1], r)) for r in rows[start + 1:start + 1 + len(rep.r_indicators[0].model)]]
-    assert {c["model_std_errors"] for c in coefs} == {label}
-    assert_allclose([c["std_err"] for c in coefs], rep.r_indicators[0].model["std_err"], rtol=1e-12)
+    from sheetread import table
+
+    overall = table(path, "Representativeness", "Response").iloc[0]
+    assert overall["Standard errors"] == label
+    coefs = table(path, "Representativeness", "Response", nth=3)  # the propensity model's coefficients
+    assert list(coefs.columns[:2]) == ["Response", "Term"]
+    assert set(coefs["Standard errors"]) == {label}
+    assert_allclose(coefs["Std error"].astype(float), rep.r_indicators[0].model["std_err"], rtol=1e-12)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from sheetread import table
 import statsmodels.api as sm
 from numpy.testing import assert_allclose
 from typer.testing import CliRunner
@@ -63,19 +64,19 @@ def test_unit_r_indicator_uses_every_sampled_case(files):
     assert "Auxiliaries: district" in res.output
     assert "age (blank for" in res.output
     raw = pd.read_csv(d)
-    rep = pd.read_excel(out, sheet_name="Representativeness", header=3)
-    unit = rep[rep.response == "unit response"].iloc[0]
-    assert unit["n"] == len(raw) and unit["left_out"] == 0
+    rep = table(out, "Representativeness", "Response")
+    unit = rep[rep.Response == "unit response"].iloc[0]
+    assert unit["Cases"] == len(raw) and unit["Left out (missing auxiliary)"] == 0
     # reference: statsmodels Logit of response on district over the full sample, and
     # R = 1 − 2 S(ρ̂) with S the standard deviation (N − 1 divisor) (Schouten, Cobben & Bethlehem, 2009)
     y = raw.disposition.isin([110, 120]).astype(float)
     x = sm.add_constant(pd.get_dummies(raw.district, drop_first=True).astype(float))
     rho = sm.Logit(y, x).fit(disp=0).predict(x)
-    assert_allclose(unit["r_indicator"], 1 - 2 * np.std(rho, ddof=1), rtol=1e-6)
-    assert_allclose(unit["response_rate"], y.mean(), rtol=1e-12)
+    assert_allclose(unit["R-indicator"], 1 - 2 * np.std(rho, ddof=1), rtol=1e-6)
+    assert_allclose(unit["Response rate"], y.mean(), rtol=1e-12)
     # the item models state how many cases entered them (respondents in scope)
-    models = pd.read_excel(out, sheet_name="Nonresponse models", header=2)
-    assert {"n", "left_out"} <= set(models.columns)
+    models = table(out, "Nonresponse models", "Item")
+    assert {"Cases", "Left out (missing auxiliary)"} <= set(models.columns)
 
 
 def test_explicit_aux_blank_for_nonrespondents_is_refused(files):

@@ -48,13 +48,15 @@ def test_report_command_writes_workbook(tmp_path):
     assert "wrote" in res.output
     wb = openpyxl.load_workbook(out)
     items = wb["Items"]
-    header = [c.value for c in items[3]]
-    rows = list(items.iter_rows(min_row=4, values_only=True))
+    top = next(i for i, r in enumerate(items.iter_rows(values_only=True), start=1) if r and r[0] == "Section")
+    header = [c.value for c in items[top]]
+    rows = list(items.iter_rows(min_row=top + 1, values_only=True))
     b = rows[1]
     # Hand: b is asked of KX-11, KX-12, KX-14 (a == 1); dont_know 1, item_missing 1 -> 2/3; weighted (2+4)/(1+2+4).
     assert b[header.index("Item nonresponse rate")] == 2 / 3
     assert abs(b[header.index("Item nonresponse rate (weighted)")] - 6 / 7) < 1e-12
-    assert [c.value for c in wb["Subgroups"][4]][-2:] == ["grp = 1", "grp = 2"]
+    sub_top = [i for i, r in enumerate(wb["Subgroups"].iter_rows(values_only=True), start=1) if r and r[0] == "Section"]
+    assert [c.value for c in wb["Subgroups"][sub_top[1]]][-2:] == ["grp = 1", "grp = 2"]
     assert not any("KX-" in str(v) for ws in wb for row in ws.iter_rows(values_only=True) for v in row if v)
 
 

@@ -8,6 +8,10 @@ import zipfile
 
 import numpy as np
 import openpyxl
+
+from skipwise.report.sheets_items import column_header as H
+from skipwise.sheetstyle import MARK
+from sheetread import texts
 import pandas as pd
 import pytest
 from numpy.testing import assert_allclose
@@ -68,9 +72,22 @@ def tiny() -> tuple[pd.DataFrame, object]:
     return df, q
 
 
-def _sheet_table(ws, header_row: int) -> tuple[list[str], list[tuple]]:
-    rows = list(ws.iter_rows(min_row=header_row, values_only=True))
-    return list(rows[0]), rows[1:]
+def _sheet_table(ws, first_header: str, nth: int = 0) -> tuple[list[str], list[tuple]]:
+    """The header and rows of the table whose header row starts with ``first_header``."""
+    rows = list(ws.iter_rows(values_only=True))
+    starts = [i for i, r in enumerate(rows) if r and r[0] == first_header]
+    i = starts[nth]
+    header = list(rows[i])
+    body = []
+    for r in rows[i + 1:]:
+        if all(v is None for v in r):
+            break
+        body.append(r)
+    return header, body
+
+
+def _header_row(ws, first_header: str) -> int:
+    return next(i for i, r in enumerate(ws.iter_rows(values_only=True), start=1) if r and r[0] == first_header)
 
 
 def _all_text(path) -> str:
@@ -89,28 +106,30 @@ def test_items_sheet_counts_match_classifier(tiny, tmp_path):
     c = classify(df, q)
     path = write_item_report(df, q, tmp_path / "r.xlsx", classification=c)
     wb = openpyxl.load_workbook(path)
-    header, rows = _sheet_table(wb["Items"], 3)
+    header, rows = _sheet_table(wb["Items"], "Section")
     assert [r[header.index("Item")] for r in rows] == ITEMS  # interview order
     counts = c.counts()
     checked = 0
     for r in rows:
         item = r[header.index("Item")]
         for status in c.categories:
-            assert r[header.index(status)] == counts.loc[item, status], (item, status)
+            assert r[header.index(H(status))] == counts.loc[item, status], (item, status)
             checked += 1
     assert checked == len(ITEMS) * len(c.categories)
     # Hand count from HAND (DESIGN §3): item c has dont_know 1, item_missing 1, breakoff 1, 5 in universe.
     rc = rows[ITEMS.index("c")]
-    assert (rc[header.index("dont_know")], rc[header.index("item_missing")], rc[header.index("breakoff")]) == (1, 1, 1)
+    assert (rc[header.index(H("dont_know"))], rc[header.index(H("item_missing"))],
+            rc[header.index(H("breakoff"))]) == (1, 1, 1)
     assert rc[header.index("D: in universe, excl. breakoff and left_blank")] == 5
     assert_allclose(rc[header.index("Item nonresponse rate")], 2 / 5, rtol=1e-12)
-    assert wb["Items"].cell(row=4, column=header.index("Item nonresponse rate") + 1).number_format.endswith("%")
+    first = _header_row(wb["Items"], "Section") + 1
+    assert wb["Items"].cell(row=first, column=header.index("Item nonresponse rate") + 1).number_format.endswith("%")
 
 
 def test_weighted_rate_against_direct_ratio(tiny, tmp_path):
     df, q = tiny
     path = write_item_report(df, q, tmp_path / "w.xlsx", weight="wt")
-    header, rows = _sheet_table(openpyxl.load_workbook(path)["Items"], 3)
+    header, rows = _sheet_table(openpyxl.load_workbook(path)["Items"], "Section")
     hand = np.array(HAND)
     w = df["wt"].to_numpy()
     nonresp = np.isin(hand, ["dont_know", "refused", "item_missing"])
@@ -123,7 +142,7 @@ def test_weighted_rate_against_direct_ratio(tiny, tmp_path):
     got = np.array([r[header.index("Item nonresponse rate (weighted)")] for r in rows], dtype=float)
     assert_allclose(got, expected, rtol=1e-12)
     assert_allclose(expected[ITEMS.index("c")], 5 / 8.5, rtol=1e-12)  # (2 + 3) / (1 + 2 + 3 + 1.5 + 1), by hand
-    dk = np.array([r[header.index("dont_know rate (weighted)")] for r in rows], dtype=float)
+    dk = np.array([r[header.index(H("dont_know rate (weighted)"))] for r in rows], dtype=float)
     assert_allclose(dk, (w[:, None] * (hand == "dont_know")).sum(0) / (w[:, None] * universe).sum(0), rtol=1e-12)
 
 
@@ -131,8 +150,7 @@ def test_subgroup_rates_against_direct_ratio(tiny, tmp_path):
     df, q = tiny
     path = write_item_report(df, q, tmp_path / "s.xlsx", weight="wt", by=["region"])
     ws = openpyxl.load_workbook(path)["Subgroups"]
-    header, rows = _sheet_table(ws, 4)
-    rows = rows[1:]  # first line holds the group sizes
+    header, rows = _sheet_table(ws, "Section", nth=1)  # the first table holds the group sizes
     hand = np.array(HAND)
     w = df["wt"].to_numpy()
     nonresp = np.isin(hand, ["dont_know", "refused", "item_missing"])
@@ -170,7 +188,7 @@ def test_patterns_match_pandas_groupby(tmp_path):
     c = classify(df, q)
     path = write_item_report(df, q, tmp_path / "p.xlsx", classification=c, top_items=4, top_patterns=6)
     ws = openpyxl.load_workbook(path)["Patterns"]
-    header, rows = _sheet_table(ws, 5)
+    header, rows = _sheet_table(ws, "Pattern")
     grid_items = header[header.index("Items missing") + 1:]
     rates = c.item_summary()["nonresponse_rate"]
     assert set(grid_items) == set(rates.sort_values(ascending=False).index[:4])
@@ -180,7 +198,9 @@ def test_patterns_match_pandas_groupby(tmp_path):
     shown = [r for r in rows if isinstance(r[0], int)]
     assert len(shown) == 6
     for r in shown:
-        key = tuple(int(v) for v in r[header.index("Items missing") + 1:])
+        # one coding across the package: a marked square is item nonresponse, a blank one is not
+        key = tuple(int(v == MARK) for v in r[header.index("Items missing") + 1:])
+        assert set(r[header.index("Items missing") + 1:]) <= {MARK, None}
         assert r[1] == ref.loc[key]
         assert_allclose(r[2], ref.loc[key] / n, rtol=1e-12)
     assert [r[1] for r in shown] == sorted(ref.to_numpy(), reverse=True)[:6]
@@ -193,27 +213,38 @@ def test_structure_names_panes_filters(tiny, tmp_path):
     path = write_item_report(df, q, tmp_path / "st.xlsx", weight="wt", by=["region"], min_base=1)
     wb = openpyxl.load_workbook(path)
     assert wb.sheetnames == list(SHEETS)
-    assert wb["Items"].freeze_panes == "C4"
-    assert wb["Items"].auto_filter.ref.startswith("A3:") and wb["Items"].auto_filter.ref.endswith(str(3 + len(ITEMS)))
-    assert wb["Routing faults"].freeze_panes == "A5"
-    assert wb["Routing faults"].auto_filter.ref == "A4:F7"  # header + 3 faults (HAND)
-    assert wb["Subgroups"].freeze_panes == "D5"
+    top = _header_row(wb["Items"], "Section")
+    assert wb["Items"].freeze_panes == f"C{top + 1}"
+    assert wb["Items"].auto_filter.ref.startswith(f"A{top}:")
+    assert wb["Items"].auto_filter.ref.endswith(str(top + len(ITEMS)))
+    top = _header_row(wb["Routing faults"], "Case id")
+    assert wb["Routing faults"].freeze_panes == f"A{top + 1}"
+    assert wb["Routing faults"].auto_filter.ref == f"A{top}:F{top + 3}"  # header + 3 faults (HAND)
+    top = [i for i, r in enumerate(wb["Subgroups"].iter_rows(values_only=True), start=1) if r and r[0] == "Section"][1]
+    assert wb["Subgroups"].freeze_panes == f"D{top + 1}"
     assert wb["Completeness"].auto_filter.ref is not None
     assert wb["Patterns"].freeze_panes is not None
     with zipfile.ZipFile(path) as z:
         charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
     assert len(charts) == 2
+    # every item of the tiny file has D < 30 (the default minimum base): no worst-item chart and no
+    # pattern column, only the completeness chart
+    path = write_item_report(df, q, tmp_path / "st30.xlsx", weight="wt", by=["region"])
+    with zipfile.ZipFile(path) as z:
+        charts = [n for n in z.namelist() if n.startswith("xl/charts/chart")]
+    assert len(charts) == 1
+    assert any("no pattern" in t for t in texts(path, "Patterns"))
 
 
 def test_faults_sheet_rows_cap_and_formula_text(tiny, tmp_path):
     df, q = tiny
     path = write_item_report(df, q, tmp_path / "f.xlsx", fault_rows=2)
     ws = openpyxl.load_workbook(path)["Routing faults"]
-    header, rows = _sheet_table(ws, 4)
+    header, rows = _sheet_table(ws, "Case id")
     listed = [r[:6] for r in rows if r[0] is not None]
     # Hand: ZQ-7003 b and f off_route, ZQ-7006 d invalid -> 3 faults, the first 2 listed (file order).
     assert [(r[0], r[1], r[2]) for r in listed] == [("ZQ-7003", "b", "off_route"), ("ZQ-7003", "f", "off_route")]
-    assert "first 2 of 3" in ws["A2"].value
+    assert any("first 2 of 3" in str(ws.cell(row=r, column=1).value) for r in (2, 3))
     formula_cell = next(cell for row in ws.iter_rows(min_row=5) for cell in row if cell.value == "=2+3")
     assert formula_cell.data_type == "s"  # a stored value never becomes a formula
     totals = {r[7]: r[11] for r in rows if r[7] is not None}
@@ -236,7 +267,7 @@ def test_no_case_ids_anywhere(tiny, tmp_path):
 def test_completeness_bins_against_numpy_histogram(tiny, tmp_path):
     df, q = tiny
     path = write_item_report(df, q, tmp_path / "c.xlsx")
-    header, rows = _sheet_table(openpyxl.load_workbook(path)["Completeness"], 3)
+    header, rows = _sheet_table(openpyxl.load_workbook(path)["Completeness"], "Share of applicable items answered")
     hand = np.array(HAND)
     applicable = (~np.isin(hand, ["skipped", "off_route", "gate_unknown"])).sum(1)
     share = (hand == "answered").sum(1) / applicable
@@ -322,13 +353,13 @@ def test_one_pass_figures_equal_classifier_methods(tiny):
 def test_worst_items_chart_leaves_out_small_bases_and_sorts(tiny, tmp_path):
     df, q = tiny
     path = write_item_report(df, q, tmp_path / "c.xlsx", min_base=5)
-    ws = openpyxl.load_workbook(path)["Charts"]
-    rows = [r[29:31] for r in ws.iter_rows(min_row=4, values_only=True) if len(r) > 30 and r[29]]
+    header, rows = _sheet_table(openpyxl.load_workbook(path)["Charts"], "Item")
+    rows = [(r[0], r[1]) for r in rows]
     # Hand, from HAND: D = a 6, b 2, c 5, d 5, e 5, f 2; nonresponse a 1, c 2, d 0, e 1.
-    # b and f (D = 2 < 5) are left out; worst first.
-    assert [r[0] for r in rows] == ["c", "e", "a", "d"]
-    assert_allclose([r[1] for r in rows], [2 / 5, 1 / 5, 1 / 6, 0.0], rtol=1e-12)
+    # b and f (D = 2 < 5) are left out, and d (no nonresponse: nothing to chart); worst first.
+    assert [r[0] for r in rows] == ["c", "e", "a"]
+    assert_allclose([r[1] for r in rows], [2 / 5, 1 / 5, 1 / 6], rtol=1e-12)
     items = openpyxl.load_workbook(path)["Items"]
-    header, table = _sheet_table(items, 3)
+    header, table = _sheet_table(items, "Section")
     marked = {r[header.index("Item")] for r in table if r[header.index("Below minimum base")]}
     assert marked == {"b", "f"}

@@ -14,10 +14,11 @@ from statsmodels.tools.sm_exceptions import ConvergenceWarning, PerfectSeparatio
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.separation import SeparationCheck, detect_separation, sentence as _sentence
 
 __all__ = ["LogitResult", "auc_mann_whitney", "design_matrix", "fit_logit", "nonresponse_logit",
            "coefficient_table", "fitted_probabilities", "unstable_terms", "UNSTABLE_NOTE",
-           "SE_MODEL_BASED", "SE_ROBUST", "ROBUST_COV_TYPE"]
+           "SE_MODEL_BASED", "SE_ROBUST", "ROBUST_COV_TYPE", "blank_separated"]
 
 #: Label of standard errors from the inverse information matrix (unweighted maximum likelihood).
 SE_MODEL_BASED = "model-based (maximum likelihood, unweighted)"
@@ -227,6 +228,9 @@ class LogitResult:
         Likelihood-ratio test of all auxiliaries against the intercept-only model.
     notes
         Remarks (dropped cases or constant auxiliaries, separation, convergence).
+    separation
+        The verdict of :func:`skipwise.separation.detect_separation` on the model's data; the
+        odds ratios and limits of the terms involved are blank (they have no finite estimate).
     """
 
     item: str
@@ -241,6 +245,7 @@ class LogitResult:
     lr_p_value: float
     notes: tuple[str, ...]
     n_left_out: int = 0
+    separation: SeparationCheck | None = None
 
 
 def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: Sequence[str] | None = None,
@@ -292,7 +297,12 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
     if const:
         notes.append(f"Constant or redundant (collinear) terms left out: {', '.join(const)}.")
     table = coefficient_table(res, list(x.columns), alpha=alpha)
-    unstable = unstable_terms(table)
+    sep = detect_separation(x, ind.to_numpy())
+    if sep.separated:
+        notes = [n for n in notes if not n.startswith("Some auxiliary separates")]
+        notes.append(_sentence(sep.describe("nonrespondents", "respondents")))
+        table = blank_separated(table, sep)
+    unstable = [t for t in unstable_terms(table) if t not in sep.terms]
     if unstable:
         notes.append(UNSTABLE_NOTE.format(terms=", ".join(unstable)))
     fitted = fitted_probabilities(res, x)
@@ -300,5 +310,21 @@ def nonresponse_logit(indicator: pd.Series, aux: pd.DataFrame, *, categorical: S
         item=name, n=int(len(ind)), n_nonresponse=n_m, table=table, reference=refs,
         auc=auc_mann_whitney(fitted, ind.to_numpy()), pseudo_r2=float(res.prsquared),
         lr_statistic=float(res.llr), lr_df=int(res.df_model), lr_p_value=float(res.llr_pvalue),
-        notes=tuple(notes), n_left_out=int(n_drop),
+        notes=tuple(notes), separation=sep, n_left_out=int(n_drop),
     )
+
+
+def blank_separated(table: pd.DataFrame, sep: SeparationCheck) -> pd.DataFrame:
+    """The table with the z, p-value and odds ratios of separated terms blank (their estimates diverge).
+
+    The coefficients themselves stay: fitted probabilities are computed from them.
+    """
+    if not sep.separated:
+        return table
+    out = table.copy()
+    bad = out["term"].isin(sep.terms) if sep.terms else pd.Series(False, index=out.index)
+    if sep.verdict == "complete":
+        bad |= True
+    cols = [c for c in ("z", "p_value", "odds_ratio", "or_low", "or_high") if c in out.columns]
+    out.loc[bad, cols] = np.nan
+    return out

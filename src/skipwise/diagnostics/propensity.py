@@ -17,9 +17,10 @@ from scipy import special
 
 from skipwise.diagnostics.compare import prepare_auxiliaries
 from skipwise.diagnostics.model import (
-    SE_MODEL_BASED, SE_ROBUST, UNSTABLE_NOTE, coefficient_table, design_matrix, fit_logit, fitted_probabilities,
-    unstable_terms,
+    SE_MODEL_BASED, SE_ROBUST, UNSTABLE_NOTE, blank_separated, coefficient_table, design_matrix, fit_logit,
+    fitted_probabilities, unstable_terms,
 )
+from skipwise.separation import SeparationCheck, detect_separation, sentence as _sentence
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["RIndicatorResult", "r_indicator", "BINS"]
@@ -84,6 +85,7 @@ class RIndicatorResult:
     model_se: str
     notes: tuple[str, ...]
     n_left_out: int = 0
+    separation: SeparationCheck | None = None
 
 
 def _groups(s: pd.Series, is_cat: bool, bins: int) -> pd.Series:
@@ -189,6 +191,11 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         notes.extend(fit_notes)
         rho = pd.Series(fitted_probabilities(res, x), index=ind.index, name="propensity")
         model = coefficient_table(res, list(x.columns)).drop(columns="z")
+    sep = detect_separation(x, ind.to_numpy())
+    if sep.separated:
+        notes = [n for n in notes if not n.startswith("Some auxiliary separates")]
+        notes.append(_sentence(sep.describe("respondents", "nonrespondents")))
+        model = blank_separated(model, sep)
     dv, rv = d.to_numpy(), rho.to_numpy()
     big_n = dv.sum()
     rbar = float((dv * rv).sum() / big_n)
@@ -212,7 +219,7 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
             cat_rows.append({"variable": name, "category": k, "n": int(agg.loc[k, "n"]),
                              "share": float(share[k]), "response_rate": float(agg.loc[k, "resp"] / agg.loc[k, "w"]),
                              "mean_propensity": float(mean_k[k]), "partial_unconditional": float(pu_k[k])})
-    unstable = unstable_terms(model)
+    unstable = [t for t in unstable_terms(model) if t not in sep.terms]
     if unstable:
         notes.append(UNSTABLE_NOTE.format(terms=", ".join(unstable)))
     if refs:
@@ -225,5 +232,5 @@ def r_indicator(responded: pd.Series, frame_vars: pd.DataFrame, *, weights: pd.S
         categories=pd.DataFrame(cat_rows, columns=["variable", "category", "n", "share", "response_rate",
                                                    "mean_propensity", "partial_unconditional"]),
         model=model, model_se=SE_MODEL_BASED if weights is None else SE_ROBUST, notes=tuple(notes),
-        n_left_out=int(n_drop),
+        separation=sep, n_left_out=int(n_drop),
     )

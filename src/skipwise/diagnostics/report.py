@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import Callable, Sequence
 
 import numpy as np
@@ -54,6 +54,9 @@ class DiagnoseOptions:
         and at least ``thresholds.min_nonrespondents`` nonrespondents.
     thresholds
         Cut-offs of the handling suggestions.
+    min_base
+        Items with fewer in-scope cases are "too few to judge": shown, never tested against the
+        family, ranked or flagged (default ``thresholds.min_base``, 30: common practice, no source).
     """
 
     items: tuple[str, ...] | None = None
@@ -66,6 +69,7 @@ class DiagnoseOptions:
     alpha: float = 0.05
     adjust: str = "holm"
     thresholds: SuggestionThresholds = field(default_factory=SuggestionThresholds)
+    min_base: int | None = None
 
 
 @dataclass(frozen=True, kw_only=True, eq=False)
@@ -84,6 +88,8 @@ class DiagnosticsReport:
     suggestions: tuple[Suggestion, ...]
     summary: pd.DataFrame
     notes: tuple[tuple[str, str, str], ...]  # (part, item, message)
+    alpha: float = 0.05
+    min_base: int = 30
 
 
 def _r_squared(frame: pd.DataFrame, chosen: list[str], cand: str) -> float:
@@ -170,8 +176,8 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
     Notes
     -----
     Flag rule: an item shows evidence against MCAR ("flagged", association
-    "weak" or "strong") when it has at least ``min_nonrespondents``
-    nonrespondents and the likelihood-ratio p-value of its nonresponse model
+    "weak" or "strong") when it has at least ``min_base`` in-scope cases and
+    ``min_nonrespondents`` nonrespondents and the likelihood-ratio p-value of its nonresponse model
     on the auxiliaries, adjusted across all such items (``options.adjust``,
     Holm by default), is below ``alpha``.  The AUC only grades the size of a
     flagged item's effect.
@@ -284,9 +290,9 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
             except SkipwiseError as err:
                 notes.append(("R-indicator", item, err.render()))
         summary_rows.append(row)
-    th = opt.thresholds
+    th = opt.thresholds if opt.min_base is None else replace(opt.thresholds, min_base=int(opt.min_base))
     family = pd.Series({r["item"]: r["model_p"] for r in summary_rows
-                        if r["nonresponse"] >= th.min_nonrespondents}, dtype=float)
+                        if r["nonresponse"] >= th.min_nonrespondents and r["in_scope"] >= th.min_base}, dtype=float)
     adjusted = adjust_pvalues(family, opt.adjust)
     for row in summary_rows:
         item = row["item"]
@@ -322,5 +328,5 @@ def run_diagnostics(mframe: MissingnessFrame, aux: pd.DataFrame, *, options: Dia
         counts=mframe.counts.loc[items], auxiliaries=tuple(map(str, aux.columns)), categorical=cat,
         little=little, little_scope=scope, comparisons=comparisons, models=models,
         r_indicators=tuple(rinds), sensitivity=sens, suggestions=tuple(suggestions), summary=summary,
-        notes=tuple(notes),
+        notes=tuple(notes), alpha=float(th.alpha), min_base=int(th.min_base),
     )

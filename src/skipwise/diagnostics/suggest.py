@@ -9,8 +9,16 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
+from skipwise.rates import DEFAULT_MIN_BASE
+
 __all__ = ["CAUTIONS", "ItemEvidence", "Option", "Suggestion", "SuggestionThresholds", "suggest_handling",
-           "ACTIONS", "flagged"]
+           "ACTIONS", "flagged", "TOO_FEW", "MIN_BASE"]
+
+#: Association level of an item with fewer in-scope cases than the minimum base.
+TOO_FEW = "too few to judge"
+#: Default minimum base: in-scope cases an item needs to be tested, ranked or flagged
+#: (the package's one minimum base; common practice, no source).
+MIN_BASE = DEFAULT_MIN_BASE
 
 #: Shown with every set of suggestions.
 CAUTIONS = (
@@ -36,6 +44,7 @@ class SuggestionThresholds:
     auc_weak: float = 0.60      #: AUC from which the effect of a flagged item is described as moderate
     auc_strong: float = 0.70    #: AUC from which a flagged item's association is "strong"
     min_nonrespondents: int = 10  #: fewer nonrespondents than this: the item is not tested
+    min_base: int = MIN_BASE    #: fewer in-scope cases than this: "too few to judge", never flagged
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -70,7 +79,7 @@ class Suggestion:
     """All options for one item, the evidence summary and the association level."""
 
     item: str
-    association: str   #: "none", "none detected", "weak", "strong" (both: flagged) or "untested"
+    association: str   #: "none", "none detected", "weak", "strong" (both: flagged), "untested" or TOO_FEW
     evidence: str
     options: tuple[Option, ...]
 
@@ -92,12 +101,15 @@ def _ok(x: float | None) -> bool:
 def _association(ev: ItemEvidence, th: SuggestionThresholds) -> str:
     """The flag rule.
 
+    Too few to judge: fewer than ``min_base`` in-scope cases (whatever the rest says).
     Untested: fewer than ``min_nonrespondents`` nonrespondents, or no model.
     Flagged (evidence against MCAR): the model's likelihood-ratio p-value,
     adjusted across items when ``adjusted_p`` is given, is below ``alpha``.
     The AUC is only the size of the effect of a flagged item: "strong" from
     ``auc_strong``, "weak" below.  Little's joint p-value never flags one item.
     """
+    if ev.n_in_scope < th.min_base and ev.n_nonresponse > 0:
+        return TOO_FEW
     if ev.n_nonresponse == 0:
         return "none"
     if ev.n_nonresponse < th.min_nonrespondents or not _ok(ev.model_p):

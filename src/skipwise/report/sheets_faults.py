@@ -7,11 +7,17 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from skipwise.report import styles as st
+from openpyxl.cell import WriteOnlyCell
+from openpyxl.utils import get_column_letter
+
+from skipwise import sheetstyle as st
 
 __all__ = ["write_faults_sheet", "FAULTS_HEADER_ROW"]
 
-FAULTS_HEADER_ROW = 4
+#: Most rows of the header-to-listing layout before the header (title, two explanation lines, blank).
+FAULTS_HEADER_ROW = 12
+#: Fault rows in the print area (the sheet and the CSV hold them all).
+PRINT_ROWS = 200
 
 _LIST_HEADER = {"case_id": "Case id", "item": "Item", "status": "Status", "value": "Stored value",
                 "rule": "Asked if (rule as written)", "inputs": "Rule inputs (stored values)"}
@@ -25,8 +31,11 @@ def _clean_column(values: pd.Series) -> tuple[np.ndarray, np.ndarray]:
 
 
 def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataFrame, *,
-                       case_ids: bool, title: str = "Routing faults") -> None:
+                       case_ids: bool, title: str = "Routing faults", print_rows: int = PRINT_ROWS) -> None:
     """Write the fault list (at most ``len(rows)`` lines of ``total``) and the per-item counts.
+
+    The print area covers the first ``print_rows`` faults (the full listing is in the sheet and in the
+    package's ``*_faults.csv``); the header row repeats on every printed page.
 
     Parameters
     ----------
@@ -39,16 +48,6 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
     case_ids
         False leaves the case id column out altogether.
     """
-    ws = wb.create_sheet(title)
-    st.printable(ws)
-    keys = [k for k in _LIST_HEADER if case_ids or k != "case_id"]
-    n_list = len(keys)
-    count_cols = list(counts.columns)
-    widths = {"case_id": 14, "item": 18, "status": 12, "value": 16, "rule": 40, "inputs": 48}
-    st.set_widths(ws, [widths[k] for k in keys] + [3, 18] + [11] * (len(count_cols) - 1))
-    ws.freeze_panes = f"A{FAULTS_HEADER_ROW + 1}"
-    ws.auto_filter.ref = st.table_ref(FAULTS_HEADER_ROW, FAULTS_HEADER_ROW + len(rows), n_list)
-    ws.append(st.title_row(ws, "Routing faults: off_route, wrong_code and invalid cells"))
     shown = len(rows)
     if total == 0:
         note = "No routing faults were found."
@@ -57,13 +56,27 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
                 "the counts per item on the right cover all of them.")
     else:
         note = f"All {total:,} faults are listed, in file order, then interview order."
-    ws.append(st.note_row(ws, note))
-    ws.append(st.note_row(ws, (
-        "This sheet lists case ids: share it only under your organization's data protection rules."
-        if case_ids else "Case ids were left out of this workbook (--no-case-ids).")))
-    head = st.header_row(ws, [_LIST_HEADER[k] for k in keys]) + [None]
-    head += st.header_row(ws, ["Item" if c == "item" else ("All faults" if c == "total" else c) for c in count_cols])
-    ws.append(head)
+    printed = (f" Printed: the first {print_rows:,} rows; the full listing is the package's *_faults.csv."
+               if shown > print_rows else "")
+    s = st.SheetWriter(wb, title, title="Routing faults: off_route, wrong_code and invalid cells",
+                       explanation=[note + printed,
+                                    "off_route = an answer where the routing says not asked; wrong_code = a not-asked "
+                                    "code where asked; invalid = a value outside the item's values. "
+                                    + ("This sheet lists case ids: share it only under your organization's data "
+                                       "protection rules." if case_ids
+                                       else "Case ids were left out of this workbook (--no-case-ids).")])
+    keys = [k for k in _LIST_HEADER if case_ids or k != "case_id"]
+    n_list = len(keys)
+    count_cols = list(counts.columns)
+    widths = {"case_id": 14, "item": 18, "status": 12, "value": 16, "rule": 40, "inputs": 48}
+    count_heads = ["Item" if c == "item" else ("All faults" if c == "total" else st.human(c)) for c in count_cols]
+    head_names = [_LIST_HEADER[k] for k in keys] + [""] + count_heads
+    n_lines = max(shown, len(counts))
+    ref = s.header(head_names, widths=[widths[k] for k in keys] + [3, 18] + [11] * (len(count_cols) - 1),
+                   count=n_lines)
+    for j, k in enumerate(keys, start=1):
+        s.width(j, widths[k])
+    s.width(n_list + 1, 3)
     columns = {}
     formula_like = np.zeros(shown, dtype=bool)
     for k in keys:
@@ -76,18 +89,49 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
             arr, bad = _clean_column(rows[k])
             columns[k], formula_like = arr, formula_like | bad
     count_values = counts.to_numpy(dtype=object)
-    n_lines = max(shown, len(counts))
-    # Rows here are faults (capped), not respondents; the sheet API takes one row at a time.
-    for i in range(n_lines):
-        if i < shown:
-            if formula_like[i]:
-                line = [st.text_cell(ws, columns[k][i]) if isinstance(columns[k][i], str)
-                        else st.plain(columns[k][i]) for k in keys]
+    ws = s.ws
+    numeric_ids = case_ids and rows["case_id"].dtype.kind in "biuf"
+
+    def lines():
+        # Rows here are faults (capped), not respondents; the sheet API takes one row at a time.
+        for i in range(n_lines):
+            if i < shown:
+                if formula_like[i]:
+                    line = [text_cell(ws, columns[k][i]) if isinstance(columns[k][i], str)
+                            else st.plain(columns[k][i]) for k in keys]
+                else:
+                    line = [st.plain(columns[k][i]) for k in keys]
+                if numeric_ids:
+                    line[0] = id_cell(ws, line[0])
             else:
-                line = [st.plain(columns[k][i]) for k in keys]
-        else:
-            line = [None] * n_list
-        if i < len(counts):
-            line.append(None)
-            line += [st.text_cell(ws, count_values[i, 0])] + [st.value_cell(ws, v, st.INT) for v in count_values[i, 1:]]
-        ws.append(line)
+                line = [None] * n_list
+            if i < len(counts):
+                line.append(None)
+                line += [text_cell(ws, count_values[i, 0])] + [int_cell(ws, v) for v in count_values[i, 1:]]
+            yield line
+
+    s.stream(lines(), n_lines, len(head_names))
+    s.close(print_rows=print_rows)
+    if ref.last_row >= ref.first_row:
+        s.ws.auto_filter.ref = f"A{ref.header_row}:{get_column_letter(n_list)}{ref.header_row + max(shown, 1)}"
+
+
+def text_cell(ws: Any, value: object) -> Any:
+    """A string cell (a leading ``=`` stays text)."""
+    cell = WriteOnlyCell(ws, value=None)
+    cell.value = st.clean_text(value)
+    cell.data_type = "s"
+    return cell
+
+
+def id_cell(ws: Any, value: object) -> Any:
+    """A numeric case id: digits as stored, no thousands separator."""
+    cell = WriteOnlyCell(ws, value=value)
+    cell.number_format = "0"
+    return cell
+
+
+def int_cell(ws: Any, value: object) -> Any:
+    cell = WriteOnlyCell(ws, value=st.plain(value))
+    cell.number_format = st.INT
+    return cell

@@ -2,22 +2,19 @@
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass
 from typing import Any
 
 import pandas as pd
 
-from skipwise.report import styles as st
+from skipwise import sheetstyle as st
 from skipwise.report.tables import ITEM_RATE, ITEM_RATE_W, SubgroupTable
 
-__all__ = ["ItemsLayout", "write_items_sheet", "write_subgroups_sheet", "ITEMS_HEADER_ROW"]
+__all__ = ["ItemsLayout", "write_items_sheet", "write_subgroups_sheet", "column_header", "SMALL_PCT"]
 
-#: Row of the Items sheet's header (title and definition note above it).
-ITEMS_HEADER_ROW = 3
 
 _TEXT_COLS = ("Section", "Item", "Label", "Asked if (rule as written)", "Below minimum base")
-#: A rate on a base under the minimum: shown, with a marker (the cell stays a number).
-SMALL_PCT = st.PCT + '" *"'
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -31,11 +28,15 @@ class ItemsLayout:
     rate_col: int
 
 
+#: A rate on a base under the minimum: shown, with a marker (the cell stays a number).
+SMALL_PCT = st.PCT + '" *"'
+
+
 def _formats(frame: pd.DataFrame) -> dict[str, str]:
     fmts: dict[str, str] = {}
     for col in frame.columns:
         name = str(col)
-        if name in _TEXT_COLS:
+        if name in _TEXT_COLS or frame[col].dtype.kind not in "biuf":
             continue
         if name.endswith("rate") or "rate (" in name:
             fmts[name] = st.PCT
@@ -46,74 +47,99 @@ def _formats(frame: pd.DataFrame) -> dict[str, str]:
     return fmts
 
 
+#: Short words for status tokens in headers (the Overview gives their meanings).
+HEADER_WORDS = {"dont_know": "Don't know", "item_missing": "Item missing", "gate_unknown": "Gate unknown",
+                "breakoff": "Break-off", "left_blank": "Left blank", "off_route": "Off route",
+                "wrong_code": "Wrong code"}
+
+
+def column_header(name: str) -> str:
+    """A human header; a status or reason token keeps its token beside the words (``Don't know (dont_know)``)."""
+    base, sep, rest = name.partition(" rate")
+    if not _TOKEN.match(base):
+        return name
+    words = HEADER_WORDS.get(base, base.replace("_", " "))
+    words = words[:1].upper() + words[1:] + (" rate" if sep else "")
+    token = "" if "_" not in base and words.lower().startswith(base) else f" ({base})"
+    return f"{words}{token}{rest}"
+
+
+_TOKEN = re.compile(r"^[a-z][a-z0-9_]*$")
+
+
 def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> ItemsLayout:
     """One row per item in interview order; frozen header and item columns, auto filter, percentages."""
-    ws = wb.create_sheet(title)
-    st.printable(ws)
+    s = st.SheetWriter(wb, title, title="Item nonresponse by item (interview order)",
+                       explanation=(
+                           "D = cells in the item's universe excluding breakoff and left_blank. Answered rate, item "
+                           "nonresponse rate ((nonresponse reasons + item_missing) / D) and fault rate ((wrong_code + "
+                           "invalid where asked) / D) add up to 100%; each reason's rate uses D too. gate_unknown, "
+                           "breakoff, off_route, left_blank and invalid values where not asked are counted apart. "
+                           "Items with D under the minimum base are marked and left out of rankings and charts."),
+                       source="Groves et al. 2009, Survey Methodology, ch. 6.")
     cols = [str(c) for c in table.columns]
-    widths = []
-    for c in cols:
-        if c in _TEXT_COLS:
-            hi = 16 if c == "Section" else (24 if c == "Item" else 48)
-            widths.append(st.text_width(table[c].head(500), header="" if c != "Item" else c, lo=8, hi=hi))
-        else:
-            widths.append(13.0)
-    st.set_widths(ws, widths)
-    ws.freeze_panes = f"C{ITEMS_HEADER_ROW + 1}"
-    last = ITEMS_HEADER_ROW + len(table)
-    ws.auto_filter.ref = st.table_ref(ITEMS_HEADER_ROW, last, len(cols))
-    ws.append(st.title_row(ws, "Item nonresponse by item (interview order)"))
-    ws.append(st.note_row(ws, (
-        "D = cells in the item's universe excluding breakoff and left_blank. Answered rate, item nonresponse "
-        "rate ((nonresponse reasons + item_missing) / D) and fault rate ((wrong_code + invalid where asked) "
-        "/ D) add up to 100%; each reason's rate uses D too. gate_unknown, breakoff, off_route, left_blank "
-        "and invalid values where not asked are counted apart. Items with D under the minimum base are "
-        "marked and left out of rankings and charts. Status meanings: see the Overview.")))
-    ws.append(st.header_row(ws, cols))
-    for row in st.frame_rows(ws, table, _formats(table), wrap=("Asked if (rule as written)",)):
-        ws.append(row)
+    ref = s.table(table, formats=_formats(table), headers={c: column_header(c) for c in cols},
+                  wrap=("Label", "Asked if (rule as written)"), freeze_col=3, max_width=14)
+    for c, hi in (("Section", 14), ("Item", 20), ("Label", 32), ("Asked if (rule as written)", 30)):
+        if c in ref.columns:
+            s.width(ref.columns[c], min(st_text_width(table[c], c), hi))
+    s.close()
     rate_col = cols.index(ITEM_RATE_W if ITEM_RATE_W in cols else ITEM_RATE) + 1
-    return ItemsLayout(title=title, first_row=ITEMS_HEADER_ROW + 1, last_row=last,
+    return ItemsLayout(title=title, first_row=ref.first_row, last_row=ref.last_row,
                        item_col=cols.index("Item") + 1, rate_col=rate_col)
+
+
+def st_text_width(values: pd.Series, header: str) -> float:
+    longest = max([len(str(header))] + [len(str(v)) for v in values.head(500) if v is not None])
+    return float(max(longest + 2, 8))
 
 
 def write_subgroups_sheet(wb: Any, sub: SubgroupTable | None, items: pd.DataFrame, *,
                           title: str = "Subgroups") -> None:
     """Item nonresponse rate of each item (rows) in each group value (columns)."""
-    ws = wb.create_sheet(title)
-    st.printable(ws)
     if sub is None or sub.rates.shape[1] == 0:
-        st.set_widths(ws, [90])
-        ws.append(st.title_row(ws, "Item nonresponse rate by subgroup"))
-        ws.append(st.note_row(ws, "No grouping variable was given. Run the report with --by COLUMN "
-                                  "(or by=(...) in Python) to compare item nonresponse across groups."))
+        s = st.SheetWriter(wb, title, title="Item nonresponse rate by subgroup",
+                           explanation=("No grouping variable was given. Run the report with --by COLUMN (or "
+                                        "by=(...) in Python) to compare item nonresponse across groups."))
+        s.close()
         return
     groups = list(sub.rates.columns)
-    header = ["Section", "Item", "Label", "All cases"] + [f"{var} = {val}" for var, val in groups]
-    st.set_widths(ws, [14, st.text_width(items["Item"], header="Item", hi=24),
-                       st.text_width(items["Label"].head(500), hi=40), 12] + [14] * len(groups))
-    header_row = 4
-    ws.freeze_panes = f"D{header_row + 1}"
-    last = header_row + 1 + len(items)
-    ws.auto_filter.ref = st.table_ref(header_row, last, len(header))
+    min_base = getattr(sub, "min_base", None)
+    small = getattr(sub, "small", None)
     kind = "weighted" if sub.weighted else "unweighted"
-    ws.append(st.title_row(ws, f"Item nonresponse rate by subgroup ({kind})"))
-    ws.append(st.note_row(ws, (
-        "Within each group: (nonresponse reasons + item_missing) / cases in universe excluding breakoff and left_blank"
-        + (", as ratios of weighted totals." if sub.weighted else ".")
-        + " Blank: no case of the group was in the item's universe. Small groups give unstable rates.")))
-    ws.append(st.note_row(ws, "Group values of missing cells are shown as '(missing)'. A rate marked * rests on "
-                              f"fewer than {sub.min_base} cells in universe (the minimum base): read it with care."))
-    ws.append(st.header_row(ws, header))
-    size_fmt = st.WEIGHTED if sub.weighted else st.INT
-    size_row = [st.text_cell(ws, ""), st.text_cell(ws, "(cases in group)"), st.text_cell(ws, ""),
-                st.value_cell(ws, float(sub.sizes.groupby(level=0).sum().iloc[0]) if len(sub.sizes) else None, size_fmt)]
-    size_row += [st.value_cell(ws, sub.sizes[(var, val)], size_fmt) for var, val in groups]
-    ws.append(size_row)
+    s = st.SheetWriter(wb, title, title=f"Item nonresponse rate by subgroup ({kind})",
+                       explanation=(
+                           "Within each group: (nonresponse reasons + item_missing) / D, the group's cells in the "
+                           "item's universe excluding breakoff and left_blank" + (", as ratios of weighted totals."
+                                                                                  if sub.weighted else ".")
+                           + " Blank: no case of the group in the item's universe; '(missing)': no group value."
+                           + (f" A rate marked * rests on fewer than {min_base} cells in D: read it with care."
+                              if min_base is not None else " Small groups give unstable rates.")))
     overall = ITEM_RATE_W if sub.weighted and ITEM_RATE_W in items.columns else ITEM_RATE
-    for i, item in enumerate(items["Item"]):
-        row = [st.text_cell(ws, items["Section"].iat[i]), st.text_cell(ws, item), st.text_cell(ws, items["Label"].iat[i]),
-               st.value_cell(ws, items[overall].iat[i], st.PCT)]
-        flags = sub.small.loc[item].to_numpy() if sub.small is not None else [False] * len(groups)
-        row += [st.value_cell(ws, v, SMALL_PCT if f else st.PCT) for v, f in zip(sub.rates.loc[item].to_numpy(), flags)]
-        ws.append(row)
+    names = [f"{var} = {val}" for var, val in groups]
+    frame = pd.DataFrame({"Section": items["Section"].to_numpy(), "Item": items["Item"].to_numpy(),
+                          "Label": items["Label"].to_numpy(), "All cases": items[overall].to_numpy()})
+    size = pd.DataFrame({"Section": [""], "Item": ["(cases in group)"], "Label": [""],
+                         "All cases": [float(sub.sizes.groupby(level=0).sum().iloc[0]) if len(sub.sizes) else None]})
+    for (var, val), name in zip(groups, names):
+        frame[name] = sub.rates[(var, val)].reindex(items["Item"]).to_numpy()
+        size[name] = [sub.sizes[(var, val)]]
+    size_fmt = st.WEIGHTED if sub.weighted else st.INT
+    s.table(size, formats={c: size_fmt for c in ["All cases", *names]}, headers={n: n for n in names},
+            main=False, heading="Cases in each group")
+    s.blank()
+    fmts = {c: st.PCT for c in ["All cases", *names]}
+    ref = s.table(frame, formats=fmts, headers={n: n for n in names}, wrap=("Label",), freeze_col=4, max_width=14)
+    s.width(ref.columns["Section"], 12)
+    s.width(ref.columns["Item"], min(st_text_width(items["Item"], "Item"), 20))
+    s.width(ref.columns["Label"], 30)
+    if small is not None:
+        # mark small cells: same number, a format with a star (the rates engineer's marker)
+        for i, item in enumerate(items["Item"]):
+            row = s._rows[ref.first_row - 1 + i]
+            flags = small.loc[item].to_numpy()
+            for j, f in enumerate(flags):
+                if f:
+                    v, _fmt, k = row[4 + j]
+                    row[4 + j] = (v, SMALL_PCT, k)
+    s.close()

@@ -3,13 +3,14 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
-from skipwise.report import styles as st
+from skipwise import sheetstyle as st
 
-__all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS"]
+__all__ = ["OverviewInfo", "write_overview_sheet", "DEFINITIONS", "CAUTIONS", "STATUS_WORDS", "status_words"]
 
 DEFINITIONS: tuple[tuple[str, str], ...] = (
     ("D (the rates' base)",
@@ -72,15 +73,16 @@ class OverviewInfo:
 
 
 def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, title: str = "Overview") -> None:
-    ws = wb.create_sheet(title)
-    st.printable(ws)
-    st.set_widths(ws, [44, 16, 16, 16, 60])
-    ws.append(st.title_row(ws, f"Item nonresponse report: {info.survey_title or info.survey_name}"))
-    ws.append([])
+    s = st.SheetWriter(wb, title, title=f"Item nonresponse report: {info.survey_title or info.survey_name}",
+                       explanation=("What was read and when, the share of all (case, item) cells in each status, and "
+                                    "the definitions of every rate in this workbook. Rates are over each item's "
+                                    "cases in universe (see Definitions)."),
+                       source="Item nonresponse over the cases eligible for the item: Groves et al. 2009, Survey "
+                              "Methodology, 2nd ed., ch. 6.")
     facts: list[tuple[str, object, str | None]] = [
         ("Survey name", info.survey_name, None),
         ("Survey title", info.survey_title, None),
-        ("Input file", info.input_file or "(not given: data passed in memory)", None),
+        ("Input file", Path(info.input_file).name if info.input_file else "(not given: data passed in memory)", None),
         ("Input file SHA-256", info.input_sha256 or "(not computed)", None),
         ("Written (UTC)", info.written_utc, None),
         ("skipwise version", info.version, None),
@@ -89,31 +91,43 @@ def write_overview_sheet(wb: Any, info: OverviewInfo, shares: pd.DataFrame, *, t
         ("Weight column", info.weight or "(none: unweighted)", None),
     ]
     if info.total_weight is not None:
-        facts.append(("Sum of weights", info.total_weight, st.DEC))
+        facts.append(("Sum of weights", info.total_weight, st.WEIGHTED))
     facts += [
         ("Subgroup columns", ", ".join(info.by) if info.by else "(none)", None),
         ("Case ids in workbook", "yes (Routing faults sheet)" if info.case_ids else "no (--no-case-ids)", None),
         ("Routing faults (listed / total)", f"{info.faults_shown:,} / {info.faults_total:,}", None),
     ]
-    for label, value, fmt in facts:
-        ws.append([st.text_cell(ws, label, font=None), st.value_cell(ws, value, fmt)])
-    ws.append([])
-    ws.append(st.title_row(ws, "Share of all cells by status", sub=True))
-    if info.labels:  # the human label beside each status token (the token stays for machines)
-        shares = shares.assign(meaning=[info.labels.get(s, "") for s in shares["status"]])
-    cols = ["Status", "Cells", "Share of cells"] + (["Weighted share"] if "weighted share" in shares.columns else [])
-    cols += ["Meaning"] if info.labels else []
-    ws.append(st.header_row(ws, cols))
-    for row in st.frame_rows(ws, shares, {"cells": st.INT, "share": st.PCT, "weighted share": st.PCT}):
-        ws.append(row)
-    for note in info.notes:
-        ws.append([])
-        ws.append([st.text_cell(ws, "Note"), st.text_cell(ws, note)])
-    ws.append([])
-    ws.append(st.title_row(ws, "Definitions", sub=True))
-    for term, text in DEFINITIONS:
-        ws.append([st.text_cell(ws, term), st.text_cell(ws, text)])
-    ws.append([])
-    ws.append(st.title_row(ws, "Cautions", sub=True))
+    s.pairs(facts)
+    s.blank()
+    table = shares.rename(columns={"status": "Status", "cells": "Cells", "share": "Share of cells",
+                                   "weighted share": "Weighted share"})
+    labels = getattr(info, "labels", None) or {}
+    if "Status" in table.columns:
+        table.insert(1, "Meaning", [labels.get(v) or status_words(v) for v in table["Status"]])
+    s.table(table, formats={"Cells": st.INT, "Share of cells": st.PCT, "Weighted share": st.PCT},
+            heading="Share of all cells by status")
+    for note in getattr(info, "notes", ()):
+        s.labelled("Note", note)
+    s.blank()
+    s.table(pd.DataFrame(DEFINITIONS, columns=["Term", "Definition"]), wrap=["Term", "Definition"], main=False,
+            heading="Definitions")
+    s.width(1, 30)
+    s.width(2, 70)
+    s.blank()
+    s.line("Cautions", "sub")
     for text in CAUTIONS:
-        ws.append([st.text_cell(ws, text, wrap=False)])
+        s.note(text)
+    s.close()
+
+
+#: Words beside each status token (the token stays for machines).
+STATUS_WORDS = {"answered": "answered", "skipped": "legitimately skipped (routing)", "dont_know": "don't know",
+                "refused": "refused", "item_missing": "blank in universe, no code", "gate_unknown":
+                "universe undecided", "breakoff": "after the interview ended", "left_blank":
+                "optional item left blank", "off_route": "answer where not asked", "wrong_code":
+                "not-asked code where asked", "invalid": "value outside the item's values"}
+
+
+def status_words(token: object) -> str:
+    """A status token in words ("dont_know" -> "don't know"); unknown tokens as they are, spaced."""
+    return STATUS_WORDS.get(str(token), str(token).replace("_", " "))

@@ -5,61 +5,58 @@ from __future__ import annotations
 from typing import Any
 
 import pandas as pd
-from openpyxl.styles import Alignment
-from openpyxl.utils import get_column_letter
 
-from skipwise.report import styles as st
+from skipwise import sheetstyle as st
 from skipwise.report.patterns import PatternTable
 
-__all__ = ["write_patterns_sheet", "PATTERNS_HEADER_ROW"]
+__all__ = ["write_patterns_sheet"]
 
-PATTERNS_HEADER_ROW = 5
 
 
 def write_patterns_sheet(wb: Any, pt: PatternTable, rates: pd.Series, *, title: str = "Patterns") -> None:
     """Most frequent joint nonresponse patterns over the items with the highest rates.
 
     ``rates`` holds each item's (unweighted) item nonresponse rate, shown above its grid column.
+    A marked square is item nonresponse, the one coding of patterns across the package.
     """
-    ws = wb.create_sheet(title)
-    st.printable(ws)
     weighted = pt.weighted is not None
-    lead = ["Pattern", "Cases", "Share of cases"] + (["Weighted share"] if weighted else []) + ["Items missing"]
     k = len(pt.items)
-    st.set_widths(ws, [10, 11, 11] + ([11] if weighted else []) + [9] + [5] * k)
-    ws.freeze_panes = f"{get_column_letter(len(lead) + 1)}{PATTERNS_HEADER_ROW + 1}"
-    if k:
-        ws.auto_filter.ref = st.table_ref(PATTERNS_HEADER_ROW, PATTERNS_HEADER_ROW + len(pt.counts), len(lead) + k)
-    ws.append(st.title_row(ws, "Joint patterns of item nonresponse"))
     if k == 0:
-        ws.append(st.note_row(ws, "No item has any item nonresponse, so there is no pattern to show."))
+        s = st.SheetWriter(wb, title, title="Joint patterns of item nonresponse",
+                           explanation="No item (at the minimum base or above) has any item nonresponse, so there is "
+                                       "no pattern to show.")
+        s.close()
         return
-    ws.append(st.note_row(ws, (
-        f"Columns: the {k} items with the highest item nonresponse rate, in interview order. "
-        "A filled square (1) is item nonresponse (a nonresponse reason or item_missing); a pale square (0) "
-        "is any other status (answered, skipped, breakoff, ...). Shares are over all cases.")))
-    ws.append(st.note_row(ws, (
-        f"{pt.distinct:,} distinct patterns over these items; the {len(pt.counts):,} most frequent are shown. "
-        "Columns that fill together mark items that go missing together.")))
-    rate_row: list[Any] = [None] * (len(lead) - 1) + [st.text_cell(ws, "Item rate")]
-    rate_row += [st.value_cell(ws, rates.get(item), st.PCT) for item in pt.items]
-    ws.append(rate_row)
-    head = st.header_row(ws, lead + list(pt.items))
-    for c in head[len(lead):]:
-        c.alignment = Alignment(text_rotation=90, horizontal="center", vertical="bottom")
-    ws.append(head)
-    shares = pt.shares
-    # Rows here are patterns (at most top_patterns), not cases.
-    for r in range(len(pt.counts)):
-        row = [st.value_cell(ws, r + 1, st.INT), st.value_cell(ws, pt.counts[r], st.INT),
-               st.value_cell(ws, shares[r], st.PCT)]
-        if weighted:
-            row.append(st.value_cell(ws, pt.weighted[r] / pt.total_weight if pt.total_weight else None, st.PCT))
-        row.append(st.value_cell(ws, int(pt.grid[r].sum()), st.INT))
-        row += [st.grid_cell(ws, bool(m)) for m in pt.grid[r]]
-        ws.append(row)
-    other = [st.text_cell(ws, "All others"), st.value_cell(ws, pt.other_cases, st.INT),
-             st.value_cell(ws, pt.other_cases / max(pt.total_cases, 1), st.PCT)]
+    s = st.SheetWriter(wb, title, title="Joint patterns of item nonresponse",
+                       explanation=[
+                           f"Columns: the {k} items with the highest item nonresponse rate (items under the minimum "
+                           f"base left out), in interview order. {st.MARK} = item nonresponse (a reason or "
+                           "item_missing); blank = any other status. Shares are over all cases.",
+                           f"{pt.distinct:,} distinct patterns over these items; the {len(pt.counts):,} most frequent "
+                           "are shown. Columns marked together show items that go missing together."])
+    items = list(pt.items)
+    lead = ["Pattern", "Cases", "Share of cases"] + (["Weighted share"] if weighted else []) + ["Items missing"]
+    rows = {"Pattern": [str(r + 1) for r in range(len(pt.counts))] + ["All others"],
+            "Cases": list(pt.counts) + [pt.other_cases],
+            "Share of cases": list(pt.shares) + [pt.other_cases / max(pt.total_cases, 1)]}
     if weighted:
-        other.append(st.value_cell(ws, pt.other_weight / pt.total_weight if pt.total_weight else None, st.PCT))
-    ws.append(other)
+        tw = pt.total_weight
+        rows["Weighted share"] = [w / tw if tw else None for w in pt.weighted] + \
+                                 [pt.other_weight / tw if tw else None]
+    rows["Pattern"] = list(range(1, len(pt.counts) + 1)) + ["All others"]
+    rows["Items missing"] = [int(pt.grid[r].sum()) for r in range(len(pt.counts))] + [None]
+    frame = pd.DataFrame(rows)
+    for j, item in enumerate(items):
+        frame[item] = list(pt.grid[:, j].astype(bool)) + [False]
+    s.cells([None] * (len(lead) - 1) + [("Item rate", None, "label")]
+            + [(rates.get(i), st.PCT, "num") for i in items])
+    ref = s.table(frame, formats={"Pattern": st.INT, "Cases": st.INT, "Share of cases": st.PCT, "Weighted share": st.PCT,
+                                  "Items missing": st.INT},
+                  headers={i: i for i in items}, rotate=items, marks=items, freeze_col=len(lead) + 1)
+    for j in range(len(lead) + 1, len(lead) + k + 1):
+        s.width(j, 6.5)  # a rate of 100.0% fits; no "###"
+    # the last line ("All others") has no pattern: blank squares, not unmarked ones
+    last = s._rows[ref.last_row - 1]
+    for j in range(len(lead), len(lead) + k):
+        last[j] = None
+    s.close()

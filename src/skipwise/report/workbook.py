@@ -9,7 +9,6 @@ from typing import Sequence
 
 import numpy as np
 import pandas as pd
-from openpyxl import Workbook
 
 import skipwise
 from skipwise.classify import classify as run_classify
@@ -20,12 +19,12 @@ from skipwise.questionnaire.model import Questionnaire
 from skipwise.rates import DEFAULT_MIN_BASE, ItemRates, item_rates, status_label
 from skipwise.report import tables as T
 from skipwise.report.patterns import nonresponse_patterns, pick_items
-from skipwise.report.sheets_completeness import write_charts_sheet, write_completeness_sheet
+from skipwise.report.sheets_completeness import worst_items, write_charts_sheet, write_completeness_sheet
 from skipwise.report.sheets_faults import FAULTS_HEADER_ROW, write_faults_sheet
 from skipwise.report.sheets_items import write_items_sheet, write_subgroups_sheet
 from skipwise.report.sheets_overview import OverviewInfo, write_overview_sheet
 from skipwise.report.sheets_patterns import write_patterns_sheet
-from skipwise.report.styles import EXCEL_MAX_ROWS
+from skipwise.sheetstyle import EXCEL_MAX_ROWS, house_workbook
 
 __all__ = ["write_item_report", "SHEETS", "DEFAULT_FAULT_ROWS", "MAX_GROUPS"]
 
@@ -170,13 +169,14 @@ def write_item_report(
         Most fault rows listed (never more than a worksheet holds); counts cover all faults.
     min_base
         Minimum unweighted D (cells in universe excl. breakoff and left_blank): items and
-        subgroup cells under it are shown, marked, and left out of the pattern-column choice
+        subgroup cells under it are shown, marked, and left out of the pattern-column choice and the
+        chart of the highest rates
         (common practice, no source).
     weights
         The weights of ``weight`` when they are not a column of ``data`` (a run passes the
         final weight it just computed; blanks count as 0).
     input_path
-        The data file read, named with its SHA-256 on the Overview sheet.
+        The data file read (its name, never its folder, and its SHA-256 on the Overview sheet).
     overwrite
         Replace an existing file at ``path``.
 
@@ -214,6 +214,7 @@ def write_item_report(
     rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
     # Items under the minimum base are never chosen for the grid: one case can make a rate of 100%.
     chosen = pick_items(rates.where(~rates_all.below_min_base.to_numpy()), top_items)
+    base_col = next(col for col in items.columns if str(col).startswith(("D: in universe", "In universe (excl.")))
     idx = [c.items.index(name) for name in chosen]
     nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
     mask = np.column_stack([T.in_codes(c.codes[:, j], nr_codes) for j in idx]) if idx else np.zeros((len(c.index), 0), dtype=bool)
@@ -233,19 +234,17 @@ def write_item_report(
         notes=_weight_notes(weight, w, rates_all), labels=_status_meanings(c),
     )
 
-    wb = Workbook(write_only=True)
+    wb = house_workbook(write_only=True)
     write_overview_sheet(wb, info, T.status_shares(c, fig), title=SHEETS[0])
-    items_layout = write_items_sheet(wb, items, title=SHEETS[1])
-    items_ws = wb[SHEETS[1]]
+    write_items_sheet(wb, items, title=SHEETS[1])
     write_faults_sheet(wb, faults, n_faults, T.fault_counts(fig), case_ids=case_ids, title=SHEETS[2])
     write_patterns_sheet(wb, patterns, rates, title=SHEETS[3])
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
     comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
                                            title=SHEETS[5])
-    ranked = rates_all.ranked(weighted=w is not None)["nonresponse_rate"]
-    ranked.name = T.ITEM_RATE_W if w is not None else T.ITEM_RATE
-    write_charts_sheet(wb, items_layout, comp_layout, items_ws, wb[SHEETS[5]], weighted=w is not None,
-                       title=SHEETS[6], worst=ranked, min_base=min_base)
+    rate_col = T.ITEM_RATE_W if w is not None and T.ITEM_RATE_W in items.columns else T.ITEM_RATE
+    write_charts_sheet(wb, worst_items(items, rate_col, base_col, min_base), comp_layout, wb[SHEETS[5]],
+                       weighted=w is not None, min_base=min_base, title=SHEETS[6])
     wb.properties.title = f"Item nonresponse report: {q.title or q.name}"
     wb.properties.creator = f"skipwise {skipwise.__version__}"
     with atomic_output(path, overwrite=overwrite) as tmp:

@@ -122,6 +122,13 @@ def encode_margins(data: pd.DataFrame, margins: Mapping[str, Mapping[object, flo
                 continue
             labels.append(label)
             values.append(float(total))
+        if values and len(values) == len(targets) and sum(values) <= 0:
+            problems.append(Problem(code=ProblemCode.BAD_VALUE, item=str(variable),
+                                    message=f"the targets of margin '{variable}' add to {sum(values):g}: calibrated "
+                                            "weights would all be 0",
+                                    hint="give the population total of each category (they must add to more than 0)",
+                                    **loc))
+            continue
         col = data[variable]
         missing = col.isna().to_numpy()
         if missing.any():

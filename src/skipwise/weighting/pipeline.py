@@ -216,6 +216,9 @@ def run_chain(prep: Prepared, base: np.ndarray, *, structure: Structure | None =
         # a replicate refits the model with its resampling factors (replicate base / full-sample base)
         fw = None if structure is None else stages["base"][prep.eligible] / prep.base[prep.eligible]
         fit = fit_propensity(prep.prop_x, prep.respondent[prep.eligible], fit_weights=fw)
+        if fit.separation is not None and fit.separation.separated:
+            notes.append("propensity model: " + fit.separation.describe("respondents", "nonrespondents")
+                         + " (their propensity is 1 and their weight is kept as it is)")
         p = np.zeros(len(w))
         p[prep.eligible] = fit.propensity
         if nr.propensity_use == "inverse":

@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
+from skipwise.separation import COMPLETE, SeparationCheck, detect_separation
 
 __all__ = ["PropensityFit", "propensity_design", "fit_propensity", "propensity_classes",
            "DEFAULT_PROPENSITY_CLASSES"]
@@ -24,6 +25,7 @@ class PropensityFit:
     propensity: np.ndarray
     params: pd.Series
     bse: pd.Series
+    separation: SeparationCheck | None = None
 
 
 def propensity_design(frame: pd.DataFrame, covariates: list[str], *,
@@ -62,14 +64,34 @@ def fit_propensity(x: pd.DataFrame, responded: np.ndarray, fit_weights: np.ndarr
     resampling multiplicities of a replicate) a binomial GLM with frequency
     weights, which equals ``Logit`` when all weights are equal.
 
+    The full-sample fit is checked for separation first (:func:`skipwise.separation.detect_separation`):
+    complete separation, or quasi-complete separation that leaves eligible nonrespondents with a
+    propensity of 0, is refused (their weight would be lost); quasi-complete separation among
+    respondents only (propensities of 1) is kept and reported in ``separation``.
+
     References
     ----------
     Rosenbaum, P. R. & Rubin, D. B. (1983). The central role of the propensity
     score in observational studies for causal effects. *Biometrika* 70(1), 41–55.
+    Albert, A. & Anderson, J. A. (1984). On the existence of maximum likelihood estimates in
+    logistic regression models. *Biometrika* 71(1), 1–10.
     """
     import statsmodels.api as sm
 
     y = np.asarray(responded, dtype=float)
+    sep = None
+    if fit_weights is None:  # the full-sample fit; replicates refit the design already accepted
+        sep = detect_separation(x, y.astype(bool))
+        if sep.verdict == COMPLETE or sep.perfect_zeros:
+            what = ("separate respondents from nonrespondents completely" if sep.verdict == COMPLETE else
+                    f"leave {sep.perfect_zeros:,} eligible nonrespondent(s) with a response propensity of 0")
+            raise SkipwiseError(Problem(
+                code=ProblemCode.SINGULAR, category=Category.DATA, item=", ".join(sep.terms) or "propensity",
+                message=f"the propensity covariates {what} ({sep.verdict} separation by "
+                        f"{', '.join(sep.terms) or 'a combination of covariates'}): their weight could not be "
+                        "carried by any respondent, so the weights would miss their totals",
+                hint="collapse the category with a neighbouring one, drop the covariate, or use "
+                     "'method: classes' with collapsing"))
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")
@@ -91,7 +113,7 @@ def fit_propensity(x: pd.DataFrame, responded: np.ndarray, fit_weights: np.ndarr
                                     hint="drop collinear covariates"))
     p = 1.0 / (1.0 + np.exp(-(x.to_numpy() @ params.to_numpy())))
     return PropensityFit(propensity=p, params=pd.Series(params, index=x.columns),
-                         bse=pd.Series(res.bse, index=x.columns))
+                         bse=pd.Series(res.bse, index=x.columns), separation=sep)
 
 
 def propensity_classes(p: np.ndarray, n_classes: int = DEFAULT_PROPENSITY_CLASSES) -> tuple[np.ndarray, list[str]]:
