@@ -131,8 +131,10 @@ def test_catalogue_is_well_formed():
     assert len(ids) >= 40
     known = {c.value for c in ProblemCode}
     for case in CATALOGUE:
-        assert set(case) <= {"id", "run", "codes", "message", "make"}, case["id"]
-        assert case["codes"] and set(case["codes"]) <= known, case["id"]
+        assert set(case) <= {"id", "run", "codes", "message", "make", "exit"}, case["id"]
+        # exit 2: bad command-line usage, refused by the option parser before any skipwise code runs.
+        assert case.get("exit", 1) in (1, 2), case["id"]
+        assert (case["codes"] or case.get("exit") == 2) and set(case["codes"]) <= known, case["id"]
         assert case["message"].strip(), case["id"]
     # Every committed bad file is used by some case (no dead inputs).
     named = " ".join(" ".join(map(str, args)) for args in [c["run"] for c in CATALOGUE] + HAPPY)
@@ -144,6 +146,11 @@ def test_catalogue_is_well_formed():
 def test_bad_input(case, tmp_path, recorded):
     result, in_before, in_after, out_before, out_after, out = run_case(case, tmp_path, recorded)
     text = result.output
+    if case.get("exit") == 2:  # a usage error (DESIGN §5): click's message, nothing written or recorded
+        assert result.exit_code == 2, f"exit {result.exit_code}: {text}\n{result.exception!r}"
+        assert case["message"] in text and "Traceback" not in text and recorded == []
+        assert out_after == out_before and in_after == in_before
+        return
     assert result.exit_code == 1, f"exit {result.exit_code}: {text}\n{result.exception!r}"
     # A user error: the command caught a SkipwiseError (or check found errors), nothing escaped.
     assert result.exception is None or isinstance(result.exception, SystemExit), repr(result.exception)

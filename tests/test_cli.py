@@ -62,8 +62,9 @@ def test_classify_writes_status_columns_and_faults(files):
     # DESIGN §3 numbers: answered 1, off_route 6, refused 12 (built-in, docs/statuses.md), gate_unknown 4
     assert frame["amount_status"].tolist() == [1, 6, 12, 4]
     assert meta.variable_value_labels["amount_status"][6.0] == "off_route"
-    faults = pd.read_csv(tmp / "out_faults.csv")
-    assert faults[["case_id", "item", "status", "value", "inputs"]].values.tolist() == [
+    # DESIGN §8: the listing of x.sav is x.sav.faults.csv; its case id column keeps the data's name.
+    faults = pd.read_csv(tmp / "out.sav.faults.csv")
+    assert faults[["id", "item", "status", "value", "inputs"]].values.tolist() == [
         [2, "amount", "off_route", 3, "gate=2"]]
     # An existing output is kept unless --overwrite is given.
     again = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(out)])
@@ -73,11 +74,13 @@ def test_classify_writes_status_columns_and_faults(files):
 def test_classify_jobs_option_gives_the_same_file(files):
     tmp, q, data = files
     for jobs in ("1", "2"):
-        result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / f"j{jobs}.csv"),
-                                     "--jobs", jobs])
-        assert result.exit_code == 0, result.output
-    assert (tmp / "j1.csv").read_bytes() == (tmp / "j2.csv").read_bytes()
-    assert (tmp / "j1_faults.csv").read_bytes() == (tmp / "j2_faults.csv").read_bytes()
+        for ext in (".csv", ".sav"):
+            result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / f"j{jobs}{ext}"),
+                                         "--jobs", jobs])
+            assert result.exit_code == 0, result.output
+    for ext in (".csv", ".sav"):  # the .sav header holds the data file's time, not the run's
+        assert (tmp / f"j1{ext}").read_bytes() == (tmp / f"j2{ext}").read_bytes()
+        assert (tmp / f"j1{ext}.faults.csv").read_bytes() == (tmp / f"j2{ext}.faults.csv").read_bytes()
     bad = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / "j0.csv"), "--jobs", "0"])
     assert bad.exit_code != 0 and not (tmp / "j0.csv").exists()
 
@@ -134,3 +137,75 @@ def test_output_never_replaces_an_input(files, command, extra):
     assert "would replace an input file" in result.output
     if command == "classify":
         assert data.read_bytes() == before
+
+
+@pytest.mark.parametrize("suffix", [".zsav", ".xlsx"])
+def test_classify_writes_zsav_and_xlsx(files, suffix):
+    tmp, q, data = files
+    out = tmp / f"out{suffix}"
+    result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(out)])
+    assert result.exit_code == 0, result.output
+    # Read back with the outside readers: pyreadstat for .zsav, pandas/openpyxl for .xlsx.
+    if suffix == ".zsav":
+        frame, _ = pyreadstat.read_sav(str(out))
+    else:
+        frame = pd.read_excel(out, engine="openpyxl")
+    assert frame["amount_status"].tolist() == [1, 6, 12, 4]  # refused has the built-in number 12
+    assert (tmp / f"out{suffix}.faults.csv").is_file()
+
+
+def test_sav_and_dta_fault_listings_do_not_collide(files):
+    tmp, q, data = files
+    for name in ("x.sav", "x.dta"):
+        assert runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / name)]).exit_code == 0
+    assert (tmp / "x.sav.faults.csv").is_file() and (tmp / "x.dta.faults.csv").is_file()
+
+
+def test_form_is_a_choice_and_a_bad_one_exits_2_with_the_choices(files):
+    tmp, q, data = files
+    result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / "c.csv"), "--form", "wide"])
+    # click's usage-error exit status is 2 (DESIGN §5: bad command-line usage).
+    assert result.exit_code == 2
+    assert "'wide' is not one of" in result.output and "columns" in result.output and "recoded" in result.output
+    assert not (tmp / "c.csv").exists()
+
+
+@pytest.mark.parametrize("spelling", ["-o", "--out", "--output"])
+def test_draft_and_diagnose_take_out_and_the_old_output_spelling(files, spelling):
+    tmp, q, data = files
+    result = runner.invoke(app, ["draft", str(data), spelling, str(tmp / "d.yaml")])
+    assert result.exit_code == 0, result.output
+    assert (tmp / "d.yaml").is_file()
+    help_text = runner.invoke(app, ["draft", "--help"]).output
+    assert "--out" in help_text and "--output" not in help_text  # the old spelling is hidden
+
+
+def test_draft_without_out_is_a_usage_error(files):
+    tmp, q, data = files
+    result = runner.invoke(app, ["draft", str(data)])
+    assert result.exit_code == 2 and "--out" in result.output
+
+
+@pytest.mark.parametrize("target", ["c.xpt", "c.sas7bdat"])
+def test_sas_output_is_refused_with_the_reason(files, target):
+    tmp, q, data = files
+    result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / target)])
+    assert result.exit_code == 1
+    assert "cannot carry value labels or missing-value definitions" in result.output
+    assert not (tmp / target).exists()
+
+
+def test_writer_notes_come_once_per_file(tmp_path):
+    from skipwise.io import MetadataWarning, SurveyMeta, write_survey
+    import warnings
+
+    frame = pd.DataFrame({f"v{i}": [1.0, -7.0, -8.0, -9.0, -6.0] for i in range(5)})
+    meta = SurveyMeta(missing_values={c: [-6, -7, -8, -9] for c in frame.columns})
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        write_survey(frame, tmp_path / "n.sav", meta)
+    notes = [w for w in caught if issubclass(w.category, MetadataWarning)]
+    assert len(notes) == 1 and "v0" in str(notes[0].message) and "v4" in str(notes[0].message)
+    # SPSS takes 3 discrete codes at most; pyreadstat reads back the covering range it wrote.
+    _, back = pyreadstat.read_sav(str(tmp_path / "n.sav"), user_missing=True)
+    assert back.missing_ranges["v0"] == [{"lo": -9.0, "hi": -6.0}]

@@ -148,3 +148,20 @@ def test_demo_codebook_carries_the_study_block_and_question_texts(demo):
     assert doc.findtext("d:dataDscr/d:var[@name='income']/d:qstn/d:qstnLit", namespaces=ns).startswith("What was")
     md = (out / "package/codebook.md").read_text()
     assert "| Fieldwork from | 2026-03-02 |" in md and "| question text | What was your household" in md
+
+
+def test_a_rerun_of_the_demo_plan_gives_the_same_bytes(demo):
+    out, _, _ = demo
+    # Run the demo's own plan again (the first package moved aside) and compare every file's
+    # SHA-256 but manifest.json's, the one place for run times and absolute paths.
+    first = out / "package_first"
+    (out / "package").rename(first)
+    result = CliRunner().invoke(app, ["run", str(out / "plan.yaml")])
+    assert result.exit_code == 0, result.output
+    names = sorted(p.name for p in first.iterdir())
+    assert names == sorted(p.name for p in (out / "package").iterdir())
+
+    def sha(path):
+        return hashlib.sha256(path.read_bytes()).hexdigest()
+
+    assert [n for n in names if n != "manifest.json" and sha(first / n) != sha(out / "package" / n)] == []

@@ -306,7 +306,7 @@ def test_meta_helpers():
     assert merged.column_labels == {"a": "New", "b": "B"} and merged.file_label == "F"
     assert meta.with_column("s", label="status", value_labels={1: "answered"}).value_labels["s"] == {1: "answered"}
     assert meta.renamed({"a": "z"}).column_labels == {"z": "A", "b": "B"}
-    assert set(SUPPORTED_EXTENSIONS) == {".sav", ".zsav", ".dta", ".csv", ".xlsx", ".parquet"}
+    assert set(SUPPORTED_EXTENSIONS) == {".sav", ".zsav", ".dta", ".csv", ".xlsx", ".parquet", ".sas7bdat", ".xpt"}
 
 
 _keys = st.one_of(st.integers(-10**6, 10**6), st.floats(allow_nan=False, allow_infinity=False),

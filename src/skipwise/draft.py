@@ -66,6 +66,7 @@ ROUTING_NOTE = "# asked_if: add the routing condition"
 KIND_NOTE = "# guessed: confirm kind"
 OBSERVED_NOTE = "# observed: widen to the valid range"
 STATA = "Stata extended missing"
+SAS = "SAS special missing"
 #: A variable label longer than this many characters also becomes the item's ``text:`` (the
 #: question wording); shorter ones read as names of the variable (common practice, no source).
 TEXT_FROM_LABEL = 60
@@ -152,10 +153,9 @@ def _column_codes(col: str, num: np.ndarray, txt: np.ndarray | None, blank: np.n
                   labels: dict[Value, str], meta: SurveyMeta) -> tuple[list[DraftCode], list[str]]:
     codes: dict[Value, DraftCode] = {}
     notes: list[str] = []
-    stata = meta.source_format == "dta"
+    src = {"dta": STATA, "sas7bdat": SAS, "xpt": SAS}.get(meta.source_format or "", "SPSS missing value")
     for v in meta.missing_values.get(col, []):
         v = normalize_value(v)
-        src = STATA if stata else "SPSS missing value"
         codes.setdefault(v, _make_code(v, labels.get(v), src))
     for lo, hi in meta.missing_ranges.get(col, []):
         seen = np.unique(num[~blank & (num >= lo) & (num <= hi)])
@@ -192,7 +192,7 @@ def _draft_item(col: str, s: pd.Series, meta: SurveyMeta) -> DraftItem:
     if rest.any():
         numeric = not np.isnan(num[rest]).any()
     else:  # only blanks and codes: numeric unless the labels or codes are text
-        numeric = txt is None or any(not isinstance(c.value, str) or c.source == STATA for c in codes) or (
+        numeric = txt is None or any(not isinstance(c.value, str) or c.source in (STATA, SAS) for c in codes) or (
             bool(cats) and not any(isinstance(k, str) for k in cats))
     if numeric and all(not isinstance(k, str) for k in cats):
         seen = num[rest]

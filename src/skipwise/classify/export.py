@@ -25,6 +25,7 @@ docs/statuses.md): statuses 1-9, reasons 11-99 by the questionnaire's
 from __future__ import annotations
 
 from enum import Enum
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -38,7 +39,7 @@ from skipwise.io import SurveyMeta, get_meta
 from skipwise.questionnaire.model import ItemType
 
 __all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy",
-           "STATUS_SUFFIX", "status_columns"]
+           "STATUS_SUFFIX", "status_columns", "fault_listing", "faults_path"]
 
 STATUS_SUFFIX = "_status"
 #: Extended missing letters of Stata, ``.a`` ... ``.z``: statuses 2-9 take ``.a``-``.h``, reasons 11-28 ``.i``-``.z``.
@@ -192,3 +193,20 @@ def _check_no_collision(series: pd.Series, mapping: dict[str, object], col: str,
             code=ProblemCode.CODE_COLLISION, category=Category.DATA, item=col,
             message=f"column '{col}' already holds one of skipwise's status codes ({int(codes.max())} to "
                     f"{int(codes.min())})", hint="use the 'columns' export form for this file"))
+
+
+def fault_listing(cl: Classification) -> pd.DataFrame:
+    """The routing faults as written beside a classified file: the case id column keeps the
+    data's own name (``resp_id``, not ``case_id``) unless that name is one of the listing's
+    other columns, when it stays ``case_id``."""
+    faults = cl.faults
+    cid = cl.questionnaire.case_id
+    if cid and cid != "case_id" and cid not in faults.columns:
+        faults = faults.rename(columns={"case_id": cid})
+    return faults
+
+
+def faults_path(out: Path) -> Path:
+    """Where the fault listing of ``out`` goes: ``x.sav`` -> ``x.sav.faults.csv`` (DESIGN §8), so
+    ``x.sav`` and ``x.dta`` never claim the same file."""
+    return out.with_name(out.name + ".faults.csv")

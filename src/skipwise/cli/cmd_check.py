@@ -27,7 +27,7 @@ def format_table(rows: Sequence[tuple], header: Sequence[str] = COLUMNS) -> list
 
 @app.command("check")
 def check_command(
-    data: Annotated[Path, typer.Argument(help="Survey data file: .sav, .zsav, .dta, .csv, .xlsx or .parquet.")],
+    data: Annotated[Path, typer.Argument(help="Survey data file: .sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat or .xpt.")],
     questionnaire: Annotated[Path, typer.Option("--questionnaire", "-q",
                                                 help="Questionnaire file (YAML, format 1) to check.")],
     top: Annotated[int, typer.Option("--top", min=1,

@@ -7,23 +7,26 @@ from typing import Annotated, Optional
 
 import typer
 
+from skipwise.classify.export import ExportForm
 from skipwise.cli.app import app, fail
-from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs, sibling
+from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs
 from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 
-OUT_FORMATS = (".sav", ".dta", ".parquet", ".csv")
+OUT_FORMATS = (".sav", ".zsav", ".dta", ".parquet", ".csv", ".xlsx")
 
 
 @app.command("classify")
 def classify_command(
-    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet).")],
+    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet .sas7bdat .xpt).")],
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
-    out: Annotated[Path, typer.Option("-o", "--out", help="Output file: .sav, .dta, .parquet or .csv.")],
-    form: Annotated[str, typer.Option(
-        "--form", help="'columns': add one labelled status column per item; 'recoded': replace every "
-                       "non-answer cell by a special code per status (user-missing in .sav, extended "
-                       "missing in .dta).")] = "columns",
+    out: Annotated[Path, typer.Option("-o", "--out", help="Output file: .sav, .zsav, .dta, .parquet, .csv or .xlsx "
+                                                          "(SAS files are read, not written).")],
+    form: Annotated[ExportForm, typer.Option(
+        "--form", case_sensitive=False,
+        help="'columns': add one labelled status column per item; 'recoded': replace every "
+             "non-answer cell by a special code per status (user-missing in .sav, extended "
+             "missing in .dta).")] = ExportForm.COLUMNS,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
     engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
@@ -35,13 +38,15 @@ def classify_command(
     """Classify every cell as answered, skipped, a nonresponse reason, item_missing, gate_unknown,
     breakoff, off_route, wrong_code, invalid or left_blank (an optional item left blank).
 
-    Writes OUT with every original column and label kept, and OUT_faults.csv listing each routing
-    fault with its case id — that listing holds respondents' data: share it only under your
-    organization's data protection rules.
+    Writes OUT with every original column and label kept, and OUT.faults.csv (e.g. x.sav.faults.csv)
+    listing each routing fault with its case id — that listing holds respondents' data: share it
+    only under your organization's data protection rules.
     """
-    from skipwise.classify.export import ExportForm, recoded_copy, with_status_columns
+    from skipwise.classify.export import fault_listing, faults_path, recoded_copy, with_status_columns
     from skipwise.io import get_meta, write_survey
     from skipwise.publish import check_writable, publish_files
+    from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
+    from skipwise.io.stable import stamp_file, timestamp_of
 
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
@@ -54,15 +59,14 @@ def classify_command(
         return
     try:
         if out.suffix.lower() not in OUT_FORMATS:
+            if out.suffix.lower() in SUPPORTED_EXTENSIONS:
+                output_format_of(out)  # SAS is refused with its reason
             raise SkipwiseError(f"output {out} must end in one of {', '.join(OUT_FORMATS)}")
-        try:
-            chosen = ExportForm(form)
-        except ValueError:
-            raise SkipwiseError(f"--form must be 'columns' or 'recoded', not {form!r}") from None
-        faults_path = sibling(out, "_faults", ".csv")
+        chosen = ExportForm(form)
+        fault_file = faults_path(out)
         inputs = (data, questionnaire)
         check_writable(out, overwrite=overwrite, inputs=inputs)
-        check_writable(faults_path, overwrite=overwrite, inputs=inputs)
+        check_writable(fault_file, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
         cl = classify_with_progress(frame, q, jobs=jobs)
         meta = get_meta(frame)
@@ -72,10 +76,11 @@ def classify_command(
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
-        with publish_files([out, faults_path], overwrite=overwrite) as (tmp_out, tmp_faults):
-            with echo_warnings():
+        with publish_files([out, fault_file], overwrite=overwrite) as (tmp_out, tmp_faults):
+            with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
-            cl.faults.to_csv(tmp_faults, index=False)
+            stamp_file(tmp_out, timestamp_of(data))  # the write time inside the file: the data's own
+            fault_listing(cl).to_csv(tmp_faults, index=False)
     except SkipwiseError as err:
         fail(err)
     shares = cl.counts().sum(axis=0)
@@ -86,7 +91,7 @@ def classify_command(
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
     _echo_invalid_hint(cl, data, questionnaire)
     typer.echo(f"wrote {out}")
-    typer.echo(f"wrote {faults_path} ({len(cl.faults):,} routing faults; it lists case ids)")
+    typer.echo(f"wrote {fault_file} ({len(cl.faults):,} routing faults; it lists case ids)")
 
 
 def _echo_invalid_hint(cl, data: Path, questionnaire: Path) -> None:

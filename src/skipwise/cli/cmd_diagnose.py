@@ -49,9 +49,10 @@ _HELP = (
 
 @app.command("diagnose", help=_HELP)
 def diagnose(
-    data_path: Annotated[Path, typer.Argument(metavar="DATA", help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
+    data_path: Annotated[Path, typer.Argument(metavar="DATA", help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat, .xpt).")],
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
-    output: Annotated[Path, typer.Option("-o", "--output", help="Workbook to write (.xlsx).")] = Path("diagnostics.xlsx"),
+    out: Annotated[Optional[Path], typer.Option("-o", "--out", help="Workbook to write (.xlsx; default diagnostics.xlsx).")] = None,
+    output_old: Annotated[Optional[Path], typer.Option("--output", hidden=True)] = None,
     items: Annotated[Optional[list[str]], typer.Option("--items", help="Items to diagnose (repeat or comma-separate; default: all).")] = None,
     aux: Annotated[Optional[list[str]], typer.Option("--aux", help="Auxiliary columns known for every case (repeat or comma-separate; default: suitable context columns plus the items age and sex if asked of everyone with at most 2% nonresponse; with --response, only what is known for every sampled case). Replaces the defaults: use --add-aux to add to them. An item may be named: its answers are used.")] = None,
     add_aux: Annotated[Optional[list[str]], typer.Option("--add-aux", help="Auxiliary columns or items used in addition to the default ones (repeat or comma-separate).")] = None,
@@ -76,6 +77,9 @@ def diagnose(
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace the output file if it exists.")] = False,
 ) -> None:
     """Diagnose the missingness mechanism (help text: ``_HELP``)."""
+    from skipwise.cli.common import out_option
+
+    output = out_option(out, output_old, Path("diagnostics.xlsx"))
     try:
         from skipwise.cli.common import classify_with_progress
         from skipwise.diagnostics import SuggestionThresholds

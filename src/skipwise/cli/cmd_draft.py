@@ -20,8 +20,10 @@ def default_name(path: Path) -> str:
 
 @app.command("draft")
 def draft_command(
-    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet) or a DDI-Codebook 2.5 document (.xml).")],
-    output: Annotated[Path, typer.Option("--output", "-o", help="Questionnaire file to write (.yaml).")],
+    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat, "
+                                              ".xpt) or a DDI-Codebook 2.5 document (.xml).")],
+    out: Annotated[Optional[Path], typer.Option("--out", "-o", help="Questionnaire file to write (.yaml).")] = None,
+    output_old: Annotated[Optional[Path], typer.Option("--output", hidden=True)] = None,
     case_id: Annotated[Optional[str], typer.Option(
         "--case-id", help="Case id column (default: the first column whose values are unique and filled).")] = None,
     name: Annotated[Optional[str], typer.Option(
@@ -41,9 +43,11 @@ def draft_command(
     questionnaire.  Observed ranges come from respondents' answers: keep the draft
     under your data protection rules.
     """
+    from skipwise.cli.common import out_option
     from skipwise.draft import draft_questionnaire, write_draft
     from skipwise.io import read_survey
 
+    output = out_option(out, output_old)
     try:
         if output.suffix.lower() not in (".yaml", ".yml"):
             raise SkipwiseError(Problem(code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(output),

@@ -36,7 +36,7 @@ def output_paths(out: Path, m: int, form: str) -> list[Path]:
 
 @app.command("impute", help=HELP)
 def impute_command(
-    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
+    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat, .xpt).")],
     questionnaire: Annotated[Path, typer.Option("--questionnaire", "-q", help="Questionnaire file (YAML).")],
     plan: Annotated[Path, typer.Option("--plan", "-p", help="Imputation plan file (YAML); see docs/imputation.md.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Completed data file; its extension sets the format.")],
@@ -50,9 +50,9 @@ def impute_command(
         from skipwise.pipeline.steps import imputation_meta, imputed_frames
         from skipwise.questionnaire import load_questionnaire
 
-        from skipwise.io.readers import format_of
+        from skipwise.io.readers import output_format_of
 
-        format_of(out)  # an unsupported output type fails before any work is done
+        output_format_of(out)  # an unsupported (or SAS) output type fails before any work is done
         q = load_questionnaire(questionnaire)
         spec = load_plan(plan)
         paths = output_paths(out, spec.spec.m, spec.output.form)

@@ -28,7 +28,7 @@ HELP = (
 
 @app.command("report", help=HELP)
 def report_command(
-    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet).")],
+    data: Annotated[Path, typer.Argument(help="Survey file (.sav .zsav .dta .csv .xlsx .parquet .sas7bdat .xpt).")],
     questionnaire: Annotated[Path, typer.Option("-q", "--questionnaire", help="Questionnaire file (YAML).")],
     out: Annotated[Path, typer.Option("-o", "--out", help="Workbook to write (.xlsx).")],
     weight: Annotated[Optional[str], typer.Option(

@@ -24,7 +24,7 @@ HELP = (
 
 @app.command("weigh", help=HELP)
 def weigh_command(
-    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet).")],
+    data: Annotated[Path, typer.Argument(help="Survey data file (.sav, .zsav, .dta, .csv, .xlsx, .parquet, .sas7bdat, .xpt).")],
     plan: Annotated[Path, typer.Option("--plan", "-p", help="Weighting plan file (YAML); see docs/weighting.md.")],
     out: Annotated[Path, typer.Option("--out", "-o", help="Weighted data file to write; its extension sets the format.")],
     questionnaire: Annotated[Optional[Path], typer.Option(
@@ -42,9 +42,9 @@ def weigh_command(
         from skipwise.weighting.weigh import CAUTIONS
         from skipwise.weighting.workbook import summary_rows, write_workbook
 
-        from skipwise.io.readers import format_of
+        from skipwise.io.readers import output_format_of
 
-        format_of(out)  # an unsupported output type fails before any work is done
+        output_format_of(out)  # an unsupported (or SAS) output type fails before any work is done
         spec = load_plan(plan)
         parquet = out.with_suffix(".parquet")
         book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.stem + "_weights.xlsx"))

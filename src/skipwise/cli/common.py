@@ -12,7 +12,7 @@ import typer
 
 from skipwise.questionnaire import Questionnaire, load_questionnaire
 
-__all__ = ["EchoReporter", "load_inputs", "classify_with_progress", "echo_warnings", "sibling"]
+__all__ = ["EchoReporter", "load_inputs", "classify_with_progress", "echo_warnings", "sibling", "out_option"]
 
 
 def load_inputs(data_path: Path, questionnaire_path: Path) -> tuple[pd.DataFrame, Questionnaire]:
@@ -53,17 +53,37 @@ class EchoReporter:
 
 
 @contextlib.contextmanager
-def echo_warnings() -> Iterator[None]:
-    """Show format adaptations (e.g. SPSS missing ranges) as notes on stderr."""
+def echo_warnings(shown: dict[str, str] | None = None) -> Iterator[None]:
+    """Show format adaptations (e.g. SPSS missing ranges) as notes on stderr, one per file.
+
+    ``shown`` maps texts to print otherwise (a temporary file's name to the output's).
+    """
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         yield
     for w in caught:
         if issubclass(w.category, UserWarning):
-            typer.echo(f"note: {w.message}", err=True)
+            text = str(w.message)
+            for old, new in (shown or {}).items():
+                text = text.replace(old, new)
+            typer.echo(f"note: {text}", err=True)
 
 
 def sibling(path: Path, suffix: str, ext: str) -> Path:
-    """``out/data.sav`` -> ``out/data_faults.csv`` style companion path."""
+    """``out/data.sav`` -> ``out/data_weights.xlsx`` style companion path."""
     return path.with_name(f"{path.stem}{suffix}{ext}")
+
+
+def out_option(out: Path | None, old: Path | None, default: Path | None = None) -> Path:
+    """The output path from ``-o/--out`` or its older hidden spelling ``--output``.
+
+    Both given (and different), or neither without a default, is a usage error (exit 2).
+    """
+    if out is not None and old is not None and out != old:
+        raise typer.BadParameter("give the output once (--output is the older spelling of --out)",
+                                 param_hint="'-o' / '--out'")
+    chosen = out if out is not None else old if old is not None else default
+    if chosen is None:
+        raise typer.BadParameter("missing: name the file to write", param_hint="'-o' / '--out'")
+    return chosen
 

@@ -19,19 +19,26 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_y
 from skipwise.io.meta import SurveyMeta, normalize_value, set_meta
 from skipwise.publish import clean_message
 
-__all__ = ["read_survey", "SUPPORTED_EXTENSIONS", "format_of", "META_KEY", "MIXED_KEY"]
+__all__ = ["read_survey", "SUPPORTED_EXTENSIONS", "READ_ONLY_FORMATS", "format_of", "output_format_of",
+           "META_KEY", "MIXED_KEY", "SAS_OUTPUT_REASON"]
 
 #: File extensions read and written (case-insensitive), mapped to the format name.
 SUPPORTED_EXTENSIONS: dict[str, str] = {
     ".sav": "sav", ".zsav": "zsav", ".dta": "dta", ".csv": "csv", ".xlsx": "xlsx", ".parquet": "parquet",
+    ".sas7bdat": "sas7bdat", ".xpt": "xpt",
 }
+#: Formats read but never written (see :func:`output_format_of`).
+READ_ONLY_FORMATS: frozenset[str] = frozenset({"sas7bdat", "xpt"})
+#: Why SAS files are read but not written (one text for every command that refuses them).
+SAS_OUTPUT_REASON = ("skipwise reads SAS files but does not write them: the transport format (.xpt) cannot "
+                     "carry value labels or missing-value definitions, and .sas7bdat has no open writer")
 
 #: Parquet schema-metadata key holding :meth:`SurveyMeta.to_json`.
 META_KEY = b"skipwise.meta"
 #: Parquet schema-metadata key listing columns stored as text because they mix numbers and ".a" letters.
 MIXED_KEY = b"skipwise.mixed"
 
-_EXT_MISSING = r"\.[a-z]"
+_EXT_MISSING = r"\.[a-zA-Z_]"  # Stata .a-.z, SAS .A-.Z and ._
 # The commands have no encoding option: the hint says what to do with the file; the library's
 # read_survey(encoding=...) is named as such, not as a command argument.
 _ENCODING_HINT = ("save or export the file as UTF-8 text, then run the command again (from Python, "
@@ -48,6 +55,26 @@ def format_of(path: str | Path) -> str:
             message=f"unsupported file type '{path.suffix or '(none)'}'",
             hint="use one of " + ", ".join(SUPPORTED_EXTENSIONS),
         ))
+    return fmt
+
+
+def output_format_of(path: str | Path) -> str:
+    """Format name for an output ``path``; SkipwiseError FILE_FORMAT if it cannot be written.
+
+    SAS files (``.sas7bdat``, ``.xpt``) are input-only: the message says why and what to write instead.
+    """
+    writable = [e for e, f in SUPPORTED_EXTENSIONS.items() if f not in READ_ONLY_FORMATS]
+    if Path(path).suffix.lower() not in SUPPORTED_EXTENSIONS:
+        raise SkipwiseError(Problem(
+            code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(path),
+            message=f"unsupported file type '{Path(path).suffix or '(none)'}'", hint="use one of " + ", ".join(writable)))
+    fmt = format_of(path)
+    if fmt in READ_ONLY_FORMATS:
+        raise SkipwiseError(Problem(
+            code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(path),
+            message=SAS_OUTPUT_REASON,
+            hint="write .dta (it keeps the special missing values .A-.Z, as .a-.z), .parquet (it keeps "
+                 "them as stored) or .sav"))
     return fmt
 
 
@@ -75,14 +102,16 @@ def _blank_text_to_nan(df: pd.DataFrame, string_cols: list[str]) -> None:
         df[c] = df[c].mask(df[c].astype(object).isin([""]))
 
 
-def _letters_to_dotted(s: pd.Series) -> tuple[pd.Series, list[str]]:
-    """pyreadstat returns Stata extended missing as "a".."z"; make them ".a".."z"."""
+def _letters_to_dotted(s: pd.Series, *, upper: bool = False) -> tuple[pd.Series, list[str]]:
+    """pyreadstat returns Stata extended missing as "a".."z" (SAS special missing as "A".."Z", "_");
+    make them ".a".."z" (".A".."Z", "._")."""
     num = pd.to_numeric(s, errors="coerce")
     letters = s.notna() & num.isna()
     if not letters.any():
         return num, []
     out = num.astype(object)
-    out[letters] = "." + s[letters].astype(str)
+    text = s[letters].astype(str)
+    out[letters] = "." + (text.str.upper() if upper else text)
     return out, sorted(pd.unique(out[letters]).tolist())
 
 
@@ -282,26 +311,39 @@ def parquet_frame(table, path: Path, fmt: str = "parquet") -> pd.DataFrame:
     return set_meta(df, meta)
 
 
+def _read_sas(path: Path, fmt: str, encoding: str | None, columns: list[str] | None,
+              catalog: Path | None = None) -> pd.DataFrame:
+    from skipwise.io.readers_sas import read_sas
+
+    return read_sas(path, fmt, encoding, columns, catalog)
+
+
 _READERS: dict[str, Callable[[Path, str, str | None, list[str] | None], pd.DataFrame]] = {
     "sav": _read_readstat, "zsav": _read_readstat, "dta": _read_readstat,
     "csv": _read_csv, "xlsx": _read_xlsx, "parquet": _read_parquet,
+    "sas7bdat": _read_sas, "xpt": _read_sas,
 }
 
 
+
 def read_survey(path: str | Path, *, encoding: str | None = None,
-                columns: list[str] | None = None) -> pd.DataFrame:
+                columns: list[str] | None = None, catalog: str | Path | None = None) -> pd.DataFrame:
     """Read a survey data file, keeping special codes as stored values.
 
     Parameters
     ----------
     path
-        A ``.sav``, ``.zsav``, ``.dta``, ``.csv``, ``.xlsx`` or ``.parquet`` file
-        (extension case-insensitive).
+        A ``.sav``, ``.zsav``, ``.dta``, ``.csv``, ``.xlsx``, ``.parquet``, ``.sas7bdat``
+        or ``.xpt`` file (extension case-insensitive).
     encoding
         Text encoding; for SPSS/Stata the file's own declaration is used when
         None, for CSV utf-8 (a byte-order mark is tolerated).
     columns
         Read only these columns (in this order for CSV, Excel and Parquet).
+    catalog
+        SAS format catalog (``.sas7bcat``) with the value labels of a ``.sas7bdat``;
+        default: the ``.sas7bcat`` beside it with the same stem (else ``formats.sas7bcat``
+        in the same folder), if there is one.
 
     Returns
     -------
@@ -323,6 +365,11 @@ def read_survey(path: str | Path, *, encoding: str | None = None,
           ``"None"`` stay answers; numeric-looking columns become numbers.
         - Excel: the first sheet; blank cells are NaN.
         - Parquet: metadata restored from the schema key ``skipwise.meta``.
+        - SAS (``.sas7bdat``, ``.xpt``): variable labels and formats; special missing
+          values ``.A``-``.Z`` and ``._`` become the strings ``".A"``-``".Z"``, ``"._"``
+          (like Stata's letters), listed in ``missing_values``; plain ``.`` is NaN.
+          Value labels come from the format catalog (``.sas7bdat`` only: a transport
+          file has no catalog), matched by each variable's format name.
 
     Raises
     ------
@@ -343,4 +390,15 @@ def read_survey(path: str | Path, *, encoding: str | None = None,
     if path.stat().st_size == 0:
         raise _unreadable(path, "the file is empty (0 bytes)", "re-export the data")
     cols = None if columns is None else [str(c) for c in columns]
+    if catalog is not None:
+        catalog = Path(catalog)
+        if fmt != "sas7bdat":
+            raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(catalog),
+                                        message="a SAS format catalog goes with a .sas7bdat data file only",
+                                        hint=f"drop the catalog for {path.name}"))
+        if not catalog.is_file():
+            raise SkipwiseError(Problem(code=ProblemCode.FILE_NOT_FOUND, category=Category.USAGE,
+                                        file=str(catalog), message="format catalog not found",
+                                        hint="check the path of the .sas7bcat file"))
+        return _read_sas(path, fmt, encoding, cols, catalog)
     return _READERS[fmt](path, fmt, encoding, cols)

@@ -23,7 +23,7 @@ import pandas as pd
 from skipwise.errors import ProblemCode, SkipwiseError
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.io.meta import SurveyMeta, get_meta
-from skipwise.io.readers import format_of
+from skipwise.io.readers import output_format_of
 from skipwise.publish import clean_message, os_error_problem, user_path
 from skipwise.io.writers_common import Job, MetadataWarning, drain_notes, problem
 from skipwise.io.writers_plain import prepare_csv as _prepare_csv
@@ -93,7 +93,7 @@ def write_survey(df: pd.DataFrame, path: str | Path, meta: SurveyMeta | None = N
     import pyreadstat
 
     path = Path(path)
-    fmt = format_of(path)
+    fmt = output_format_of(path)
     check_writable(path, overwrite=overwrite)
     meta = (get_meta(df) if meta is None else meta.copy()).subset(str(c) for c in df.columns)
     drain_notes()
@@ -101,8 +101,8 @@ def write_survey(df: pd.DataFrame, path: str | Path, meta: SurveyMeta | None = N
         job = _PREPARE[fmt](df, meta, path, fmt)
     finally:
         notes = drain_notes()
-    for note in notes:
-        warnings.warn(f"{user_path(path)}: {note}", MetadataWarning, stacklevel=2)
+    if notes:  # one warning per file, however many variables were adapted
+        warnings.warn(f"{user_path(path)}: " + "; ".join(notes), MetadataWarning, stacklevel=2)
     try:
         with atomic_output(path, overwrite=overwrite) as tmp:
             try:

@@ -19,7 +19,8 @@ from skipwise.errors import Category, Problem, ProblemCode
 from skipwise.io.meta import SurveyMeta
 
 __all__ = ["MetadataWarning", "Job", "Prepared", "problem", "check_names", "note", "drain_notes",
-           "prepare_columns", "STATA_LETTER", "SPSS_DATE_FORMAT", "SPSS_DATETIME_FORMAT"]
+           "prepare_columns", "stata_letter", "STATA_LETTER", "EXT_LETTER", "SPSS_DATE_FORMAT",
+           "SPSS_DATETIME_FORMAT"]
 
 #: Prepares one write and returns the job that writes the temporary file.
 Job = Callable[[Path], None]
@@ -36,6 +37,8 @@ _SPSS_RESERVED = {"ALL", "AND", "BY", "EQ", "GE", "GT", "LE", "LT", "NE", "NOT",
 SPSS_DATE_FORMAT = re.compile(r"(DATE|ADATE|EDATE|SDATE|JDATE)\d+")
 SPSS_DATETIME_FORMAT = re.compile(r"(DATETIME|YMDHMS)\d+(\.\d+)?")
 STATA_LETTER = re.compile(r"\.[a-z]")
+#: A stored missing letter: Stata's ``.a``-``.z`` or SAS's ``.A``-``.Z`` and ``._`` (as read_survey keeps them).
+EXT_LETTER = re.compile(r"\.[a-zA-Z_]")
 
 
 class MetadataWarning(UserWarning):
@@ -74,19 +77,37 @@ def check_names(df: pd.DataFrame, path: Path, fmt: str) -> list[Problem]:
     return problems
 
 
-_NOTES: list[str] = []  # filled while one write is prepared, emitted by write_survey
+_NOTES: dict[str, list[str]] = {}  # topic -> columns, filled while one write is prepared
 
 
-def note(message: str) -> None:
-    """Remember a metadata adaptation, to be warned about once the write is prepared."""
-    _NOTES.append(message)
+def note(topic: str, column: str | None = None) -> None:
+    """Remember a metadata adaptation (``topic``) for ``column``; write_survey reports each topic
+    once per file, with the columns it concerns."""
+    cols = _NOTES.setdefault(topic, [])
+    if column is not None and column not in cols:
+        cols.append(column)
 
 
 def drain_notes() -> list[str]:
-    """The notes gathered since the last call (and forget them)."""
-    notes = list(_NOTES)
+    """The notes gathered since the last call, one text per topic (and forget them)."""
+    out = []
+    for topic, cols in _NOTES.items():
+        shown = ", ".join(cols[:8]) + (f" and {len(cols) - 8} more" if len(cols) > 8 else "")
+        out.append(topic + (f" ({shown})" if cols else ""))
     _NOTES.clear()
-    return notes
+    return out
+
+
+def stata_letter(value: str, col: str, path: Path, problems: list[Problem]) -> str | None:
+    """The bare Stata letter for a stored missing letter (SAS's ``.A`` becomes ``a``); None and a
+    problem for SAS's ``._``, which Stata has no letter for."""
+    if value == "._":
+        problems.append(problem(path, "the SAS special missing value ._ has no Stata equivalent", item=col,
+                                hint="recode ._ to one of .A-.Z in SAS, or write .parquet or .csv"))
+        return None
+    if value[1:].isupper():
+        note("SAS special missing values .A-.Z were written as Stata's .a-.z", col)
+    return value[1:].lower()
 
 
 # -- column preparation for pyreadstat -----------------------------------------------------------
@@ -141,30 +162,32 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                 # answers (e.g. an item nobody was asked, recoded by status).
                 rest = s.notna()
                 mixed = pd.Series(np.full(len(s), np.nan), index=s.index, dtype=object)
-                mixed[rest] = s[rest].astype(str).str[1:]
+                mixed[rest] = _bare_letters(s[rest].astype(str), str(col), path, problems)
                 kind, s = "extmiss", mixed
-                out.letters[col] = set(pd.unique(mixed[rest]))
+                out.letters[col] = set(pd.unique(mixed[rest].dropna()))
             elif inferred in ("integer", "floating", "mixed-integer-float", "decimal", "boolean"):
                 kind, s = "number", pd.to_numeric(s).astype(float)
             elif inferred in ("date", "datetime", "datetime64"):
                 kind, s = "datetime", pd.to_datetime(s)
             elif inferred in ("mixed", "mixed-integer"):
                 num, rest, texts, codes = split_numbers(s)
-                odd = [t for t in texts if not STATA_LETTER.fullmatch(t)]
+                odd = [t for t in texts if not EXT_LETTER.fullmatch(t)]
                 if odd:
                     problems.append(problem(path, "column mixes numbers and text, or holds values that are neither "
                                                   f"numbers, text nor dates (e.g. {odd[0]!r})", item=str(col),
                                             hint="make the column all numbers or all text"))
                 elif not ext_missing_ok:
-                    problems.append(problem(path, "column holds Stata extended missing values (.a-.z), "
-                                                  "which SPSS cannot store", item=str(col),
-                                            hint="recode them to numeric codes declared as user-missing"))
+                    problems.append(problem(path, "column holds Stata extended missing values (.a-.z) or SAS "
+                                                  "special missing values (.A-.Z, ._), which SPSS cannot store",
+                                            item=str(col),
+                                            hint="recode them to numeric codes declared as user-missing, "
+                                                 "or write .dta or .parquet"))
                 else:
                     kind = "extmiss"
                     mixed = numbers_as_objects(s, num)
-                    bare = np.array([t[1:] for t in texts], dtype=object)
+                    bare = np.array([stata_letter(t, str(col), path, problems) for t in texts], dtype=object)
                     mixed[rest] = bare[codes[rest]]
-                    out.letters[col] = set(bare)
+                    out.letters[col] = {b for b in bare if b is not None}
                     s = pd.Series(mixed, dtype=object)
         if kind == "datetime":
             if isinstance(s.dtype, pd.DatetimeTZDtype):
@@ -248,4 +271,10 @@ def clean_label(text: str, limit: int = 60) -> str:
 
 def _all_letters(s: pd.Series) -> bool:
     text = s[s.notna()].astype(str)
-    return bool(len(text)) and bool(text.str.fullmatch(STATA_LETTER.pattern).all())
+    return bool(len(text)) and bool(text.str.fullmatch(EXT_LETTER.pattern).all())
+
+
+def _bare_letters(text: pd.Series, col: str, path: Path, problems: list[Problem]) -> pd.Series:
+    """Stata's bare letters for stored ``.a``-``.z`` / SAS ``.A``-``.Z`` (one call per distinct letter)."""
+    mapping = {v: stata_letter(v, col, path, problems) for v in pd.unique(text)}
+    return text.map(mapping)

@@ -11,7 +11,7 @@ from skipwise.errors import SkipwiseError
 from skipwise.publish import clean_message
 from skipwise.io.meta import SurveyMeta
 from skipwise.io.readers import META_KEY, MIXED_KEY
-from skipwise.io.writers_common import STATA_LETTER, Job, check_names, problem
+from skipwise.io.writers_common import EXT_LETTER, Job, check_names, problem
 
 __all__ = ["prepare_csv", "prepare_xlsx", "prepare_parquet"]
 
@@ -62,7 +62,7 @@ def prepare_parquet(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) ->
             continue
         num = pd.to_numeric(s, errors="coerce")
         rest = s.notna() & num.isna()
-        if s[rest].astype(str).str.fullmatch(STATA_LETTER.pattern).all():
+        if s[rest].astype(str).str.fullmatch(EXT_LETTER.pattern).all():
             # Arrow columns hold one type: numbers mixed with ".a" letters are kept as text
             # (shortest round-trip repr of each float) and restored by read_survey.
             text = num.astype(str).astype(object)  # shortest round-trip text, like repr

@@ -10,7 +10,7 @@ import pandas as pd
 from skipwise.errors import Problem, SkipwiseError
 from skipwise.io.meta import SurveyMeta, normalize_value
 from skipwise.io.writers_common import (
-    SPSS_DATE_FORMAT, SPSS_DATETIME_FORMAT, STATA_LETTER, Job, Prepared, check_names, note, prepare_columns,
+    EXT_LETTER, SPSS_DATE_FORMAT, SPSS_DATETIME_FORMAT, Job, Prepared, check_names, note, prepare_columns,
     problem,
 )
 
@@ -32,9 +32,9 @@ def _spss_missing(col: str, p: Prepared, meta: SurveyMeta, path: Path, problems:
     if not discrete and not ranges:
         return None
     kind = p.kinds[col]
-    letters = [v for v in discrete if isinstance(v, str) and STATA_LETTER.fullmatch(v)]
+    letters = [v for v in discrete if isinstance(v, str) and EXT_LETTER.fullmatch(v)]
     if kind != "text" and letters:
-        note(f"{col}: Stata extended-missing letters {letters} have no SPSS equivalent and were not declared")
+        note("Stata/SAS missing letters have no SPSS equivalent and were not declared as missing", col)
         discrete = [v for v in discrete if v not in letters]
     if kind == "text":
         bad = [v for v in discrete if not isinstance(v, str) or len(v.encode("utf-8")) > 8]
@@ -77,8 +77,8 @@ def _spss_missing(col: str, p: Prepared, meta: SurveyMeta, path: Path, problems:
                   f"[{normalize_value(lo)}, {normalize_value(hi)}] would also catch the valid values {shown}",
             item=col, hint="declare fewer codes, or recode the special codes into one block of adjacent values"))
         return None
-    note(f"{col}: SPSS allows at most 3 discrete user-missing values; wrote the range "
-         f"[{normalize_value(lo)}, {normalize_value(hi)}] covering {discrete + ranges}")
+    note("SPSS allows at most 3 discrete user-missing values: wrote the range covering each variable's "
+         "codes instead (no valid value falls inside)", col)
     return [{"lo": lo, "hi": hi}]
 
 

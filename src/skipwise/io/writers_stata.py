@@ -9,8 +9,9 @@ import pandas as pd
 
 from skipwise.errors import SkipwiseError
 from skipwise.io.meta import SurveyMeta, normalize_value
-from skipwise.io.writers_common import (STATA_LETTER, Job, check_names, note, prepare_columns, problem,
-                                       split_numbers)
+from skipwise.io.writers_common import (
+    EXT_LETTER, Job, check_names, note, prepare_columns, problem, split_numbers, stata_letter,
+)
 
 __all__ = ["prepare_dta"]
 
@@ -34,8 +35,10 @@ def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
         out: dict = {}
         for k, lab in vl.items():
             k = normalize_value(k)
-            if isinstance(k, str) and STATA_LETTER.fullmatch(k):
-                out[k[1:]] = lab
+            if isinstance(k, str) and EXT_LETTER.fullmatch(k):
+                letter = stata_letter(k, col, path, problems)
+                if letter is not None:
+                    out[letter] = lab
             elif isinstance(k, int) and not isinstance(k, bool) and _STATA_LABEL_MIN <= k <= _STATA_LABEL_MAX:
                 out[k] = lab
             else:
@@ -46,11 +49,12 @@ def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
     user: dict[str, list[str]] = {}
     for col, kind in p.kinds.items():
         declared = meta.missing_values.get(col, [])
-        letters = {v[1:] for v in declared if isinstance(v, str) and STATA_LETTER.fullmatch(v)}
-        others = [v for v in declared if not (isinstance(v, str) and STATA_LETTER.fullmatch(v))]
+        letters = {stata_letter(v, col, path, problems) for v in declared
+                   if isinstance(v, str) and EXT_LETTER.fullmatch(v)} - {None}
+        others = [v for v in declared if not (isinstance(v, str) and EXT_LETTER.fullmatch(v))]
         if others or meta.missing_ranges.get(col):
-            note(f"{col}: Stata has no user-missing declaration for ordinary values; "
-                 f"{others + meta.missing_ranges.get(col, [])} stay plain values (their value labels are kept)")
+            note("Stata has no user-missing declaration for ordinary values: the SPSS missing codes stay "
+                 "plain values (their value labels are kept)", col)
         letters |= p.letters.get(col, set())
         if letters and kind == "text":
             problems.append(problem(path, "extended missing letters cannot be declared on a text column",

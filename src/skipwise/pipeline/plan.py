@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any, Mapping
 
 from skipwise.errors import Category, ProblemCode, ProblemList, did_you_mean
-from skipwise.io.readers import SUPPORTED_EXTENSIONS
+from skipwise.io.readers import SAS_OUTPUT_REASON, SUPPORTED_EXTENSIONS
 from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
 from skipwise.questionnaire.model import STUDY_KEYS
 
@@ -40,7 +40,7 @@ WEIGHTING_KEYS = {"plan": "path", "data": "path"}
 IMPUTATION_KEYS = {"plan": "path"}
 STUDY_PLAN_KEYS = {key: "text" for key in STUDY_KEYS}
 OUTPUT_KEYS = {"folder": "folder", "name": "str", "status_columns": "formats", "recoded": "formats",
-               "imputed_format": "format"}
+               "imputed_format": "format", "timestamp": "timestamp"}
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -87,6 +87,7 @@ class OutputOptions:
     status_columns: tuple[str, ...] = ("input", "parquet")
     recoded: tuple[str, ...] = ()
     imputed_format: str = "input"
+    timestamp: str | None = None   # ISO date-time written inside the files (default: the data file's mtime)
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -209,6 +210,12 @@ class _Reader:
             return float(v) if number else bad("a number")
         if kind == "str":
             return v.strip() if isinstance(v, str) and v.strip() else bad("a name")
+        if kind == "timestamp":  # an unquoted ISO date may load as a date: keep its ISO text
+            import datetime as _dt
+
+            if isinstance(v, (_dt.date, _dt.datetime)):
+                return v.isoformat()
+            return v.strip() if isinstance(v, str) and v.strip() else bad('an ISO date-time, e.g. "2026-06-30T12:00:00"')
         if kind == "text":
             return str(v).strip() if (isinstance(v, str) or number) and str(v).strip() else bad("a single text")
         if kind in ("path", "folder"):
@@ -316,15 +323,35 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
     if "status_columns" in out and not out["status_columns"]:
         r.add(ProblemCode.BAD_VALUE, "'output.status_columns' needs at least one format",
               r.lines.get(("output", "status_columns")), "e.g. [input, parquet]")
+    if "timestamp" in out:
+        from skipwise.io.stable import parse_timestamp
+
+        try:
+            parse_timestamp(out["timestamp"])
+        except ValueError:
+            r.add(ProblemCode.BAD_VALUE, f"'output.timestamp' must be an ISO date or date-time, found "
+                  f"{out['timestamp']!r}", r.lines.get(("output", "timestamp")), 'e.g. timestamp: "2026-06-30T12:00:00"')
     if data is not None and "name" in out and out["name"] != Path(out["name"]).name:
         r.add(ProblemCode.BAD_VALUE, "'output.name' is a file stem, not a path", r.lines.get(("output", "name")),
               "e.g. name: lake-survey-2026")
+    if data is not None and data.suffix.lower() in (".sas7bdat", ".xpt"):
+        keys = [("status_columns", ("input", "parquet")), ("recoded", ())]
+        if imputation.get("plan") is not None:
+            keys.append(("imputed_format", "input"))
+        for key, default in keys:
+            chosen = out.get(key, default)
+            if "input" in ((chosen,) if isinstance(chosen, str) else chosen):
+                r.add(ProblemCode.FILE_FORMAT, f"'output.{key}': 'input' would be SAS ({data.name}): "
+                      f"{SAS_OUTPUT_REASON}", r.lines.get(("output", key)) or (out_raw.line if out_raw else doc.line),
+                      f"name the formats, e.g. output: {{{key}: " + ("dta}" if key == "imputed_format"
+                                                                    else "[dta, parquet]}"))
     r.problems.raise_if_any(headline=f"{len(r.problems)} problem(s) in run plan {file}")
 
     assert data is not None and questionnaire is not None
     output = OutputOptions(folder=out["folder"], name=out.get("name", data.stem),
                            status_columns=out.get("status_columns", ("input", "parquet")),
-                           recoded=out.get("recoded", ()), imputed_format=out.get("imputed_format", "input"))
+                           recoded=out.get("recoded", ()), imputed_format=out.get("imputed_format", "input"),
+                           timestamp=out.get("timestamp"))
     return RunPlan(
         file=file.resolve(), data=data, questionnaire=questionnaire, output=output,
         stop_on_check_error=check.get("stop_on_error", False), check_top=check.get("top", 5),

@@ -21,6 +21,8 @@ from pathlib import Path
 from typing import Callable
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.io.readers import READ_ONLY_FORMATS
+from skipwise.io.stable import stamp_file
 from skipwise.pipeline.manifest import StepRecord, build_manifest, file_record, manifest_text
 from skipwise.pipeline.plan import RunPlan, load_run_plan
 from skipwise.pipeline.reporting import Reporter, SilentReporter
@@ -82,7 +84,8 @@ def planned_outputs(plan: RunPlan, weighting_plan=None, imputation_plan=None) ->
         out["weighting_workbook"] = "weighting.xlsx"
         if plan.weighting_data is not None:
             stem, fmt = plan.weighting_data.stem, plan.weighting_data.suffix.lower().lstrip(".")
-            out["weighted_frame"] = f"{stem}_weighted.{fmt}"
+            if fmt not in READ_ONLY_FORMATS:  # SAS is read, not written: its weighted copy is Parquet only
+                out["weighted_frame"] = f"{stem}_weighted.{fmt}"
             if fmt != "parquet":
                 out["weighted_frame_parquet"] = f"{stem}_weighted.parquet"
     if imputation_plan is not None:
@@ -260,6 +263,10 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
         pub.check_target(overwrite=overwrite, names=names.values())
         st.targets = {role: pub.staging / name for role, name in names.items()}
         _steps(st, reporter, records)
+        when = S.fixed_time(plan)
+        for role, path in st.targets.items():  # one fixed write time inside every data file and workbook
+            if role != "manifest" and path.exists():
+                stamp_file(path, when)
         t1 = time.perf_counter()
         outputs = [file_record(role, st.targets[role], name=names[role]) for role in names if role != "manifest"]
         seeds = {"imputation": st.imputation_plan.spec.seed if st.imputation_plan else None,
@@ -339,6 +346,7 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
 
 def _summary(st: S.RunState) -> dict:
     out: dict = {"cases": len(st.data), "items": len(st.q.items),
+                 "file_timestamp": S.fixed_time(st.plan).isoformat(),
                  "check_errors": len(st.check.errors), "check_notes": len(st.check.notes),
                  "routing_faults": len(st.cl.faults)}
     if st.weigh is not None:

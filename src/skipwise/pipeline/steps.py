@@ -183,8 +183,10 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
 
     with classify_progress(reporter, len(st.q.items), st.data.shape[0] * len(st.q.items)) as progress:
         st.cl = classify(st.data, st.q, progress=progress)
+    from skipwise.classify.export import fault_listing
+
     with _atomic(st.targets["faults"]) as tmp:
-        st.cl.faults.to_csv(tmp, index=False)
+        fault_listing(st.cl).to_csv(tmp, index=False)
     shares = st.cl.counts().sum(axis=0)
     total = max(int(shares.sum()), 1)
     reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
@@ -229,7 +231,7 @@ def report_step(st: RunState, reporter: Reporter) -> None:
     write_item_report(st.data, st.q, st.targets["item_report"], classification=st.cl, weight=name, by=o.by,
                       case_ids=o.case_ids, top_items=o.top_items, top_patterns=o.top_patterns,
                       fault_rows=o.fault_rows, min_base=st.plan.min_base, weights=w,
-                      input_path=st.plan.data, overwrite=True)
+                      input_path=st.plan.data, overwrite=True, written=fixed_time(st.plan))
     if name is not None and w is None:
         w = nan_to_zero(st.data[name])
     rates = item_rates(st.cl, w, min_base=st.plan.min_base)
@@ -376,6 +378,16 @@ def _atomic(path: Path):
 
     with atomic_output(path, overwrite=True) as tmp:
         yield tmp
+
+
+def fixed_time(plan: RunPlan):
+    """The write time put inside the package's files: the plan's ``output.timestamp``, else the
+    data file's own modification time (so a rerun on the same data gives the same bytes)."""
+    from skipwise.io.stable import parse_timestamp, timestamp_of
+
+    if plan.output.timestamp is not None:
+        return parse_timestamp(plan.output.timestamp)
+    return timestamp_of(plan.data)
 
 
 def nan_to_zero(values: pd.Series) -> np.ndarray:

@@ -140,6 +140,7 @@ def write_item_report(
     weights: np.ndarray | None = None,
     input_path: str | Path | None = None,
     overwrite: bool = True,
+    written: dt.datetime | None = None,
 ) -> Path:
     """Write the item-level nonresponse workbook.
 
@@ -222,9 +223,11 @@ def write_item_report(
                                  value_labels=_value_labels(data, q, by)) if by else None
     info = OverviewInfo(
         survey_name=q.name, survey_title=q.title,
-        input_file=str(input_path) if input_path else None,
+        # the file's name, not its absolute path: a rerun elsewhere gives the same workbook
+        input_file=Path(input_path).name if input_path else None,
         input_sha256=_sha256(Path(input_path)) if input_path and Path(input_path).is_file() else None,
-        written_utc=dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat(),
+        written_utc=(written.replace(tzinfo=dt.timezone.utc) if written is not None else
+                     dt.datetime.now(dt.timezone.utc)).replace(microsecond=0).isoformat(),
         version=skipwise.__version__, cases=len(c.index), items=len(c.items), weight=weight,
         total_weight=float(w.sum()) if w is not None else None, by=by, case_ids=case_ids,
         faults_total=n_faults, faults_shown=len(faults),
