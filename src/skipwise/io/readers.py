@@ -256,8 +256,9 @@ def _note_uncached_formulas(path: Path, df: pd.DataFrame) -> None:
     if "<f" not in xml:
         return
     cells = re.findall(r'<c r="([A-Z]+)(\d+)"[^>]*?(?:/>|>(.*?)</c>)', xml, flags=re.S)
-    empty = [(col, row) for col, row, body in cells if re.search(r"<f[ >/]", body) and "<v>" not in body
-             and "<v/>" not in body and "<is>" not in body]
+    # No computed value: no <v>, or an empty one (<v/>, <v></v>, as some writers store an uncomputed formula).
+    empty = [(col, row) for col, row, body in cells if re.search(r"<f[ >/]", body)
+             and not re.search(r"<v>[^<]", body) and "<is>" not in body]
     if not empty:
         return
     columns = sorted({col for col, _ in empty}, key=lambda c: (len(c), c))
