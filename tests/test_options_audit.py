@@ -60,13 +60,13 @@ def test_little_variables_one_count(tmp_path):
     res = CliRunner().invoke(app, ["diagnose", str(d), "-q", str(q), "-o", str(out), "--aux", "region,base_wt"])
     assert res.exit_code == 0, res.output
     console = int(re.search(r"(\d+) variables\)", res.output).group(1))
-    sheet = pd.read_excel(out, sheet_name="MCAR test", header=None)
-    pairs = dict(zip(sheet[0].astype(str), sheet[1]))
-    assert int(pairs["variables"]) == console
-    # ... and so does the EM estimates table: one row per variable below its header
-    col = sheet[0].astype(str).tolist()
-    start = col.index("variable") + 1
-    assert len([c for c in col[start:] if c != "nan"]) == console
-    # the scope text names no other count of variables
-    assert "chosen variables" not in str(pairs["cases"])
-    assert "base_wt" in str(pairs["cases"])   # the numeric auxiliary in the test is named
+    from sheetread import pairs as sheet_pairs, table, texts
+
+    pairs = sheet_pairs(out, "MCAR test")
+    assert int(pairs["Variables"]) == console
+    # ... and so does the table of the test's variables: one row per variable
+    assert len(table(out, "MCAR test", "Variable")) == console
+    # the scope text (the sheet's explanation) names no other count of variables
+    scope = " ".join(texts(out, "MCAR test")[1:5])
+    assert "chosen variables" not in scope
+    assert "base_wt" in scope   # the numeric auxiliary in the test is named
