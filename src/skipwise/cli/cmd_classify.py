@@ -69,7 +69,9 @@ def classify_command(
         check_writable(fault_file, overwrite=overwrite, inputs=inputs)
         frame, q = load_inputs(data, questionnaire)
         cl = classify_with_progress(frame, q, jobs=jobs)
-        meta = get_meta(frame)
+        from skipwise.classify.delivery import delivery_meta
+
+        meta = delivery_meta(get_meta(frame), q, frame)  # levels; the questionnaire's labels for a CSV
         fmt = out.suffix.lower().lstrip(".")
         if chosen is ExportForm.COLUMNS:
             result, meta = with_status_columns(frame, cl, meta)

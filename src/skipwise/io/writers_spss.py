@@ -5,6 +5,7 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 
 from skipwise.errors import Problem, SkipwiseError
@@ -82,6 +83,35 @@ def _spss_missing(col: str, p: Prepared, meta: SurveyMeta, path: Path, problems:
     return [{"lo": lo, "hi": hi}]
 
 
+def _display_format(x: np.ndarray, original: str = "") -> str:
+    """SPSS display format for a numeric column, from its values.
+
+    Whole numbers get no decimals (a case id shows as 100001, not 100001.00); other numbers the
+    fewest decimals that show them exactly, up to 4, else enough for 3 significant digits of the
+    smallest non-zero value and at least 4 (5 below 10: probabilities, weights), at most 8.  The
+    width fits the widest value.  A file's own ``F``/``N`` format keeps its decimals and is only
+    widened where a value would not fit (e.g. a recoded status code -911).  Common practice, no
+    source.
+    """
+    x = x[np.isfinite(x)]
+    m = _SPSS_NUM_FORMAT.fullmatch(original or "")
+    if m and not original.startswith(("F", "N")):
+        return original  # COMMA, DOLLAR, PCT ...: the file's own choice
+    top = float(np.abs(x).max()) if x.size else 0.0
+    ints = int(np.floor(np.log10(top))) + 1 if top >= 1 else 1
+    sign = 1 if x.size and bool((x < 0).any()) else 0
+    if m:
+        dec = int(m.group(2)[1:]) if m.group(2) else 0
+        width = int(re.match(r"[A-Z]+(\d+)", original).group(1))
+        need = sign + ints + (dec + 1 if dec else 0)
+        return original if need <= width else f"{original[0]}{min(need, 40)}.{dec}"
+    dec = next((d for d in range(5) if np.all(np.abs(x - np.round(x, d)) <= 1e-9 * max(1.0, top))), None)
+    if dec is None:
+        small = float(np.abs(x[x != 0]).min())
+        dec = min(8, max(4, 6 - ints, 2 - int(np.floor(np.log10(small)))))
+    return f"F{min(max(sign + ints + (dec + 1 if dec else 0), 1), 40)}.{dec}"
+
+
 def prepare_sav(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job:
     import pyreadstat
 
@@ -106,8 +136,9 @@ def prepare_sav(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
     formats = {}
     for col, kind in p.kinds.items():
         f = meta.formats.get(col, "")
-        if (kind == "number" and _SPSS_NUM_FORMAT.fullmatch(f)) or (
-                kind == "date" and SPSS_DATE_FORMAT.fullmatch(f)) or (
+        if kind == "number":
+            formats[col] = _display_format(p.frame[col].to_numpy(dtype=float), f)
+        elif (kind == "date" and SPSS_DATE_FORMAT.fullmatch(f)) or (
                 kind == "datetime" and SPSS_DATETIME_FORMAT.fullmatch(f)):
             formats[col] = f
         elif kind == "date":

@@ -336,9 +336,11 @@ def impute_step(st: RunState, reporter: Reporter) -> None:
 
 def final_frame(st: RunState, form: str, fmt: str) -> tuple[pd.DataFrame, SurveyMeta]:
     """The data with status columns (or recoded) and the weight columns joined by case id."""
+    from skipwise.classify.delivery import delivery_meta
     from skipwise.classify.export import recoded_copy, with_status_columns
 
-    meta = get_meta(st.data)
+    # levels from the items; labels from the questionnaire where the file has none (a CSV start)
+    meta = delivery_meta(get_meta(st.data), st.q, st.data)
     if form == "columns":
         frame, meta = with_status_columns(st.data, st.cl, meta)
     else:

@@ -31,7 +31,7 @@ SURVEY_KEYS = ("name", "title", "case_id")
 SECTION_KEYS = ("name", "label", "asked_if", "items", "roster", "optional")
 ROSTER_KEYS = ("count", "max", "column")
 ITEM_KEYS = ("name", "label", "type", "values", "range", "codes", "asked_if",
-             "options", "selected", "unselected", "column", "text", "optional")
+             "options", "selected", "unselected", "column", "text", "optional", "level")
 CODE_KEYS = ("value", "reason", "kind", "label", "number")
 BREAKOFF_KEYS = ("min_run", "last_item", "disposition", "breakoff_codes")
 RESERVED_STATUSES = ("answered", "skipped", "item_missing", "wrong_code", "off_route",
@@ -321,7 +321,21 @@ class _Builder:
         check_collisions(self, d, name, itype, values, rng, codes, own)
         return {"d": d, "name": name, "type": itype, "values": values, "range": rng,
                 "options": options, "codes": codes, "text": self.wording(d, name),
-                "optional": self.flag(d, "optional", f"item '{name}'", name) if "optional" in d else None}
+                "optional": self.flag(d, "optional", f"item '{name}'", name) if "optional" in d else None,
+                "level": self.level(d, name)}
+
+    def level(self, d: LineDict, item: str) -> str | None:
+        """The item's ``level:`` (measurement level in delivered files), or None."""
+        levels = ("nominal", "ordinal", "scale")
+        if "level" not in d:
+            return None
+        value = d["level"]
+        if isinstance(value, str) and value.strip().lower() in levels:
+            return value.strip().lower()
+        self.add(ProblemCode.BAD_VALUE, f"'level' of item '{item}' must be nominal, ordinal or scale, "
+                 f"found {value!r}", d.key_line("level"), item,
+                 did_you_mean(str(value), levels) or "write e.g. 'level: ordinal'")
+        return None
 
     def flag(self, d: LineDict, key: str, what: str, item: str | None) -> bool:
         """A true/false key (false when absent); anything but a YAML boolean is refused."""
@@ -383,7 +397,8 @@ class _Builder:
                     rule_parts=tuple(parts), columns=columns, options=spec["options"],
                     selected=d.get("selected", 1), unselected=d.get("unselected", 0),
                     roster=section if roster else None, member=n, base_name=base, text=spec["text"],
-                    optional=sec_optional if spec["optional"] is None else spec["optional"], line=d.line)
+                    optional=sec_optional if spec["optional"] is None else spec["optional"],
+                    level=spec["level"], line=d.line)
         names.define(item)
         return item
 

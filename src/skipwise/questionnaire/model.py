@@ -92,6 +92,7 @@ class Item:
     base_name: str = ""
     text: str | None = None       # the question wording as asked
     optional: bool = False        # a blank in universe is ``left_blank``, not nonresponse
+    level: str | None = None      # measurement level in delivered files: nominal | ordinal | scale
     line: int | None = None
 
     @property
