@@ -118,3 +118,22 @@ def test_wording_matches_what_the_classifier_decides_for_a_skipped_gate():
 def test_universe_sentence(q):
     assert universe_words(q.item("age"), q) == "Asked of every case."
     assert universe_words(q.item("mode"), q) == "Asked if 'In paid work' is 'Yes'."
+
+
+def test_item_report_shows_who_was_asked_in_words(tmp_path):
+    import openpyxl
+
+    from skipwise.report import write_item_report
+
+    q = loads_questionnaire(Q)
+    data = pd.DataFrame({"id": [1, 2, 3], "region": ["n", "s", "s"], "age": [30, 40, 50], "work": [1, 2, 1],
+                         "mode": [1, None, 2], "kids": [0, 1, 2], "adults": [1, 2, 2], "income": [10, -9, 5],
+                         "sets_bus": [0, 1, 0], "sets_car": [1, 0, 0], "target": [1, 2, 3]})
+    out = write_item_report(data, q, tmp_path / "r.xlsx")
+    ws = openpyxl.load_workbook(out)["Items"]
+    rows = [[c.value for c in r] for r in ws.iter_rows()]
+    header = next(r for r in rows if "Who was asked" in r)
+    col, item = header.index("Who was asked"), header.index("Item")
+    said = {r[item]: r[col] for r in rows[rows.index(header) + 1:] if r[item]}
+    assert said["mode"] == "Asked if 'In paid work' is 'Yes'."
+    assert said["age"] == "Asked of every case."

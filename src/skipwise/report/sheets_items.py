@@ -14,7 +14,7 @@ from skipwise.report.tables import ITEM_RATE, ITEM_RATE_W, SubgroupTable
 __all__ = ["ItemsLayout", "write_items_sheet", "write_subgroups_sheet", "column_header", "SMALL_PCT"]
 
 
-_TEXT_COLS = ("Section", "Item", "Label", "Asked if (rule as written)", "Below minimum base")
+_TEXT_COLS = ("Section", "Item", "Label", "Who was asked", "Asked if (rule as written)", "Below minimum base")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -79,8 +79,9 @@ def write_items_sheet(wb: Any, table: pd.DataFrame, *, title: str = "Items") -> 
                        source="Groves et al. 2009, Survey Methodology, ch. 6.")
     cols = [str(c) for c in table.columns]
     ref = s.table(table, formats=_formats(table), headers={c: column_header(c) for c in cols},
-                  wrap=("Label", "Asked if (rule as written)"), freeze_col=3, max_width=14)
-    for c, hi in (("Section", 14), ("Item", 20), ("Label", 32), ("Asked if (rule as written)", 30)):
+                  wrap=("Label", "Who was asked", "Asked if (rule as written)"), freeze_col=3, max_width=14)
+    for c, hi in (("Section", 14), ("Item", 20), ("Label", 32), ("Who was asked", 36),
+                  ("Asked if (rule as written)", 30)):
         if c in ref.columns:
             s.width(ref.columns[c], min(st_text_width(table[c], c), hi))
     s.close()

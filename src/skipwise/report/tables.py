@@ -20,6 +20,7 @@ import pandas as pd
 from skipwise.classify import statuses as S
 from skipwise.classify.result import Classification
 from skipwise.rates import ItemRates, item_rates
+from skipwise.rules.words import universe_words
 
 __all__ = [
     "Figures", "compute_figures", "in_codes", "ITEM_RATE", "ITEM_RATE_W", "items_table", "status_shares", "subgroup_rates", "SubgroupTable",
@@ -145,6 +146,7 @@ def items_table(c: Classification, fig: Figures, rates: ItemRates | None = None)
     items = [q.item(i) for i in c.items]
     out = pd.DataFrame({
         "Section": [it.section for it in items], "Item": list(c.items), "Label": [it.label for it in items],
+        "Who was asked": [universe_words(it, q) for it in items],
         "Asked if (rule as written)": [it.rule_text for it in items],
         "Cases": u["cases"].to_numpy(), BASE_COL: u["D"].to_numpy(),
         SMALL_COL: np.where(u["below_min_base"].to_numpy(), f"yes (D < {rates.min_base})", ""),
