@@ -243,7 +243,8 @@ def test_faults_sheet_rows_cap_and_formula_text(tiny, tmp_path):
     header, rows = _sheet_table(ws, "Case id")
     listed = [r[:6] for r in rows if r[0] is not None]
     # Hand: ZQ-7003 b and f off_route, ZQ-7006 d invalid -> 3 faults, the first 2 listed (file order).
-    assert [(r[0], r[1], r[2]) for r in listed] == [("ZQ-7003", "b", "off_route"), ("ZQ-7003", "f", "off_route")]
+    assert [(r[0], r[1], r[2]) for r in listed] == [("ZQ-7003", "b", "Off route (off_route)"),
+                                                    ("ZQ-7003", "f", "Off route (off_route)")]
     assert any("first 2 of 3" in str(ws.cell(row=r, column=1).value) for r in (2, 3))
     formula_cell = next(cell for row in ws.iter_rows(min_row=5) for cell in row if cell.value == "=2+3")
     assert formula_cell.data_type == "s"  # a stored value never becomes a formula

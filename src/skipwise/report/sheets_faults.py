@@ -68,7 +68,7 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
     keys = [k for k in _LIST_HEADER if case_ids or k != "case_id"]
     n_list = len(keys)
     count_cols = list(counts.columns)
-    widths = {"case_id": 14, "item": 18, "status": 12, "value": 16, "rule": 40, "inputs": 48}
+    widths = {"case_id": 14, "item": 18, "status": 24, "value": 16, "rule": 40, "inputs": 48}
     count_heads = ["Item" if c == "item" else ("All faults" if c == "total" else st.human(c)) for c in count_cols]
     head_names = [_LIST_HEADER[k] for k in keys] + [""] + count_heads
     n_lines = max(shown, len(counts))
@@ -88,6 +88,9 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
         else:
             arr, bad = _clean_column(rows[k])
             columns[k], formula_like = arr, formula_like | bad
+    if "status" in columns:  # words beside the token (the token stays for machines)
+        words = {t: f"{st.human(t)} ({t})" for t in set(columns["status"].tolist()) if isinstance(t, str)}
+        columns["status"] = np.array([words.get(t, t) for t in columns["status"]], dtype=object)
     count_values = counts.to_numpy(dtype=object)
     ws = s.ws
     numeric_ids = case_ids and rows["case_id"].dtype.kind in "biuf"
