@@ -16,10 +16,10 @@ import numpy as np
 import pandas as pd
 
 from skipwise import __version__
-from skipwise.ddi.write import CodebookInput, _frequencies, _labels
+from skipwise.ddi.write import CodebookInput, _frequencies, _labels, answered_values, item_categories
 from skipwise.io.meta import normalize_value
 from skipwise.pipeline.render import Block, to_html, to_markdown
-from skipwise.questionnaire.model import STUDY_KEYS, CodeKind, ItemType
+from skipwise.questionnaire.model import STUDY_KEYS, ItemType
 from skipwise.rules.words import universe_words
 
 __all__ = ["codebook_blocks", "codebook_markdown", "codebook_html", "fmt_number", "fmt_sum", "CAUTIONS"]
@@ -215,23 +215,10 @@ def _item_blocks(inp: CodebookInput, col: str) -> list[Block]:
                         ("table", ["property", "value"], props)]
     if inp.rates is not None and it.name in inp.rates.items and it.columns[0] == col:
         out += _rate_blocks(inp, it)
-    values: dict = {}
-    if it.type is ItemType.MULTI:
-        values[normalize_value(it.selected)] = "Selected"
-        if it.unselected is not None:
-            values[normalize_value(it.unselected)] = "Not selected"
-    values.update({normalize_value(k): str(v) for k, v in (it.values or {}).items()})
-    missing = {}
-    for code in it.codes:
-        v = normalize_value(code.value)
-        if code.kind is not CodeKind.SUBSTANTIVE:
-            missing[v] = (code.reason, code.kind.value)
-        values[v] = code.label or values.get(v) or code.reason.replace("_", " ")
+    values, missing = item_categories(it)
     if it.type in (ItemType.INTEGER, ItemType.NUMBER):
-        x = pd.to_numeric(inp.frame[col], errors="coerce").to_numpy(float)
-        if inp.statuses is not None and it.name in inp.statuses.columns:
-            x = np.where(inp.statuses[it.name].to_numpy() == "answered", x, np.nan)
-        out += [("p", "Summary of the answered values:"), _stats_table(x, len(inp.frame))]
+        out += [("p", "Summary of the answered values:"),
+                _stats_table(answered_values(inp, it.name, col), len(inp.frame))]
     if values:
         out += [("p", "Stored values over all cases:"), _freq_table(inp, col, values, missing)]
     return out

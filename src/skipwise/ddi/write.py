@@ -279,6 +279,37 @@ def _rate_stats(var: ET.Element, inp: CodebookInput, item: str, wid: str | None)
                  otherType=name, wgtd="wgtd" if weight_id else None, wgt_var=weight_id)
 
 
+def item_categories(it, file_labels: Mapping[object, str] | None = None
+                    ) -> tuple[dict[object, str], dict[object, tuple[str, str]]]:
+    """An item's categories (value -> label) and its missing codes (value -> (reason, kind)).
+
+    A set's selected/unselected marks, the item's values, then ``file_labels`` (the data file's
+    own value labels) where the questionnaire has none, then the special codes.
+    """
+    values: dict[object, str] = {}
+    if it.type is ItemType.MULTI:
+        values[normalize_value(it.selected)] = "Selected"
+        if it.unselected is not None:
+            values[normalize_value(it.unselected)] = "Not selected"
+    values.update({normalize_value(k): str(v) for k, v in (it.values or {}).items()})
+    values.update({k: v for k, v in (file_labels or {}).items() if k not in values})
+    missing: dict[object, tuple[str, str]] = {}
+    for code in it.codes:
+        v = normalize_value(code.value)
+        if code.kind is not CodeKind.SUBSTANTIVE:
+            missing[v] = (code.reason, code.kind.value)
+        values[v] = code.label or values.get(v) or code.reason.replace("_", " ")
+    return values, missing
+
+
+def answered_values(inp: CodebookInput, item: str, col: str) -> np.ndarray:
+    """A numeric item's stored values where the cell is answered (NaN elsewhere)."""
+    x = pd.to_numeric(inp.frame[col], errors="coerce").to_numpy(float)
+    if inp.statuses is not None and item in inp.statuses.columns:
+        x = np.where(inp.statuses[item].to_numpy() == "answered", x, np.nan)
+    return x
+
+
 def _item_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | None, wid: str | None) -> None:
     q, frame = inp.questionnaire, inp.frame
     it = q.item(q.column_owner[col])
@@ -298,26 +329,11 @@ def _item_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | Non
     x = frame[col]
     numeric = it.type in (ItemType.INTEGER, ItemType.NUMBER)
     if numeric:
-        vals = pd.to_numeric(x, errors="coerce").to_numpy(float)
-        if inp.statuses is not None and it.name in inp.statuses.columns:
-            vals = np.where(inp.statuses[it.name].to_numpy() == "answered", vals, np.nan)
-        _sum_stats(var, vals, len(frame))
+        _sum_stats(var, answered_values(inp, it.name, col), len(frame))
     _rate_stats(var, inp, it.name, wid)
     if not numeric:
         _sub(var, "txt", f"Type: {it.type.value}.")
-    values: dict[object, str] = {}
-    if it.type is ItemType.MULTI:
-        values = {normalize_value(it.selected): "Selected"}
-        if it.unselected is not None:
-            values[normalize_value(it.unselected)] = "Not selected"
-    values.update({normalize_value(k): str(v) for k, v in (it.values or {}).items()})
-    values.update({k: v for k, v in _labels(inp.meta, col).items() if k not in values})
-    missing = {}
-    for code in it.codes:
-        v = normalize_value(code.value)
-        if code.kind is not CodeKind.SUBSTANTIVE:
-            missing[v] = (code.reason, code.kind.value)
-        values[v] = code.label or values.get(v) or code.reason.replace("_", " ")
+    values, missing = item_categories(it, _labels(inp.meta, col))
     _categories(var, values, x, w, wid, missing)
     _sub(var, "varFormat", type="numeric" if pd.api.types.is_numeric_dtype(x) else "character",
          schema="other", otherSchema="pandas", formatname=str(x.dtype))
