@@ -10,7 +10,6 @@ from __future__ import annotations
 import textwrap
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 import pytest
 from typer.testing import CliRunner

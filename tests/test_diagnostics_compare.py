@@ -6,7 +6,6 @@ import itertools
 
 import numpy as np
 import pandas as pd
-import pytest
 import statsmodels.api as sm
 from numpy.testing import assert_allclose
 

@@ -185,7 +185,6 @@ def test_numeric_groups_format_like_per_case_g(values):
                          ids=["unweighted", "weighted"])
 def test_model_standard_errors_labelled_in_the_workbook(tmp_path, weighted, label):
     # invented data: item x answered by the cases of _sample that "responded", nonresponse otherwise
-    from openpyxl import load_workbook
 
     from skipwise.diagnostics import missingness_frame, run_diagnostics, write_diagnostics_workbook
 

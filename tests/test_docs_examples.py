@@ -10,7 +10,6 @@ paths read as they do from a clone's top folder after ``make demo``.
 
 from __future__ import annotations
 
-import os
 import re
 import shlex
 import shutil

@@ -8,7 +8,6 @@ hand from the questionnaire's routing.
 
 from __future__ import annotations
 
-import textwrap
 import time
 
 import numpy as np

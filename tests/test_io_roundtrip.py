@@ -13,7 +13,6 @@ The frames themselves are invented.
 
 from __future__ import annotations
 
-import datetime as dt
 import warnings
 from pathlib import Path
 

@@ -16,7 +16,6 @@ import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 
 import numpy as np
-import openpyxl
 import pandas as pd
 import pyreadstat
 import pytest

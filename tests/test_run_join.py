@@ -5,8 +5,6 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-import pytest
-from numpy.testing import assert_allclose
 from typer.testing import CliRunner
 
 from skipwise.cli import app

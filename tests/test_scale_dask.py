@@ -28,7 +28,7 @@ from skipwise.demo import generate  # noqa: E402
 from skipwise.io import write_survey  # noqa: E402
 from skipwise.questionnaire import load_questionnaire  # noqa: E402
 from skipwise.rates import item_rates  # noqa: E402
-from skipwise.scale import dask_client, parquet_parts  # noqa: E402
+from skipwise.scale import dask_client  # noqa: E402
 from skipwise.scale.classify import classify_on_cluster  # noqa: E402
 
 DEMO_Q = Path(__file__).parents[1] / "src/skipwise/demo/marrowby-2026.yaml"

@@ -20,7 +20,7 @@ from typing import Callable
 
 import pandas as pd
 
-from skipwise.errors import ProblemCode, SkipwiseError
+from skipwise.errors import SkipwiseError
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.io.meta import SurveyMeta, get_meta
 from skipwise.io.readers import output_format_of
