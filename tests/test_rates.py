@@ -103,6 +103,17 @@ def test_zero_weights_are_counted_and_leave_the_weighted_base(clf):
     assert_allclose(t["nonresponse_rate"], (5 + 6) / 31)
 
 
+def test_zero_weights_by_subgroup_against_hand_counts(clf):
+    w = WEIGHT.copy()
+    w.iloc[[0, 3, 4, 12]] = 0.0  # cases 1, 4 (group a, in D), 5 (group b, in D), 13 (no group, skipped)
+    t = item_rates(clf, w, by=FRAME["grp"]).table(True)
+    assert t.loc[("a", "amount"), "zero_weight"] == 2
+    assert t.loc[("b", "amount"), "zero_weight"] == 1
+    assert t.loc[(None, "amount"), "zero_weight"] == 0  # skipped is not in D
+    # group a in D: cases 2, 6, 8 keep their weights (1 and 4 weigh 0)
+    assert_allclose(t.loc[("a", "amount"), "D"], 2.0 + 6 + 8)
+
+
 def test_min_base_marks_small_items(clf):
     r = item_rates(clf)
     assert DEFAULT_MIN_BASE == 30  # common practice, no source

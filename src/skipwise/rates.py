@@ -71,6 +71,7 @@ nonresponse: rates over the cases eligible for the item).
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
@@ -195,6 +196,22 @@ class ItemRates:
         return replace(self, groups=tuple(keys), counts=add(self.counts, other.counts),
                        wcounts=add(self.wcounts, other.wcounts), zero=add(self.zero, other.zero))
 
+    def status_counts(self, categories: Sequence[str], weighted: bool = False) -> np.ndarray:
+        """Cells of every item in every status of ``categories`` (all groups together).
+
+        One column per status, in the order given; ``invalid`` adds its two parts
+        (in and out of universe).  The same counts as ``Classification.counts``.
+        """
+        arr = (self.wcounts if weighted else self.counts).sum(axis=0)
+        col_of = {name: i for i, name in enumerate(self.columns)}
+        out = np.zeros((arr.shape[0], len(categories)), dtype=arr.dtype)
+        for i, status in enumerate(categories):
+            if status == S.INVALID:
+                out[:, i] = arr[:, col_of["invalid_in_universe"]] + arr[:, col_of["invalid_apart"]]
+            else:
+                out[:, i] = arr[:, col_of[status]]
+        return out
+
     def with_min_base(self, min_base: int) -> ItemRates:
         return replace(self, min_base=int(min_base))
 
@@ -314,17 +331,31 @@ def item_rates(c: Classification, weight: pd.Series | np.ndarray | None = None,
     wcounts = None if w is None else np.zeros((g, p, k))
     zero = None if w is None else np.zeros((g, p), dtype=np.int64)
     n_in_d = 1 + len(reasons) + len(_IN_D_FIXED)
-    inv_in, inv_apart = col_of["invalid_in_universe"], col_of["invalid_apart"]
-    for j in range(p):
-        col = lookup[c.codes[:, j]]
+    # One lookup per cell: status code, plus len(categories) where the rule held, to its column
+    # (only ``invalid`` goes to a different column in and out of universe).
+    n_cat = len(c.categories)
+    lookup2 = np.concatenate([lookup, lookup]).astype(np.intp)
+    if inv >= 0:
+        lookup2[inv], lookup2[n_cat + inv] = col_of["invalid_apart"], col_of["invalid_in_universe"]
+    offset = None if not grouped else gcode.astype(np.intp) * k
+    narrow = np.uint8 if 2 * n_cat <= 256 else np.uint16
+    zero_w = None if w is None or not (w == 0).any() else (w == 0)
+    for j in range(p):  # loop over items; every step is one vectorized pass over the column
+        code = c.codes[:, j].view(np.uint8) if narrow == np.uint8 else c.codes[:, j].astype(narrow)
         if inv >= 0:
-            is_inv = c.codes[:, j] == inv
-            col = np.where(is_inv, np.where(c.universe[:, j] == TRUE, inv_in, inv_apart), col)
-        cell = gcode * k + col
+            idx = (c.universe[:, j] == TRUE).astype(narrow) * narrow(n_cat)
+            idx += code
+        else:
+            idx = code
+        cell = lookup2[idx]
+        if offset is not None:
+            cell += offset
         counts[:, j] = np.bincount(cell, minlength=g * k).reshape(g, k)
         if w is not None:
             wcounts[:, j] = np.bincount(cell, weights=w, minlength=g * k).reshape(g, k)
-            zero[:, j] = np.bincount(gcode, weights=(col < n_in_d) & (w == 0), minlength=g).astype(np.int64)
+            if zero_w is not None:
+                in_d = (cell % k < n_in_d) if offset is not None else (cell < n_in_d)
+                zero[:, j] = np.bincount(gcode, weights=in_d & zero_w, minlength=g).astype(np.int64)
     return ItemRates(items=tuple(c.items), reasons=reasons, groups=groups, counts=counts, wcounts=wcounts,
                      zero=zero, min_base=int(min_base), grouped=grouped)
 

@@ -44,16 +44,15 @@ def in_codes(col: np.ndarray, codes: list[int]) -> np.ndarray:
 
 @dataclass(frozen=True, kw_only=True)
 class Figures:
-    """Every sum the report needs, from one pass over the items of the status matrix.
+    """Every sum the report needs beside the item rates.
 
     Attributes
     ----------
     counts, wcounts
         Items x statuses: cases (and weighted totals, or None) of each status.
-    denom, wdenom
-        Per item: cases (weight) in the universe excluding ``breakoff`` — the rate's denominator.
     applicable, answered, nonresponse, faults
-        Per case: items in universe (breakoff included), answered, with nonresponse, routing faults.
+        Per case: items in universe (breakoff included, ``left_blank`` not), answered, with
+        nonresponse, routing faults.
     broke_off
         Per case: at least one ``breakoff`` cell.
     weight
@@ -62,8 +61,6 @@ class Figures:
 
     counts: pd.DataFrame
     wcounts: pd.DataFrame | None
-    denom: np.ndarray
-    wdenom: np.ndarray | None
     applicable: np.ndarray
     answered: np.ndarray
     nonresponse: np.ndarray
@@ -72,43 +69,39 @@ class Figures:
     weight: np.ndarray | None
 
 
-def compute_figures(c: Classification, weight: np.ndarray | None = None) -> Figures:
-    """One loop over items (each a contiguous column of the int8 matrix); never over cases.
+def compute_figures(c: Classification, weight: np.ndarray | None = None,
+                    rates: ItemRates | None = None) -> Figures:
+    """Status counts from the item rates' counts, and one loop over items for the per-case sums.
 
-    The figures equal ``c.counts()``, ``c.item_summary()`` and ``c.cases``
-    (tested), computed with fewer passes over a large matrix.
+    ``rates`` (from :func:`skipwise.rates.item_rates` with the same ``weight``) already holds
+    every item's count of every status, weighted and unweighted, so the status matrix is not
+    counted twice.  The figures equal ``c.counts()`` and ``c.cases`` (tested).
     """
+    if rates is None:
+        rates = item_rates(c, weight)
+    if (weight is not None) != rates.weighted:
+        raise ValueError("the item rates were counted with a different weighting")
     n, p = c.codes.shape
-    k = len(c.categories)
     applicable_m = c.universe_mask().to_numpy()
     nr = _nr_codes(c)
     fault = [c.code(s) for s in S.FAULT_STATUSES]
     ans, brk, lb = c.code(S.ANSWERED), c.code(S.BREAKOFF), c.code(S.LEFT_BLANK)
-    counts = np.zeros((p, k), dtype=np.int64)
-    wcounts = None if weight is None else np.zeros((p, k))
-    denom = np.zeros(p, dtype=np.int64)
-    wdenom = None if weight is None else np.zeros(p)
     small = np.int16 if p < 32_000 else np.int32
     per_case = {name: np.zeros(n, dtype=small) for name in ("applicable", "answered", "nonresponse", "faults")}
     broke = np.zeros(n, dtype=bool)
     for j in range(p):
         col = c.codes[:, j]
-        counts[j] = np.bincount(col, minlength=k)
-        in_den = applicable_m[:, j] & (col != brk) & (col != lb)
-        denom[j] = np.count_nonzero(in_den)
-        if weight is not None:
-            wcounts[j] = np.bincount(col, weights=weight, minlength=k)
-            wdenom[j] = weight @ in_den
         per_case["applicable"] += applicable_m[:, j] & (col != lb)  # left_blank required no answer
         per_case["answered"] += col == ans
         per_case["nonresponse"] += in_codes(col, nr)
         per_case["faults"] += in_codes(col, fault)
         broke |= col == brk
     cols, idx = list(c.categories), list(c.items)
+    wcounts = None if weight is None else pd.DataFrame(rates.status_counts(cols, weighted=True),
+                                                       index=idx, columns=cols)
     return Figures(
-        counts=pd.DataFrame(counts, index=idx, columns=cols),
-        wcounts=None if wcounts is None else pd.DataFrame(wcounts, index=idx, columns=cols),
-        denom=denom, wdenom=wdenom, broke_off=broke, weight=weight,
+        counts=pd.DataFrame(rates.status_counts(cols), index=idx, columns=cols),
+        wcounts=wcounts, broke_off=broke, weight=weight,
         **{name: arr.astype(np.int64) for name, arr in per_case.items()},
     )
 

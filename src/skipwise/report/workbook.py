@@ -206,8 +206,8 @@ def write_item_report(
     c = classification if classification is not None else run_classify(data, questionnaire)
     q = questionnaire
 
-    fig = T.compute_figures(c, w)
     rates_all = item_rates(c, w, min_base=min_base)
+    fig = T.compute_figures(c, w, rates_all)
     items = T.items_table(c, fig, rates_all)
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
     faults, n_faults = T.fault_rows(c, fig, limit)
