@@ -31,9 +31,10 @@ import numpy as np
 import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
-from skipwise.impute.draws import METHODS, draw_values
+from skipwise.impute.draws import METHODS, draw_values_const
 from skipwise.impute.model import check_method, design_matrix
 from skipwise.impute.result import MNAR_CAUTION, check_columns, flag_columns
+from skipwise.impute.threads import one_blas_thread
 
 __all__ = ["ChainedResult", "chained_impute", "spawn_generators"]
 
@@ -45,22 +46,31 @@ def spawn_generators(seed: int | None, m: int) -> list[np.random.Generator]:
 
 def _chain(y: np.ndarray, miss: np.ndarray, todo: list[int], cat_items: list[int], xcov: np.ndarray,
            methods: list[str], iterations: int, k: int, seq: np.random.SeedSequence):
-    """One chain: (completed item matrix, mean of the imputed values per iteration, fallback notes)."""
-    rng = np.random.default_rng(seq)
-    cur = y.copy()
-    for j in todo:
-        obs = cur[~miss[:, j], j]
-        cur[miss[:, j], j] = obs[rng.integers(0, obs.size, size=int(miss[:, j].sum()))]
-    means, fallbacks = [], set()
-    for _ in range(iterations):
+    """One chain: (completed item matrix, mean of the imputed values per iteration, fallback notes).
+
+    Runs with one BLAS thread (see :mod:`skipwise.impute.threads`), so the result is the same
+    in this process and in a worker process.
+    """
+    with one_blas_thread():
+        rng = np.random.default_rng(seq)
+        cur = y.copy()
+        rows = {j: (np.flatnonzero(~miss[:, j]), np.flatnonzero(miss[:, j])) for j in todo}
+        y_obs = {j: y[rows[j][0], j] for j in todo}
         for j in todo:
-            x = _predictors(cur, j, cat_items, xcov)
-            mj = miss[:, j]
-            vals, note = draw_values(methods[j], y[~mj, j], x[~mj], x[mj], rng, proper=True, k=k)
-            if note:
-                fallbacks.add((j, note))
-            cur[mj, j] = vals
-        means.append([float(cur[miss[:, j], j].mean()) for j in todo])
+            obs = cur[rows[j][0], j]
+            cur[rows[j][1], j] = obs[rng.integers(0, obs.size, size=rows[j][1].size)]
+        design = _Design(cur, cat_items, xcov)
+        means, fallbacks = [], set()
+        for _ in range(iterations):
+            for j in todo:
+                obs_rows, mis_rows = rows[j]
+                vals, note = draw_values_const(methods[j], y_obs[j], *design.split(j, obs_rows, mis_rows),
+                                               rng, proper=True, k=k)
+                if note:
+                    fallbacks.add((j, note))
+                cur[mis_rows, j] = vals
+                design.update(cur, j)
+            means.append([float(cur[rows[j][1], j].mean()) for j in todo])
     return cur, means, fallbacks
 
 
@@ -208,8 +218,73 @@ def chained_impute(data: pd.DataFrame, items: Sequence[str], *, covariates: Sequ
                       notes=tuple(notes))
 
 
+class _Design:
+    """The predictor matrix of a chain, kept current as items are re-imputed.
+
+    One column-major array: the constant, then one block per item (a numeric item's current
+    values; a categorical item's indicators of its current values, first one left out),
+    then the covariates.  Predicting item j takes every column but j's block, in this
+    order: the matrix :func:`draw_values` builds with the constant in front, in the same
+    (column-major) memory layout, so the fits round exactly as before.  A step gathers its
+    cases column by column from contiguous columns instead of assembling the matrix anew.
+    """
+
+    def __init__(self, cur: np.ndarray, cat_items: list[int], xcov: np.ndarray) -> None:
+        self.cat = set(cat_items)
+        self.xcov = xcov
+        self.blocks = [self._block(cur, c) for c in range(cur.shape[1])]
+        self._assemble()
+
+    def _block(self, cur: np.ndarray, c: int) -> np.ndarray:
+        if c not in self.cat:
+            return cur[:, c:c + 1]
+        _, codes = np.unique(cur[:, c], return_inverse=True)
+        if codes.max(initial=0) < 1:
+            return np.empty((cur.shape[0], 0))
+        return (codes[:, None] == np.arange(1, codes.max() + 1)[None, :]).astype(float)
+
+    def _assemble(self) -> None:
+        widths = [b.shape[1] for b in self.blocks]
+        self.starts = np.concatenate([[1], 1 + np.cumsum(widths)]).astype(np.int64)
+        n, width = self.xcov.shape[0], int(self.starts[-1]) + self.xcov.shape[1]
+        self.matrix = np.empty((n, width), order="F")
+        self.matrix[:, 0] = 1.0
+        for c, b in enumerate(self.blocks):
+            self.matrix[:, self.starts[c]:self.starts[c + 1]] = b
+        self.matrix[:, self.starts[-1]:] = self.xcov
+        self.columns: dict[int, np.ndarray] = {}
+
+    def _gather(self, rows: np.ndarray, cols: np.ndarray) -> np.ndarray:
+        out = np.empty((rows.size, cols.size), order="F")
+        for i, c in enumerate(cols):
+            np.take(self.matrix[:, c], rows, out=out[:, i])
+        return out
+
+    def split(self, j: int, obs_rows: np.ndarray, mis_rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """(observed cases, missing cases) of the predictors of item ``j``, constant first."""
+        cols = self.columns.get(j)
+        if cols is None:
+            a, b = int(self.starts[j]), int(self.starts[j + 1])
+            cols = self.columns[j] = np.r_[0:a, b:self.matrix.shape[1]]
+        return self._gather(obs_rows, cols), self._gather(mis_rows, cols)
+
+    def update(self, cur: np.ndarray, c: int) -> None:
+        """Item ``c`` was re-imputed: refresh its block."""
+        b = self._block(cur, c)
+        a, e = int(self.starts[c]), int(self.starts[c + 1])
+        self.blocks[c] = b
+        if b.shape[1] == e - a:
+            self.matrix[:, a:e] = b
+        else:                      # a categorical item gained or lost a value
+            self._assemble()
+
+
 def _predictors(cur: np.ndarray, j: int, cat_items: list[int], xcov: np.ndarray) -> np.ndarray:
-    """All items but ``j`` (categorical ones as indicators) plus the covariate matrix."""
+    """All items but ``j`` (categorical ones as indicators) plus the covariate matrix.
+
+    The matrix :class:`_Design` keeps (without its constant); kept as the plain statement
+    of what a chain predicts from, and for the tests.
+    """
     parts = []
     for c in range(cur.shape[1]):
         if c == j:

@@ -28,7 +28,7 @@ import numpy as np
 import statsmodels.api as sm
 from scipy.linalg import cho_factor, cho_solve
 
-__all__ = ["draw_norm", "draw_pmm", "draw_logistic", "draw_multinomial", "draw_values", "METHODS",
+__all__ = ["draw_norm", "draw_pmm", "draw_logistic", "draw_multinomial", "draw_values", "draw_values_const", "METHODS",
            "ModelFailure", "ols_fit", "LinearFit", "match_k_nearest", "distinct_columns"]
 
 #: Model-based methods understood by :func:`draw_values`.
@@ -42,17 +42,32 @@ class ModelFailure(Exception):
 def distinct_columns(x: np.ndarray) -> np.ndarray:
     """Positions (ascending) of the first of each set of identical columns of a 2-D float array.
 
-    Each column is compared as one opaque block of bytes (a void view), so finding the
-    duplicates costs one sort of p keys instead of the row-wise comparisons of
-    ``np.unique(x.T, axis=0)``; adding 0.0 first turns −0.0 into 0.0, so equal values
-    have equal bytes.  Same result as ``np.unique(x.T, axis=0, return_index=True)[1]``, sorted.
+    Same result as ``np.unique(x.T, axis=0, return_index=True)[1]``, sorted (−0.0 counts as
+    0.0), at the cost of one pass over a few rows: the columns are first grouped by their
+    values in up to 64 evenly spaced rows (identical columns agree there), and only the
+    columns of a group with more than one member are compared in full.
     """
-    if x.shape[1] <= 1:
-        return np.arange(x.shape[1])
-    cols = np.ascontiguousarray(x.T, dtype=np.float64) + 0.0
-    keys = cols.view(np.dtype((np.void, cols.dtype.itemsize * cols.shape[1]))).ravel()
-    _, first = np.unique(keys, return_index=True)
-    return np.sort(first)
+    p = x.shape[1]
+    if p <= 1:
+        return np.arange(p)
+    if not x.shape[0]:
+        return np.arange(1)                              # columns without rows are all alike
+    rows = np.unique(np.linspace(0, x.shape[0] - 1, min(x.shape[0], 64)).astype(np.int64))
+    sample = np.ascontiguousarray(x[rows].T, dtype=np.float64) + 0.0   # +0.0 turns −0.0 into 0.0
+    keys = sample.view(np.dtype((np.void, sample.dtype.itemsize * sample.shape[1]))).ravel()
+    _, group = np.unique(keys, return_inverse=True)
+    group = group.ravel()
+    counts = np.bincount(group)
+    if counts.max() == 1:
+        return np.arange(p)
+    firsts = [c for c in range(p) if counts[group[c]] == 1]
+    for g in np.flatnonzero(counts > 1):
+        left = list(np.flatnonzero(group == g))          # ascending column positions
+        while left:
+            head, rest = left[0], left[1:]
+            firsts.append(head)
+            left = [c for c in rest if not np.array_equal(x[:, c], x[:, head], equal_nan=True)]
+    return np.sort(np.asarray(firsts, dtype=np.int64))
 
 
 def _with_const(x: np.ndarray) -> np.ndarray:
@@ -119,9 +134,13 @@ def draw_norm(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.r
     ``residuals="normal"`` adds N(0, σ*²); ``"observed"`` adds a randomly chosen
     observed residual, rescaled by σ*/σ̂.
     """
-    res = ols_fit(y_obs, _with_const(x_obs))
+    return _norm(y_obs, _with_const(x_obs), _with_const(x_mis), rng, proper, residuals)
+
+
+def _norm(y_obs, xo, xm, rng, proper, residuals):
+    res = ols_fit(y_obs, xo)
     beta, sigma = _ols_draw(res, rng, proper)
-    pred = _with_const(x_mis) @ beta
+    pred = xm @ beta
     if residuals == "observed":
         e = np.asarray(res.resid)
         scale = sigma / np.sqrt(res.scale) if res.scale > 0 else 1.0
@@ -161,7 +180,10 @@ def draw_pmm(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.ra
     (type-1 matching, van Buuren & Groothuis-Oudshoorn 2011). Only observed
     values can come out.
     """
-    xo, xm = _with_const(x_obs), _with_const(x_mis)
+    return _pmm(y_obs, _with_const(x_obs), _with_const(x_mis), rng, proper, k)
+
+
+def _pmm(y_obs, xo, xm, rng, proper, k):
     res = ols_fit(y_obs, xo)
     beta_star, _ = _ols_draw(res, rng, proper)
     idx = match_k_nearest(xo @ np.asarray(res.params), xm @ beta_star, k, rng)
@@ -184,27 +206,33 @@ def _fit_discrete(model):
 def draw_logistic(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.random.Generator, *,
                   proper: bool = False) -> np.ndarray:
     """Binary item by logistic regression: draw each value with its predicted probability."""
+    return _logistic(y_obs, _with_const(x_obs), _with_const(x_mis), rng, proper)
+
+
+def _logistic(y_obs, xo, xm, rng, proper):
     cats = np.unique(y_obs)
     if cats.size != 2:
         raise ModelFailure(f"logistic model needs exactly two observed values, found {cats.size}")
-    xo = _with_const(x_obs)
     if y_obs.size < xo.shape[1] + 2:
         raise ModelFailure(f"only {y_obs.size} observed case(s) for {xo.shape[1]} parameters")
     res = _fit_discrete(sm.Logit((y_obs == cats[1]).astype(float), xo))
     beta = np.asarray(res.params)
     if proper:
         beta = _mvn(beta, np.asarray(res.cov_params()), rng)
-    p = 1.0 / (1.0 + np.exp(-(_with_const(x_mis) @ beta)))
+    p = 1.0 / (1.0 + np.exp(-(xm @ beta)))
     return np.where(rng.random(p.size) < p, cats[1], cats[0])
 
 
 def draw_multinomial(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rng: np.random.Generator, *,
                      proper: bool = False) -> np.ndarray:
     """Categorical item by multinomial logistic regression (statsmodels MNLogit)."""
+    return _multinomial(y_obs, _with_const(x_obs), _with_const(x_mis), rng, proper)
+
+
+def _multinomial(y_obs, xo, xm, rng, proper):
     cats, codes = np.unique(y_obs, return_inverse=True)
     if cats.size < 2:
         raise ModelFailure("multinomial model needs at least two observed values")
-    xo = _with_const(x_obs)
     n_par = xo.shape[1] * (cats.size - 1)
     if y_obs.size < n_par + 2:
         raise ModelFailure(f"only {y_obs.size} observed case(s) for {n_par} parameters")
@@ -214,7 +242,7 @@ def draw_multinomial(y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray, rn
         # statsmodels orders the flat parameter vector equation by equation (column-major).
         flat = _mvn(params.ravel(order="F"), np.asarray(res.cov_params()), rng)
         params = flat.reshape(params.shape, order="F")
-    eta = np.column_stack([np.zeros(x_mis.shape[0]), _with_const(x_mis) @ params])
+    eta = np.column_stack([np.zeros(xm.shape[0]), xm @ params])
     eta -= eta.max(axis=1, keepdims=True)
     prob = np.exp(eta)
     prob /= prob.sum(axis=1, keepdims=True)
@@ -237,20 +265,47 @@ def draw_values(method: str, y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.nda
         x_obs, x_mis = x_obs[:, keep], x_mis[:, keep]
         first = distinct_columns(x_obs)
         x_obs, x_mis = x_obs[:, first], x_mis[:, first]
+    return _draw(method, y_obs, _with_const(x_obs), _with_const(x_mis), rng, proper, k, residuals)
+
+
+def draw_values_const(method: str, y_obs: np.ndarray, x_obs: np.ndarray, x_mis: np.ndarray,
+                      rng: np.random.Generator, *, proper: bool = False, k: int = 5,
+                      residuals: Literal["normal", "observed"] = "normal") -> tuple[np.ndarray, str | None]:
+    """:func:`draw_values` for predictor matrices whose first column is already the constant.
+
+    The same columns are left out, with the same result and the same random draws, without
+    copying the matrices when nothing is left out (chained equations call this thousands of
+    times on large files).
+    """
+    rest = x_obs[:, 1:]
+    if rest.shape[1]:
+        keep = np.ptp(rest, axis=0) > 0 if rest.shape[0] else np.zeros(rest.shape[1], bool)
+        cols = np.flatnonzero(keep)
+        if cols.size:
+            cols = cols[distinct_columns(rest[:, cols] if cols.size < keep.size else rest)]
+        if cols.size < keep.size:
+            take = np.concatenate([[0], cols + 1])
+            # column-major, as draw_values' own column selection leaves them (same rounding)
+            x_obs, x_mis = np.asfortranarray(x_obs[:, take]), np.asfortranarray(x_mis[:, take])
+    return _draw(method, y_obs, x_obs, x_mis, rng, proper, k, residuals)
+
+
+def _draw(method, y_obs, xo, xm, rng, proper, k, residuals) -> tuple[np.ndarray, str | None]:
+    """The draw on predictor matrices with the constant in column 0, and the fallbacks."""
     try:
         if method == "regression":
-            return draw_norm(y_obs, x_obs, x_mis, rng, proper=proper, residuals=residuals), None
+            return _norm(y_obs, xo, xm, rng, proper, residuals), None
         if method == "logistic":
-            return draw_logistic(y_obs, x_obs, x_mis, rng, proper=proper), None
+            return _logistic(y_obs, xo, xm, rng, proper), None
         if method == "multinomial":
-            return draw_multinomial(y_obs, x_obs, x_mis, rng, proper=proper), None
-        return draw_pmm(y_obs, x_obs, x_mis, rng, proper=proper, k=k), None
+            return _multinomial(y_obs, xo, xm, rng, proper), None
+        return _pmm(y_obs, xo, xm, rng, proper, k), None
     except ModelFailure as exc:
         first = str(exc)
     if method != "pmm":
         try:
-            return draw_pmm(y_obs, x_obs, x_mis, rng, proper=proper, k=k), f"{method} failed ({first}); used pmm"
+            return _pmm(y_obs, xo, xm, rng, proper, k), f"{method} failed ({first}); used pmm"
         except ModelFailure:
             pass
-    return y_obs[rng.integers(0, y_obs.size, size=x_mis.shape[0])], \
+    return y_obs[rng.integers(0, y_obs.size, size=xm.shape[0])], \
         f"{method} failed ({first}); drew random observed values"
