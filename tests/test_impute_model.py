@@ -103,3 +103,16 @@ def test_unknown_method_has_hint():
     with pytest.raises(SkipwiseError) as exc:
         model_impute(df, ["y"], predictors=["x"], method="pmn")
     assert "did you mean 'pmm'" in str(exc.value)
+
+
+def test_donor_order_is_numpys_stable_sort():
+    # reference: numpy's own stable argsort, on values with and without ties and NaN
+    from skipwise.impute.draws import _stable_order
+
+    rng = np.random.default_rng(5)
+    for trial in range(60):
+        n = int(rng.integers(1, 2000))
+        v = [rng.normal(size=n), rng.integers(0, 5, n).astype(float), np.round(rng.normal(size=n), 2)][trial % 3]
+        if trial % 4 == 0:
+            v[rng.random(n) < 0.1] = np.nan
+        assert np.array_equal(_stable_order(v), np.argsort(v, kind="stable"))
