@@ -95,11 +95,6 @@ class Classification:
         """Cells in the item's universe (break-offs and left_blank included; gate unknown excluded)."""
         return pd.DataFrame(self._applicable, index=self.index, columns=list(self.items))
 
-    @cached_property
-    def _in_d(self) -> np.ndarray:
-        """The rate base D of DESIGN §3: in universe, excluding ``breakoff`` and ``left_blank``."""
-        return self._applicable & ~self._is(S.OUTSIDE_D)
-
     # -- counts -------------------------------------------------------------------------------
     def counts(self, weight: pd.Series | np.ndarray | None = None) -> pd.DataFrame:
         """Count (or weighted total) of every status for every item: items x statuses."""
@@ -113,20 +108,20 @@ class Classification:
     def item_summary(self, weight: pd.Series | np.ndarray | None = None) -> pd.DataFrame:
         """Per item: cases, cases in universe, every status count and the nonresponse rates.
 
-        The item nonresponse rate (DESIGN §3) is (nonresponse reasons +
-        ``item_missing``) / (cases in universe, excluding ``breakoff`` and
-        ``left_blank``); ``gate_unknown``, ``breakoff`` and ``left_blank`` are
-        shown apart and are in neither numerator nor denominator.
+        Every figure comes from :func:`skipwise.rates.item_rates`, the package's one
+        definition of the item rates (docs/contract.md §2): the item nonresponse rate is
+        (nonresponse reasons + ``item_missing``) / D, where D is the cells in universe
+        excluding ``breakoff`` and ``left_blank``; ``gate_unknown``, ``breakoff`` and
+        ``left_blank`` are shown apart and are in neither numerator nor denominator.
         """
+        from skipwise.rates import item_rates  # the rates module builds on this one
+
         w = _weights(weight, len(self.index))
-        counts = self.counts(w)
-        applicable = self._in_d
-        if w is None:
-            denom = pd.Series(np.count_nonzero(applicable, axis=0), index=list(self.items))
-        else:  # one column at a time: never a float copy of the whole matrix
-            denom = pd.Series([w[applicable[:, j]].sum() for j in range(applicable.shape[1])],
-                              index=list(self.items))
-        nonresp = counts[list(self.nonresponse_statuses)].sum(axis=1)
+        rates = item_rates(self, w)
+        table = rates.table(w is not None)
+        cats = list(self.categories)
+        counts = pd.DataFrame(rates.status_counts(cats, weighted=w is not None), index=list(self.items),
+                              columns=cats)
         q = self.questionnaire
         out = pd.DataFrame({
             "section": [q.item(i).section for i in self.items],
@@ -134,14 +129,13 @@ class Classification:
             "label": [q.item(i).label for i in self.items],
             "rule": [q.item(i).rule_text for i in self.items],
             "cases": float(w.sum()) if w is not None else len(self.index),
-            "in_universe": denom if w is not None else denom.astype(np.int64),
+            "in_universe": table["D"].to_numpy(),
         }, index=list(self.items))
         out = pd.concat([out, counts], axis=1)
-        out["nonresponse"] = nonresp
-        with np.errstate(invalid="ignore", divide="ignore"):
-            out["nonresponse_rate"] = np.where(denom > 0, nonresp / denom, np.nan)
-            for reason in q.nonresponse_reasons:
-                out[f"{reason}_rate"] = np.where(denom > 0, counts[reason] / denom, np.nan)
+        out["nonresponse"] = table["nonresponse"].to_numpy()
+        out["nonresponse_rate"] = table["nonresponse_rate"].to_numpy()
+        for reason in q.nonresponse_reasons:
+            out[f"{reason}_rate"] = table[f"{reason}_rate"].to_numpy()
         return out
 
     @cached_property
