@@ -101,7 +101,7 @@ def test_sav_draft_round_trip_matches_spss_dictionary(tmp_path):
     assert q.item("income").range == (800.25, 3100)
     assert text.count("# guessed: confirm kind") == 4  # global -9, q1 -8, age -98, income -8
     assert text.count("# asked_if: add the routing condition") == 1 + len(q.items)
-    assert "# observed: widen to the valid range" in text
+    assert "# observed, confirm: widen to the valid range" in text
     assert "# first column whose values are all unique and filled: confirm" in text
 
 

@@ -12,7 +12,7 @@ import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
-from skipwise.draft import Draft, DraftCode, DraftItem, guess_code, _lift
+from skipwise.draft import Draft, DraftCode, DraftItem, guess_code, lift_codes as _lift
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.publish import clean_message
 from skipwise.questionnaire.model import CodeKind, ItemType
