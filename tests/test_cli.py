@@ -61,7 +61,8 @@ def test_classify_writes_status_columns_and_faults(files):
     frame, meta = pyreadstat.read_sav(str(out))
     # DESIGN §3 numbers: answered 1, off_route 6, refused 12 (built-in, docs/statuses.md), gate_unknown 4
     assert frame["amount_status"].tolist() == [1, 6, 12, 4]
-    assert meta.variable_value_labels["amount_status"][6.0] == "off_route"
+    # the status in words, as in every format (the report's labels, skipwise.rates.STATUS_LABELS)
+    assert meta.variable_value_labels["amount_status"][6.0] == "Answer or code where not asked (routing fault)"
     # DESIGN §8: the listing of x.sav is x.sav.faults.csv; its case id column keeps the data's name.
     faults = pd.read_csv(tmp / "out.sav.faults.csv")
     assert faults[["id", "item", "status", "value", "inputs"]].values.tolist() == [

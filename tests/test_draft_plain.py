@@ -172,3 +172,23 @@ def test_guess_data_code(value, reason):
     # Common practice, no source: the wordings of nonresponse in survey exports.
     guess = guess_data_code(value)
     assert (guess[0] if guess else None) == reason
+
+
+def test_csv_born_draft_classifies_into_a_recoded_stata_file(tmp_path):
+    # The draft's text codes on a number column and its text categories reach a recoded .dta:
+    # numbers stay numbers, "Refused" becomes refused's letter .j (number 12, docs/statuses.md),
+    # and a text-valued categorical keeps its cells beside a status column.
+    path = tmp_path / "bus.csv"
+    frame = _frame()
+    frame.to_csv(path, index=False)
+    _draft(path, tmp_path / "bus.yaml")
+    out = tmp_path / "bus.dta"
+    result = runner.invoke(app, ["classify", str(path), "-q", str(tmp_path / "bus.yaml"), "-o", str(out),
+                                 "--form", "recoded"])
+    assert result.exit_code == 0, result.output
+    back = pd.read_stata(out, convert_missing=True, convert_categoricals=False)  # pandas' own Stata reader
+    refused = frame["age"].eq("Refused").to_numpy()
+    assert [str(v) for v in back["age"][refused]] == [".j"] * int(refused.sum())
+    numbers = pd.to_numeric(frame["age"], errors="coerce")
+    assert back["age"][~refused & numbers.notna().to_numpy()].astype(float).tolist() == numbers.dropna().tolist()
+    assert back["tenure"].tolist() == frame["tenure"].tolist() and "tenure_status" in back.columns

@@ -55,9 +55,14 @@ def reference(package):
     df, meta = pyreadstat.read_sav(str(package / "marrowby-2026.sav"), user_missing=True)
     names = [it.name for it in ITEMS]
     token = {}
+    # status numbers -> tokens by the table of docs/statuses.md (the labels are words for people)
+    from skipwise.classify.statuses import STATUS_NUMBERS
+    from skipwise.questionnaire import load_questionnaire
+
+    q = load_questionnaire(package.parent / "marrowby-2026.yaml")
+    by_number = {n: s for s, n in {**STATUS_NUMBERS, **q.reason_numbers}.items()}
     for it in names:
-        labels = meta.variable_value_labels[f"{it}_status"]  # number -> "token" or "token: words"
-        token[it] = df[f"{it}_status"].map({k: str(v).split(":")[0].split(" ")[0] for k, v in labels.items()})
+        token[it] = df[f"{it}_status"].map(by_number)
     status = pd.DataFrame(token)
     # Universe of every cell from the demo's hand-written routing over the delivered statuses and values.
     rec = Record(len(df))

@@ -130,7 +130,8 @@ def test_final_data_keeps_labels_and_missing_definitions_and_adds_status_and_wei
     assert meta.missing_ranges["mood"] == [{"lo": -9.0, "hi": -9.0}]
     assert {"pet_status", "pets_status", "mood_status", "wt_final"} <= set(df.columns)
     labels = meta.variable_value_labels["mood_status"]
-    assert df.loc[df["mood"] == -9, "mood_status"].map(labels).eq("refused").all()
+    assert df.loc[df["mood"] == -9, "mood_status"].eq(12).all()  # refused: built-in number 12 (docs/statuses.md)
+    assert labels[12] == "Refused (nonresponse)"
     # Raking reproduces the control totals (Deming & Stephan 1940: calibrated margins equal the totals);
     # all 40 interviews respond, so the data file carries every respondent's weight.
     np.testing.assert_allclose(df.groupby("area")["wt_final"].sum().to_numpy(), [500, 700], rtol=1e-8)

@@ -88,7 +88,8 @@ def test_weigh_with_questionnaire_share_answered(tmp_path):
     result = runner.invoke(app, ["weigh", str(data), "--plan", str(plan), "-o", str(out), "-q", str(q)])
     assert result.exit_code == 0, result.output
     # shares 1.0, 0.6, 0.2 -> complete, partial, break-off (counted as R) [AAPOR example cut-points, memory]
-    assert pd.read_csv(out)["wt_outcome"].tolist() == ["I", "P", "R", "NC"]
+    # delivered as the categories' numbers 1-8 in the standard's order I, P, R, NC, O, UH, UO, NE
+    assert pd.read_csv(out)["wt_outcome"].tolist() == [1, 2, 3, 4]
 
 
 def test_weigh_subprocess_smoke(files):

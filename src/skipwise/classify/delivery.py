@@ -9,17 +9,52 @@ what the data file itself declared, except that an item's explicit ``level:`` wi
 
 from __future__ import annotations
 
+from typing import Mapping
+
 import pandas as pd
 
 from skipwise.io.meta import SurveyMeta, normalize_value
 from skipwise.questionnaire.model import Item, ItemType, Questionnaire
 
-__all__ = ["LEVELS", "item_level", "delivery_meta"]
+__all__ = ["LEVELS", "item_level", "delivery_meta", "status_value_labels", "REASON_WORDS"]
 
 #: SPSS measurement levels an item's ``level:`` may name.
 LEVELS = ("nominal", "ordinal", "scale")
 _BY_TYPE = {ItemType.CATEGORICAL: "nominal", ItemType.MULTI: "nominal", ItemType.TEXT: "nominal",
             ItemType.INTEGER: "scale", ItemType.NUMBER: "scale", ItemType.DATE: "scale"}
+
+
+#: Words for the built-in reasons (docs/statuses.md) when the questionnaire's code has no label.
+REASON_WORDS: dict[str, str] = {
+    "dont_know": "Don't know", "refused": "Refused", "no_answer": "No answer", "not_applicable": "Not applicable",
+    "not_stated": "Not stated", "cannot_choose": "Can't choose", "illegible": "Illegible",
+    "multiple_answers": "Several answers marked", "interviewer_error": "Interviewer error", "data_lost": "Data lost",
+}
+
+
+def status_value_labels(codes: Mapping[str, object], q: Questionnaire) -> dict[object, str]:
+    """Human value labels of status codes, the same in every delivered format.
+
+    ``codes`` maps each status or reason token to the value written for it (its number in a
+    status column, -900 - number in a recoded ``.sav``, its letter in a recoded ``.dta``).
+    Fixed statuses take the report's labels (``skipwise.rates.STATUS_LABELS``); a reason takes
+    its code's label from the questionnaire, else the words of a built-in reason, else its token
+    in words, followed by "(nonresponse)".
+    """
+    from skipwise.rates import STATUS_LABELS
+
+    labelled = {}
+    for code in (*q.codes, *(c for it in q.items for c in it.codes)):
+        if code.label:
+            labelled.setdefault(code.reason, code.label)
+    out: dict[object, str] = {}
+    for status, value in codes.items():
+        if status in STATUS_LABELS:
+            out[value] = STATUS_LABELS[status]
+        else:
+            words = labelled.get(status) or REASON_WORDS.get(status) or status.replace("_", " ").capitalize()
+            out[value] = f"{words} (nonresponse)"
+    return out
 
 
 def item_level(item: Item) -> str:

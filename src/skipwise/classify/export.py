@@ -11,9 +11,9 @@ Two forms, chosen by the user:
     codes are numbers (``STATUS_CODES``) declared as user-missing values with
     labels; in ``.dta`` they are extended missing values (``STATUS_LETTERS``)
     with labels; in ``.parquet`` and ``.csv`` they are the numbers.  An analyst
-    in any package then sees why each cell is empty.  Text and date items keep
-    their cells (those formats have no missing codes for text) and get a status
-    column instead.
+    in any package then sees why each cell is empty.  Text and date items, and
+    categorical items whose categories are texts, keep their cells (those formats
+    have no missing codes for text) and get a status column instead.
 
 The numbering is fixed so files of different waves line up (DESIGN §3,
 docs/statuses.md): statuses 1-9, reasons 11-99 by the questionnaire's
@@ -32,6 +32,7 @@ import pandas as pd
 
 from skipwise.classify import statuses as S
 from skipwise.classify.cells import column_views
+from skipwise.classify.delivery import status_value_labels
 from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.generated import Generated, check_generated
@@ -114,7 +115,7 @@ def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta
     meta = (meta or get_meta(data)).copy()
     numbers = status_numbers(cl)
     lookup = np.array([numbers[c] for c in cl.categories], dtype=np.int16)
-    labels = {v: k for k, v in numbers.items()}
+    labels = status_value_labels(numbers, cl.questionnaire)
     new = {}
     chosen = [(j, name) for j, name in enumerate(cl.items) if items is None or name in items]
     check_generated(status_columns([name for _, name in chosen]), data.columns)
@@ -142,16 +143,16 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
     meta = (meta or get_meta(data)).copy()
     stata = fmt == "dta"
     if stata:
-        _check_letters(cl, [n for n in cl.items if cl.questionnaire.item(n).type not in (ItemType.TEXT, ItemType.DATE)])
+        _check_letters(cl, [n for n in cl.items if not _keeps_cells(cl.questionnaire.item(n))])
     mapping = status_letters(cl) if stata else status_codes(cl)
     lookup = _by_code(cl, mapping, None)
-    labels = {v: k for k, v in mapping.items()}
+    labels = status_value_labels(mapping, cl.questionnaire)
     out = data.copy()
     text_items = []
     answered = cl.code(S.ANSWERED)
     for j, name in enumerate(cl.items):
         item = cl.questionnaire.item(name)
-        if item.type in (ItemType.TEXT, ItemType.DATE):
+        if _keeps_cells(item):
             text_items.append(name)
             continue
         codes = cl.codes[:, j]
@@ -159,6 +160,8 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
         for col in item.columns:
             _check_no_collision(data[col], mapping, col, stata)
             values = out[col].to_numpy(dtype=object, na_value=np.nan).copy()
+            if stata and values.dtype == object:  # numbers stored as text (a CSV column holding "Refused")
+                values[~replace] = column_views(data[col])[0][~replace]
             values[replace] = lookup[codes[replace]]
             # dtype=object: a column of letters only must not be inferred as text
             out[col] = pd.Series(values, index=out.index, dtype=object) if stata else \
@@ -174,6 +177,12 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
         out, meta = with_status_columns(out, cl, meta, items=text_items)
     out.attrs = {}
     return out, meta
+
+
+def _keeps_cells(item) -> bool:
+    """Text, date and text-valued categorical items keep their cells (no missing codes for text)."""
+    return item.type in (ItemType.TEXT, ItemType.DATE) or (
+        item.type is ItemType.CATEGORICAL and bool(item.values) and all(isinstance(k, str) for k in item.values))
 
 
 def _same(a: object, b: object) -> bool:

@@ -69,5 +69,16 @@ def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=N
         file_format=FORMAT_NAMES.get(fmt, fmt or "data file"),
         statuses=classification.status if classification is not None else None,
         status_numbers=status_numbers(classification) if classification is not None else {},
+        status_labels=_status_words(classification, questionnaire),
         weight=weight, weight_columns=weights, replicates=rep,
         study=study_metadata(getattr(questionnaire, "study", None), study), produced=produced, rates=rates)
+
+
+def _status_words(classification, questionnaire) -> dict[str, str]:
+    """Each status's human label, the same words the delivered data files carry."""
+    if classification is None:
+        return {}
+    from skipwise.classify.delivery import status_value_labels
+    from skipwise.classify.export import status_numbers
+
+    return status_value_labels({s: s for s in status_numbers(classification)}, questionnaire)

@@ -10,6 +10,8 @@ from pathlib import Path
 
 from skipwise.demo.compare import weighting_input, weighting_plan_text
 from skipwise.demo.impute import imputation_plan_text
+from skipwise.demo.population import AGE_BANDS
+from skipwise.io import SurveyMeta, write_survey
 from skipwise.io.atomic import atomic_output
 
 __all__ = ["run_plan_text", "write_demo_plans", "PLAN_NAME", "WEIGHTING_INPUT"]
@@ -71,8 +73,13 @@ def write_demo_plans(scenario, out: str | Path, *, overwrite: bool = False) -> P
 
     out = Path(out)
     _write_text(out / "marrowby-2026.yaml", questionnaire_path().read_text(encoding="utf-8"), overwrite)
-    with atomic_output(out / "data" / WEIGHTING_INPUT, overwrite=overwrite) as tmp:
-        weighting_input(scenario.sample, scenario.interviews).to_parquet(tmp, index=False)
+    # the age band is made for a calibration margin: the weighting file labels it, and the run
+    # delivers it beside the weights in the final data file
+    bands = {code: label for code, (label, _, _) in AGE_BANDS.items()}
+    meta = SurveyMeta(column_labels={"age_band": "Age band (calibration margin)"}, value_labels={"age_band": bands},
+                      measure={"age_band": "ordinal"})
+    write_survey(weighting_input(scenario.sample, scenario.interviews).reset_index(drop=True),
+                 out / "data" / WEIGHTING_INPUT, meta, overwrite=overwrite)
     _write_text(out / "weighting_plan.yaml", weighting_plan_text(scenario.population_totals), overwrite)
     _write_text(out / "imputation_plan.yaml", imputation_plan_text(seed=scenario.seed), overwrite)
     return _write_text(out / PLAN_NAME, run_plan_text(), overwrite)

@@ -8,6 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from skipwise.errors import SkipwiseError
+from skipwise.io.dta_labels import name_label_sets
 from skipwise.io.meta import SurveyMeta, normalize_value
 from skipwise.io.writers_common import (
     EXT_LETTER, Job, check_names, note, prepare_columns, problem, split_numbers, stata_letter,
@@ -78,6 +79,7 @@ def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
             variable_value_labels=labels or None, missing_user_values=user or None,
             variable_format=formats or None,
         )
+        name_label_sets(tmp)  # label sets named after their variable, not 'tenure5'
     return job
 
 

@@ -91,7 +91,7 @@ def weight_labels(res) -> dict[str, str]:
     """Variable label of every weight column a weighting result adds."""
     p = res.plan.prefix
     labels = {
-        f"{p}outcome": "Outcome category (I, P, R, NC, O, UH, UO, NE)",
+        f"{p}outcome": "Outcome category (1-8: I, P, R, NC, O, UH, UO, NE)",
         f"{p}base": "Base weight (inverse selection probability or given weight)",
         f"{p}eligibility": "Weight after unknown-eligibility adjustment",
         f"{p}nonresponse": "Weight after nonresponse adjustment",
@@ -104,8 +104,12 @@ def weight_labels(res) -> dict[str, str]:
 def weight_meta(res, meta: SurveyMeta | None = None) -> SurveyMeta:
     """``meta`` (default: the weighted frame's) with labels and measures of the weight columns."""
     meta = get_meta(res.data) if meta is None else meta.copy()
+    from skipwise.weighting.outcomes import OUTCOME_VALUE_LABELS
+
+    outcome = f"{res.plan.prefix}outcome"
     for col, label in weight_labels(res).items():
-        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
+        meta = meta.with_column(col, label=label, measure="nominal" if col == outcome else "scale",
+                                value_labels=OUTCOME_VALUE_LABELS if col == outcome else None)
     return meta
 
 
@@ -263,6 +267,7 @@ def join_step(st: RunState, reporter: Reporter) -> None:
 
 
 def weigh_step(st: RunState, reporter: Reporter) -> None:
+    from skipwise.pipeline.derived import derived_columns, derived_meta
     from skipwise.weighting.workbook import summary_rows, write_workbook
 
     spec = st.weighting_plan
@@ -289,7 +294,8 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
         for role in ("weighted_frame", "weighted_frame_parquet"):
             if role in st.targets:
                 write_data(written, st.targets[role], meta, reporter)
-        by_id = res.data.set_index(case_id)[cols]
+        extra = derived_columns(spec, res.data, st.data.columns)  # e.g. an age band made for a margin
+        by_id = res.data.set_index(case_id)[cols + extra]
         if by_id.index.has_duplicates:
             raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,
                                         file=str(st.plan.weighting_data),
@@ -306,6 +312,8 @@ def weigh_step(st: RunState, reporter: Reporter) -> None:
     else:
         st.weights = res.data[cols]
     st.weight_meta = weight_meta(res, SurveyMeta())
+    if own and extra:
+        st.weight_meta = st.weight_meta.merged(derived_meta(spec, res.data, extra, st.plan.weighting_data.name))
     for name, value in summary_rows(res):
         if name in ("respondents (weighted cases)", "sum of final weights", "Kish design effect (final)",
                     "response rate RR3 (unweighted)"):

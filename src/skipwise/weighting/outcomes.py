@@ -21,12 +21,21 @@ import pandas as pd
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = [
-    "OUTCOME_CATEGORIES", "REQUIRED_COUNTS", "E_METHOD_GIVEN", "E_METHOD_ESTIMATED",
+    "OUTCOME_CATEGORIES", "OUTCOME_NUMBERS", "OUTCOME_VALUE_LABELS", "REQUIRED_COUNTS", "E_METHOD_GIVEN", "E_METHOD_ESTIMATED",
     "outcome_rates", "interview_outcome", "count_outcomes",
 ]
 
 #: Categories a disposition can map to, in the standard's order.
 OUTCOME_CATEGORIES: tuple[str, ...] = ("I", "P", "R", "NC", "O", "UH", "UO", "NE")
+#: The number of each category in a delivered ``<prefix>outcome`` column (1-8, the standard's order),
+#: so every format carries it as a labelled number (:data:`OUTCOME_VALUE_LABELS`).
+OUTCOME_NUMBERS: dict[str, int] = {k: i + 1 for i, k in enumerate(OUTCOME_CATEGORIES)}
+#: Value labels of the delivered outcome column: the category's letter and its meaning.
+OUTCOME_VALUE_LABELS: dict[int, str] = {
+    1: "I: complete interview", 2: "P: partial interview", 3: "R: refusal or break-off", 4: "NC: non-contact",
+    5: "O: other eligible non-interview", 6: "UH: unknown if eligible (no contact with the address)",
+    7: "UO: unknown eligibility, other", 8: "NE: not eligible",
+}
 #: Counts :func:`outcome_rates` always needs.
 REQUIRED_COUNTS: tuple[str, ...] = ("I", "P", "R", "NC", "O", "UH", "UO")
 E_METHOD_GIVEN = "given"

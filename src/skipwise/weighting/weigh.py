@@ -12,7 +12,7 @@ import pandas as pd
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.generated import Generated, check_generated
 from skipwise.weighting.diagnostics import weight_summary
-from skipwise.weighting.outcomes import count_outcomes, outcome_rates
+from skipwise.weighting.outcomes import OUTCOME_NUMBERS, count_outcomes, outcome_rates
 from skipwise.weighting.pipeline import STAGES, ChainResult, Prepared, prepare, run_chain
 from skipwise.weighting.plan import WeightingPlan
 from skipwise.weighting.replicates import (
@@ -133,7 +133,8 @@ def weigh(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series
 def _output_frame(frame: pd.DataFrame, plan: WeightingPlan, prep: Prepared, chain: ChainResult,
                   reps: np.ndarray | None) -> tuple[pd.DataFrame, tuple[str, ...]]:
     p = plan.prefix
-    new: dict[str, object] = {f"{p}outcome": prep.outcome.astype(str).to_numpy()}
+    # the category as its labelled number 1-8 (OUTCOME_NUMBERS), as every format can carry it
+    new: dict[str, object] = {f"{p}outcome": prep.outcome.map(OUTCOME_NUMBERS).to_numpy(dtype=np.int64)}
     for stage in STAGES:
         new[f"{p}{stage}"] = chain.stages[stage]
     if reps is not None:
