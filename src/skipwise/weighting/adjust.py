@@ -17,8 +17,9 @@ import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 
-__all__ = ["CollapseRecord", "ClassAdjustment", "class_codes", "collapse_classes", "class_adjust",
-           "DEFAULT_MIN_RESPONDENTS", "DEFAULT_MAX_FACTOR"]
+__all__ = ["CollapseRecord", "ClassAdjustment", "ClassSums", "ClassFactors", "class_codes", "class_keys",
+           "class_labels", "merge_class_keys", "class_sums", "class_factors", "apply_class_factors",
+           "collapse_classes", "class_adjust", "DEFAULT_MIN_RESPONDENTS", "DEFAULT_MAX_FACTOR"]
 
 #: Smallest number of respondents in a nonresponse class (common practice, no source).
 DEFAULT_MIN_RESPONDENTS = 20
@@ -48,17 +49,15 @@ class ClassAdjustment:
     collapses: tuple[CollapseRecord, ...]
 
 
-def class_codes(frame: pd.DataFrame, variables: list[str] | tuple[str, ...], *,
-                rows: np.ndarray | None = None, step: str = "classes") -> tuple[np.ndarray, list[str]]:
-    """One class code per case from the cross-classification of ``variables`` (sorted order).
-
-    Cases outside ``rows`` (a boolean mask) get code -1 and need no value.
-    """
+def class_keys(frame: pd.DataFrame, variables: list[str] | tuple[str, ...], *,
+               rows: np.ndarray | None = None, step: str = "classes") -> tuple[np.ndarray, list[tuple]]:
+    """Checked cross-classification of ``variables``: a local id per case in ``rows`` (-1 elsewhere)
+    and the class keys (tuples of values) in sorted order; row-local, so partitions can be merged
+    with :func:`merge_class_keys`."""
     n = len(frame)
     rows = np.ones(n, dtype=bool) if rows is None else rows
     if not variables:
-        codes = np.where(rows, 0, -1).astype(np.intp)
-        return codes, ["all cases"]
+        return np.where(rows, 0, -1).astype(np.intp), [()]
     problems = []
     for v in variables:
         if v not in frame.columns:
@@ -79,29 +78,86 @@ def class_codes(frame: pd.DataFrame, variables: list[str] | tuple[str, ...], *,
     ids = grouped.ngroup().to_numpy()
     index = grouped.size().index
     keys = list(index) if isinstance(index, pd.MultiIndex) else [(k,) for k in index]
-    labels = [", ".join(f"{v}={k}" for v, k in zip(variables, key)) for key in keys]
     codes = np.full(n, -1, dtype=np.intp)
     codes[rows] = ids
-    return codes, labels
+    return codes, keys
 
 
-def _group_stats(group: np.ndarray, n_groups: int, w: np.ndarray, total_mask: np.ndarray,
-                 kept_mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    tot = np.bincount(group[total_mask], weights=w[total_mask], minlength=n_groups)
-    kept = np.bincount(group[kept_mask], weights=w[kept_mask], minlength=n_groups)
-    n_kept = np.bincount(group[kept_mask], minlength=n_groups)
-    return tot, kept, n_kept
+def class_labels(variables: list[str] | tuple[str, ...], keys: list[tuple]) -> list[str]:
+    """The label of each class key, ``var=value, var=value``."""
+    if not variables:
+        return ["all cases"]
+    return [", ".join(f"{v}={k}" for v, k in zip(variables, key)) for key in keys]
 
 
-def collapse_classes(codes: np.ndarray, labels: list[str], w: np.ndarray, total_mask: np.ndarray,
-                     kept_mask: np.ndarray, *, min_kept: int, max_factor: float, step: str
+def merge_class_keys(variables: list[str] | tuple[str, ...], key_lists: list[list[tuple]]
+                     ) -> tuple[list[tuple], list[np.ndarray]]:
+    """The sorted union of the class keys of several partitions, and each partition's local → global codes.
+
+    The union is sorted as a groupby of the whole file sorts its keys, so the global codes are
+    those :func:`class_codes` gives the whole file.
+    """
+    if not variables:
+        return [()], [np.zeros(1, dtype=np.intp) for _ in key_lists]
+    union = pd.DataFrame([k for keys in key_lists for k in keys], columns=list(variables))
+    if len(union):
+        index = union.groupby(list(variables), sort=True, dropna=False).size().index
+        keys = list(index) if isinstance(index, pd.MultiIndex) else [(k,) for k in index]
+    else:
+        keys = []
+    where = {k: i for i, k in enumerate(keys)}
+    return keys, [np.array([where[k] for k in part], dtype=np.intp) for part in key_lists]
+
+
+def class_codes(frame: pd.DataFrame, variables: list[str] | tuple[str, ...], *,
+                rows: np.ndarray | None = None, step: str = "classes") -> tuple[np.ndarray, list[str]]:
+    """One class code per case from the cross-classification of ``variables`` (sorted order).
+
+    Cases outside ``rows`` (a boolean mask) get code -1 and need no value.
+    """
+    codes, keys = class_keys(frame, variables, rows=rows, step=step)
+    return codes, class_labels(variables, keys)
+
+
+@dataclass(frozen=True, kw_only=True)
+class ClassSums:
+    """Per-class sums of one adjustment step; row-local and mergeable (``+``)."""
+
+    total: np.ndarray      # weight of the cases of ``total_mask``
+    kept: np.ndarray       # weight of the cases kept
+    n_kept: np.ndarray
+    n_total: np.ndarray
+
+    def __add__(self, other: "ClassSums") -> "ClassSums":
+        return ClassSums(total=self.total + other.total, kept=self.kept + other.kept,
+                         n_kept=self.n_kept + other.n_kept, n_total=self.n_total + other.n_total)
+
+    def grouped(self, group_of_class: np.ndarray, n_groups: int) -> "ClassSums":
+        """The sums of the (collapsed) groups of classes."""
+        def by(v: np.ndarray) -> np.ndarray:
+            return np.bincount(group_of_class, weights=v, minlength=n_groups)
+        return ClassSums(total=by(self.total), kept=by(self.kept), n_kept=by(self.n_kept).round().astype(np.int64),
+                         n_total=by(self.n_total).round().astype(np.int64))
+
+
+def class_sums(w: np.ndarray, codes: np.ndarray, n_classes: int, total_mask: np.ndarray,
+               kept_mask: np.ndarray) -> ClassSums:
+    """Weight in and weight kept per class, and the numbers of cases (``codes`` >= 0 on ``total_mask``)."""
+    return ClassSums(total=np.bincount(codes[total_mask], weights=w[total_mask], minlength=n_classes),
+                     kept=np.bincount(codes[kept_mask], weights=w[kept_mask], minlength=n_classes),
+                     n_kept=np.bincount(codes[kept_mask], minlength=n_classes).astype(np.int64),
+                     n_total=np.bincount(codes[total_mask], minlength=n_classes).astype(np.int64))
+
+
+def collapse_classes(sums: ClassSums, labels: list[str], *, min_kept: int, max_factor: float, step: str
                      ) -> tuple[np.ndarray, list[CollapseRecord]]:
     """Merge failing classes with a neighbour until each has enough kept cases and a small factor.
 
-    Classes are kept in sorted order; a failing class (fewest kept cases first,
-    then largest factor) is merged with the adjacent class whose kept share of
-    weight is nearest its own, preferring a neighbour that shares all but the
-    last class variable.  Returns the collapsed group of every original class.
+    Works on the per-class sums alone (:func:`class_sums`), so the full file and the merged
+    partitions of a cluster collapse alike.  Classes are kept in sorted order; a failing class
+    (fewest kept cases first, then largest factor) is merged with the adjacent class whose kept
+    share of weight is nearest its own, preferring a neighbour that shares all but the last class
+    variable.  Returns the collapsed group of every original class.
     """
     k = len(labels)
     group_of_class = np.arange(k)
@@ -110,10 +166,8 @@ def collapse_classes(codes: np.ndarray, labels: list[str], w: np.ndarray, total_
     records: list[CollapseRecord] = []
     prefixes = [lab.rsplit(", ", 1)[0] if ", " in lab else "" for lab in labels]
     while len(members) > 1:
-        g = group_of_class[codes[total_mask | kept_mask]]
-        grp = np.full(len(codes), -1, dtype=np.intp)
-        grp[total_mask | kept_mask] = g
-        tot, kept, n_kept = _group_stats(np.where(grp < 0, 0, grp), len(members), w, total_mask, kept_mask)
+        g = sums.grouped(group_of_class, len(members))
+        tot, kept, n_kept = g.total, g.kept, g.n_kept
         with np.errstate(divide="ignore", invalid="ignore"):
             factor = np.where(kept > 0, tot / np.where(kept > 0, kept, 1.0), np.inf)
         has_cases = tot > 0
@@ -144,6 +198,60 @@ def collapse_classes(codes: np.ndarray, labels: list[str], w: np.ndarray, total_
         for gi, mem in enumerate(members):
             group_of_class[mem] = gi
     return group_of_class, records
+
+
+@dataclass(frozen=True, kw_only=True)
+class ClassFactors:
+    """What one adjustment step does to each class: the factor, the collapsed groups, the table."""
+
+    factor_of_class: np.ndarray
+    group_of_class: np.ndarray
+    table: pd.DataFrame
+    collapses: tuple[CollapseRecord, ...]
+
+
+def class_factors(sums: ClassSums, labels: list[str], *, step: str, min_kept: int = 1,
+                  max_factor: float = math.inf, group_of_class: np.ndarray | None = None,
+                  names: list[str] | None = None) -> ClassFactors:
+    """The factors of one class adjustment from its per-class sums (both engines call this).
+
+    Raises
+    ------
+    SkipwiseError
+        ``infeasible`` when a class has weight but no kept case even after
+        collapsing (or with a fixed structure).
+    """
+    records: list[CollapseRecord] = []
+    if group_of_class is None:
+        group_of_class, records = collapse_classes(sums, labels, min_kept=min_kept, max_factor=max_factor,
+                                                   step=step)
+    n_groups = int(group_of_class.max()) + 1 if len(group_of_class) else 1
+    if names is None:
+        names = [" + ".join(labels[c] for c in np.flatnonzero(group_of_class == gi)) for gi in range(n_groups)]
+    g = sums.grouped(group_of_class, n_groups) if len(group_of_class) else ClassSums(
+        total=np.zeros(1), kept=np.zeros(1), n_kept=np.zeros(1, np.int64), n_total=np.zeros(1, np.int64))
+    tot, kept = g.total, g.kept
+    bad = np.flatnonzero((tot > 0) & (kept <= 0))
+    if bad.size:
+        raise SkipwiseError([Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=step,
+                                     message=f"{step} class '{names[b]}' has weight {tot[b]:,.6g} but no case to "
+                                             f"carry it", hint="use fewer or broader classes")
+                             for b in bad])
+    factor = np.where(kept > 0, tot / np.where(kept > 0, kept, 1.0), 1.0)
+    table = pd.DataFrame({"step": step, "class": names, "cases": g.n_total, "kept": g.n_kept,
+                          "weight_in": tot, "weight_kept_in": kept, "factor": factor})
+    of_class = factor[group_of_class] if len(group_of_class) else np.ones(0)
+    return ClassFactors(factor_of_class=of_class, group_of_class=group_of_class, table=table,
+                        collapses=tuple(records))
+
+
+def apply_class_factors(w: np.ndarray, codes: np.ndarray, factor_of_class: np.ndarray, total_mask: np.ndarray,
+                        kept_mask: np.ndarray) -> np.ndarray:
+    """Row-local: dropped cases get 0, kept cases their class's factor, others keep their weight."""
+    out = np.array(w, dtype=float, copy=True)
+    out[total_mask & ~kept_mask] = 0.0
+    out[kept_mask] *= factor_of_class[codes[kept_mask]]
+    return out
 
 
 def class_adjust(w: np.ndarray, codes: np.ndarray, labels: list[str], total_mask: np.ndarray,
@@ -177,26 +285,8 @@ def class_adjust(w: np.ndarray, codes: np.ndarray, labels: list[str], total_mask
     Kalton, G. & Flores-Cervantes, I. (2003). Weighting methods. *Journal of
     Official Statistics* 19(2), 81–97.
     """
-    records: list[CollapseRecord] = []
-    if group_of_class is None:
-        group_of_class, records = collapse_classes(codes, labels, w, total_mask, kept_mask,
-                                                   min_kept=min_kept, max_factor=max_factor, step=step)
-    n_groups = int(group_of_class.max()) + 1 if len(group_of_class) else 1
-    if names is None:
-        names = [" + ".join(labels[c] for c in np.flatnonzero(group_of_class == gi)) for gi in range(n_groups)]
-    grp = np.where(codes >= 0, group_of_class[np.where(codes >= 0, codes, 0)], 0)
-    tot, kept, n_kept = _group_stats(grp, n_groups, w, total_mask, kept_mask)
-    bad = np.flatnonzero((tot > 0) & (kept <= 0))
-    if bad.size:
-        raise SkipwiseError([Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=step,
-                                     message=f"{step} class '{names[b]}' has weight {tot[b]:,.6g} but no case to "
-                                             f"carry it", hint="use fewer or broader classes")
-                             for b in bad])
-    factor = np.where(kept > 0, tot / np.where(kept > 0, kept, 1.0), 1.0)
-    out = np.array(w, dtype=float, copy=True)
-    out[total_mask & ~kept_mask] = 0.0
-    out[kept_mask] *= factor[grp[kept_mask]]
-    n_total = np.bincount(grp[total_mask], minlength=n_groups)
-    table = pd.DataFrame({"step": step, "class": names, "cases": n_total, "kept": n_kept,
-                          "weight_in": tot, "weight_kept_in": kept, "factor": factor})
-    return ClassAdjustment(weights=out, group_of_class=group_of_class, table=table, collapses=tuple(records))
+    sums = class_sums(np.asarray(w, dtype=float), codes, len(labels), total_mask, kept_mask)
+    cf = class_factors(sums, labels, step=step, min_kept=min_kept, max_factor=max_factor,
+                       group_of_class=group_of_class, names=names)
+    return ClassAdjustment(weights=apply_class_factors(w, codes, cf.factor_of_class, total_mask, kept_mask),
+                           group_of_class=cf.group_of_class, table=cf.table, collapses=cf.collapses)

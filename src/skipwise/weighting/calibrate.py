@@ -8,7 +8,7 @@ functions (:func:`rake`, :func:`poststratify`, :func:`calibrate_linear`,
 
 from __future__ import annotations
 
-from typing import Mapping
+from typing import Callable, Mapping
 
 import numpy as np
 import pandas as pd
@@ -16,13 +16,15 @@ import pandas as pd
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.weighting.base import starting_weights
 from skipwise.weighting.margins import (
-    EncodedMargin, Locator, encode_margins, max_margin_error, worst_margins_text,
+    EncodedMargin, Locator, encode_margins, max_margin_error_of_sums, worst_margins_text,
+    worst_margins_text_of_sums,
 )
 
 __all__ = [
     "rake", "poststratify", "calibrate_linear", "calibrate_logit",
     "rake_weights", "poststratify_weights", "linear_weights", "logit_weights",
     "design_matrix", "logit_g", "DEFAULT_TOL", "DEFAULT_MAX_ITER",
+    "rake_loop", "ratio_factors", "check_category_sums", "linear_sums", "linear_lambda",
 ]
 
 #: Default convergence tolerance: largest margin gap as a share of the population total.
@@ -30,20 +32,22 @@ DEFAULT_TOL = 1e-10
 DEFAULT_MAX_ITER = 1000
 
 
-def _not_converged(method: str, iterations: int, w: np.ndarray, enc: list[EncodedMargin],
-                   code: ProblemCode = ProblemCode.NOT_CONVERGED, hint: str | None = None) -> SkipwiseError:
+def _not_converged(method: str, iterations: int, w: np.ndarray | None, enc: list[EncodedMargin],
+                   code: ProblemCode = ProblemCode.NOT_CONVERGED, hint: str | None = None,
+                   sums: list[np.ndarray] | None = None) -> SkipwiseError:
+    worst = worst_margins_text(w, enc) if sums is None else worst_margins_text_of_sums(sums, enc)
     return SkipwiseError(Problem(
         code=code, category=Category.DATA, item=enc[0].variable,
         message=f"{method} did not reach the margins after {iterations} iterations "
-                f"(worst margins: {worst_margins_text(w, enc)})",
+                f"(worst margins: {worst})",
         hint=hint or "collapse sparse categories, drop a margin, or raise max_iter/tolerance"))
 
 
-def _check_category_weight(d: np.ndarray, enc: list[EncodedMargin]) -> None:
+def check_category_sums(sums: list[np.ndarray], enc: list[EncodedMargin]) -> None:
+    """Refuse a category with a target but no starting weight (from each margin's sums)."""
     problems = []
-    for m in enc:
-        sums = m.sums(d)
-        for lab, s, t in zip(m.labels, sums, m.targets):
+    for m, msums in zip(enc, sums):
+        for lab, s, t in zip(m.labels, msums, m.targets):
             if s <= 0 and t > 0:
                 problems.append(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=m.variable,
                                         message=f"category {lab!r} of '{m.variable}' has a target of {t:g} "
@@ -51,6 +55,41 @@ def _check_category_weight(d: np.ndarray, enc: list[EncodedMargin]) -> None:
                                         hint="collapse it with a neighbouring category"))
     if problems:
         raise SkipwiseError(problems)
+
+
+def _check_category_weight(d: np.ndarray, enc: list[EncodedMargin]) -> None:
+    check_category_sums([m.sums(d) for m in enc], enc)
+
+
+def ratio_factors(sums: np.ndarray, targets: np.ndarray) -> np.ndarray:
+    """Each category's factor ``target / achieved`` (0 where nothing is achieved): one raking or
+    post-stratification step on a margin's sums."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(sums > 0, targets / np.where(sums > 0, sums, 1.0), 0.0)
+
+
+def rake_loop(enc: list[EncodedMargin], sums: Callable[[int], np.ndarray],
+              scale: Callable[[int, np.ndarray], None], all_sums: Callable[[], list[np.ndarray]], *,
+              tol: float = DEFAULT_TOL, max_iter: int = DEFAULT_MAX_ITER) -> int:
+    """The raking iteration on margin sums alone; the weights live wherever ``sums``/``scale`` keep them.
+
+    ``sums(j)`` gives margin j's weighted totals of the current weights, ``scale(j, f)`` multiplies
+    every case by the factor of its category of margin j, ``all_sums()`` gives every margin's
+    totals.  The in-memory engine and the cluster engine (partial sums merged on the client) both
+    run this one loop.  Returns the number of full cycles.
+    """
+    limit = tol * enc[0].total
+    for it in range(1, max_iter + 1):
+        worst = 0.0
+        for j, m in enumerate(enc):
+            s = sums(j)
+            worst = max(worst, float(np.max(np.abs(s - m.targets))))
+            scale(j, ratio_factors(s, m.targets))
+        if worst <= limit:
+            final = all_sums()
+            if max_margin_error_of_sums(final, enc) <= tol:
+                return it
+    raise _not_converged("raking", max_iter, None, enc, sums=all_sums())
 
 
 def rake_weights(d: np.ndarray, enc: list[EncodedMargin], *, tol: float = DEFAULT_TOL,
@@ -69,18 +108,13 @@ def rake_weights(d: np.ndarray, enc: list[EncodedMargin], *, tol: float = DEFAUL
     """
     _check_category_weight(d, enc)
     w = np.array(d, dtype=float, copy=True)
-    limit = tol * enc[0].total
-    for it in range(1, max_iter + 1):
-        worst = 0.0
-        for m in enc:
-            s = m.sums(w)
-            worst = max(worst, float(np.max(np.abs(s - m.targets))))
-            with np.errstate(divide="ignore", invalid="ignore"):
-                f = np.where(s > 0, m.targets / np.where(s > 0, s, 1.0), 0.0)
-            w *= f[m.codes]
-        if worst <= limit and max_margin_error(w, enc) <= tol:
-            return w, it
-    raise _not_converged("raking", max_iter, w, enc)
+
+    def scale(j: int, f: np.ndarray) -> None:
+        w[:] = w * f[enc[j].codes]
+
+    it = rake_loop(enc, lambda j: enc[j].sums(w), scale, lambda: [m.sums(w) for m in enc], tol=tol,
+                   max_iter=max_iter)
+    return w, it
 
 
 def poststratify_weights(d: np.ndarray, margin: EncodedMargin) -> np.ndarray:
@@ -91,10 +125,9 @@ def poststratify_weights(d: np.ndarray, margin: EncodedMargin) -> np.ndarray:
     Holt, D. & Smith, T. M. F. (1979). Post stratification. *Journal of the
     Royal Statistical Society A* 142(1), 33–46.
     """
-    _check_category_weight(d, [margin])
     s = margin.sums(d)
-    f = np.where(s > 0, margin.targets / np.where(s > 0, s, 1.0), 0.0)
-    return d * f[margin.codes]
+    check_category_sums([s], [margin])
+    return d * ratio_factors(s, margin.targets)[margin.codes]
 
 
 def design_matrix(enc: list[EncodedMargin], numeric: Mapping[str, tuple[np.ndarray, float]] | None = None
@@ -142,8 +175,17 @@ def linear_weights(d: np.ndarray, x: np.ndarray, t: np.ndarray) -> np.ndarray:
     Deville, J.-C. & Särndal, C.-E. (1992). Calibration estimators in survey
     sampling. *Journal of the American Statistical Association* 87(418), 376–382.
     """
-    lam = _solve(x.T @ (d[:, None] * x), t - x.T @ d, "calibration")
-    return d * (1.0 + x @ lam)
+    return d * (1.0 + x @ linear_lambda(*linear_sums(d, x), t))
+
+
+def linear_sums(d: np.ndarray, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """``Σ d x xᵀ`` and ``Σ d x``: the row-local, mergeable sums of linear calibration."""
+    return x.T @ (d[:, None] * x), x.T @ d
+
+
+def linear_lambda(xdx: np.ndarray, xd: np.ndarray, t: np.ndarray) -> np.ndarray:
+    """``λ = (Σ d x xᵀ)⁻¹ (t − Σ d x)`` from the merged sums; the weights are ``d (1 + xᵀλ)``."""
+    return _solve(xdx, t - xd, "calibration")
 
 
 def logit_g(u: np.ndarray, lower: float, upper: float) -> tuple[np.ndarray, np.ndarray]:

@@ -22,7 +22,7 @@ from skipwise.weighting.plan import WeightingPlan
 from skipwise.weighting.propensity import PropensityFit, fit_propensity, propensity_classes, propensity_design
 from skipwise.weighting.trim import TrimResult, trim_weights
 
-__all__ = ["Prepared", "ChainResult", "Structure", "prepare", "run_chain", "chain_weights", "outcome_categories",
+__all__ = ["disposition_outcomes", "disposition_problems", "respondent_categories", "Prepared", "ChainResult", "Structure", "prepare", "run_chain", "chain_weights", "outcome_categories",
            "STAGES"]
 
 ELIGIBLE = ("I", "P", "R", "NC", "O")
@@ -86,24 +86,11 @@ def outcome_categories(frame: pd.DataFrame, plan: WeightingPlan, share_answered:
         raise SkipwiseError(Problem(code=ProblemCode.MISSING_COLUMN, item=spec.column,
                                     message=f"disposition column '{spec.column}' is not in the data",
                                     hint=did_you_mean(spec.column, map(str, frame.columns)), **loc))
-    col = frame[spec.column]
-    codes, uniques = pd.factorize(col, use_na_sentinel=True)
-    mapped = [spec.codes.get(category_label(u)) for u in uniques]
-    problems = []
-    if (codes < 0).any():
-        problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=spec.column,
-                                message=f"{int((codes < 0).sum())} case(s) have no disposition", **loc))
-    per_unique = np.bincount(codes[codes >= 0], minlength=len(uniques))
-    for u, m, n_u in zip(uniques, mapped, per_unique):
-        if m is None:
-            problems.append(Problem(code=ProblemCode.UNDECLARED_VALUE, category=Category.DATA, item=spec.column,
-                                    message=f"disposition {category_label(u)!r} ({n_u} case(s)) "
-                                            f"is not mapped to an outcome category",
-                                    hint="add it under dispositions.categories", file=plan.file,
-                                    line=plan.line("dispositions", "categories")))
+    outcomes, no_disposition, unmapped = disposition_outcomes(frame[spec.column], plan)
+    problems = disposition_problems(plan, no_disposition, unmapped)
     if problems:
         raise SkipwiseError(problems)
-    out = pd.Series(np.asarray(mapped, dtype=object)[codes], index=frame.index, dtype=object, name="outcome")
+    out = pd.Series(outcomes, index=frame.index, dtype=object, name="outcome")
     if spec.split is not None:
         if share_answered is None:
             raise SkipwiseError(Problem(code=ProblemCode.MISSING_KEY, category=Category.USAGE,
@@ -120,11 +107,45 @@ def outcome_categories(frame: pd.DataFrame, plan: WeightingPlan, share_answered:
     return out
 
 
+def disposition_outcomes(col: pd.Series, plan: WeightingPlan) -> tuple[np.ndarray, int, dict[str, int]]:
+    """Row-local: each case's outcome category by the plan's mapping (None: unmapped or missing),
+    the number of cases without a disposition and the cases of every unmapped disposition label."""
+    codes, uniques = pd.factorize(col, use_na_sentinel=True)
+    mapped = [plan.dispositions.codes.get(category_label(u)) for u in uniques]
+    per_unique = np.bincount(codes[codes >= 0], minlength=len(uniques))
+    unmapped: dict[str, int] = {}
+    for u, m, n_u in zip(uniques, mapped, per_unique):
+        if m is None:
+            unmapped[category_label(u)] = unmapped.get(category_label(u), 0) + int(n_u)
+    return np.asarray(mapped + [None], dtype=object)[codes], int((codes < 0).sum()), unmapped
+
+
+def disposition_problems(plan: WeightingPlan, no_disposition: int, unmapped: dict[str, int]) -> list[Problem]:
+    """Cases without a disposition and dispositions the plan does not map (from merged counts)."""
+    spec = plan.dispositions
+    loc = {"file": plan.file, "line": plan.line("dispositions", "column")}
+    problems = []
+    if no_disposition:
+        problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=spec.column,
+                                message=f"{no_disposition} case(s) have no disposition", **loc))
+    for label, n_u in unmapped.items():
+        problems.append(Problem(code=ProblemCode.UNDECLARED_VALUE, category=Category.DATA, item=spec.column,
+                                message=f"disposition {label!r} ({n_u} case(s)) is not mapped to an outcome category",
+                                hint="add it under dispositions.categories", file=plan.file,
+                                line=plan.line("dispositions", "categories")))
+    return problems
+
+
+def respondent_categories(plan: WeightingPlan) -> tuple[str, ...]:
+    """The outcome categories that count as respondents."""
+    return ("I", "P") if plan.dispositions.partials_respond else ("I",)
+
+
 def prepare(frame: pd.DataFrame, plan: WeightingPlan, *, share_answered: pd.Series | None = None) -> Prepared:
     """Check the data against the plan and encode classes and margins once."""
     outcome = outcome_categories(frame, plan, share_answered)
     o = outcome.to_numpy()
-    resp_cats = ("I", "P") if plan.dispositions.partials_respond else ("I",)
+    resp_cats = respondent_categories(plan)
     respondent = np.isin(o, resp_cats)
     eligible = np.isin(o, ELIGIBLE)
     unknown = np.isin(o, UNKNOWN)

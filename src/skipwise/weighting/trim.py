@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from typing import Callable
 
@@ -9,7 +10,8 @@ import numpy as np
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
-__all__ = ["TrimResult", "trim_cap", "trim_weights"]
+__all__ = ["TrimResult", "TrimStart", "trim_cap", "trim_weights", "trim_start", "merge_starts", "check_cap",
+           "trim_loop", "spread_factor"]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -47,15 +49,71 @@ def trim_cap(w: np.ndarray, *, median_multiple: float | None = None, percentile:
     return float(np.percentile(pos, percentile)), f"{percentile:g}th percentile"
 
 
+def spread_factor(total: float, cap: float, n_at_cap: int, free: float) -> float | None:
+    """Factor of the cases below the cap that gives them the weight cut off the capped cases
+    (None when every positive case is at the cap: nothing is left to carry the excess)."""
+    if free <= 0:
+        return None
+    return (total - cap * n_at_cap) / free
+
+
 def _spread_excess(total: float, cap: float) -> Callable[[np.ndarray], np.ndarray]:
     """Give the weight cut off the capped cases to the cases below the cap, pro rata."""
     def spread(v: np.ndarray) -> np.ndarray:
         at_cap = v >= cap
-        free = float(v[~at_cap].sum())
-        if free <= 0:  # every positive case is at the cap: nothing left to carry the excess
-            return v
-        return np.where(at_cap, v, v * ((total - cap * int(at_cap.sum())) / free))
+        f = spread_factor(total, cap, int(at_cap.sum()), float(v[~at_cap].sum()))
+        return v if f is None else np.where(at_cap, v, v * f)
     return spread
+
+
+@dataclass(frozen=True, kw_only=True)
+class TrimStart:
+    """What trimming needs to know of the weights entering it (mergeable sums and a maximum)."""
+
+    total: float
+    positive: int
+    max_before: float
+    capped: int
+    removed: float
+
+
+def trim_start(w: np.ndarray, cap: float) -> TrimStart:
+    """Row-local :class:`TrimStart` of ``w`` under ``cap`` (partitions add them up with :func:`merge_starts`)."""
+    return TrimStart(total=float(w.sum()), positive=int((w > 0).sum()), max_before=float(w.max()) if len(w) else 0.0,
+                     capped=int((w > cap).sum()), removed=float(np.sum(np.maximum(w - cap, 0.0))))
+
+
+def merge_starts(parts: list[TrimStart]) -> TrimStart:
+    return TrimStart(total=sum(p.total for p in parts), positive=sum(p.positive for p in parts),
+                     max_before=max(p.max_before for p in parts), capped=sum(p.capped for p in parts),
+                     removed=sum(p.removed for p in parts))
+
+
+def check_cap(start: TrimStart, cap: float) -> None:
+    """Refuse a cap that cannot carry the total weight."""
+    if cap * start.positive < start.total * (1 - 1e-12):
+        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item="trimming",
+                                    message=f"a cap of {cap:,.6g} on {start.positive} case(s) cannot carry the "
+                                            f"total weight {start.total:,.6g}", hint="raise the cap"))
+
+
+def trim_loop(start: TrimStart, cap: float, rule: str, trim_round: Callable[[], float], *, tol: float = 1e-6,
+              max_iter: int = 50) -> TrimResult:
+    """The trimming iteration: ``trim_round()`` caps the weights, re-calibrates or spreads the excess,
+    and returns the largest weight; done when it is at most ``cap (1 + tol)``.  Both engines run
+    this loop; the weights live wherever ``trim_round`` keeps them (``weights`` of the result is
+    left empty here)."""
+    largest = start.max_before
+    for it in range(1, max_iter + 1):
+        largest = trim_round()
+        if largest <= cap * (1 + tol):
+            return TrimResult(weights=np.zeros(0), cap=cap, rule=rule, iterations=it, cases_capped=start.capped,
+                              weight_removed_first_pass=start.removed, max_before=start.max_before,
+                              max_after=float(largest))
+    raise SkipwiseError(Problem(code=ProblemCode.NOT_CONVERGED, category=Category.DATA, item="trimming",
+                                message=f"trimming and re-calibration did not settle after {max_iter} rounds: "
+                                        f"largest weight {largest:,.6g} vs cap {cap:,.6g}",
+                                hint="raise the cap, loosen the tolerance or raise max_iter"))
 
 
 def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percentile: float | None = None,
@@ -101,24 +159,15 @@ def trim_weights(w: np.ndarray, *, median_multiple: float | None = None, percent
     rule = "given cap"
     if cap is None:
         cap, rule = trim_cap(w, median_multiple=median_multiple, percentile=percentile)
-    pos = w > 0
-    total = float(w.sum())
-    if cap * pos.sum() < total * (1 - 1e-12):
-        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item="trimming",
-                                    message=f"a cap of {cap:,.6g} on {int(pos.sum())} case(s) cannot carry the "
-                                            f"total weight {total:,.6g}", hint="raise the cap"))
-    fix = recalibrate or _spread_excess(total, cap)
-    max_before = float(w.max())
-    capped_first = int((w > cap).sum())
-    removed = float(np.sum(np.maximum(w - cap, 0.0)))
+    start = trim_start(w, cap)
+    check_cap(start, cap)
+    fix = recalibrate or _spread_excess(start.total, cap)
     cur = w
-    for it in range(1, max_iter + 1):
+
+    def trim_round() -> float:
+        nonlocal cur
         cur = fix(np.minimum(cur, cap))
-        if cur.max() <= cap * (1 + tol):
-            return TrimResult(weights=cur, cap=cap, rule=rule, iterations=it, cases_capped=capped_first,
-                              weight_removed_first_pass=removed, max_before=max_before,
-                              max_after=float(cur.max()))
-    raise SkipwiseError(Problem(code=ProblemCode.NOT_CONVERGED, category=Category.DATA, item="trimming",
-                                message=f"trimming and re-calibration did not settle after {max_iter} rounds: "
-                                        f"largest weight {cur.max():,.6g} vs cap {cap:,.6g}",
-                                hint="raise the cap, loosen the tolerance or raise max_iter"))
+        return float(cur.max())
+
+    res = trim_loop(start, cap, rule, trim_round, tol=tol, max_iter=max_iter)
+    return dataclasses.replace(res, weights=cur)
