@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import contextlib
 from pathlib import Path
 from typing import Annotated, Optional
 
 import typer
 
 from skipwise.cli.app import app, fail
+from skipwise.cli.engine import PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 
 HELP = (
@@ -18,8 +20,13 @@ HELP = (
     "Parquet beside it, plus a diagnostics workbook (*_weights.xlsx).\n\n"
     "Caution: nonresponse weighting does not repair data missing not at random (MNAR). The output "
     "holds respondents' data — follow your organization's data protection rules and methodology "
-    "standards."
+    "standards.\n\n"
+    "With --engine dask the weighting runs on a Dask cluster: DATA may be a Parquet file, folder or glob, "
+    "OUT names a folder that receives one Parquet part per input partition (the same columns as the "
+    "in-memory output), and every step is a pass of partial sums over the partitions (docs/scale.md)."
 )
+ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': weigh the partitions on a Dask "
+               "cluster; DATA may be a Parquet file, folder or glob and OUT names a folder of Parquet parts.")
 
 
 @app.command("weigh", help=HELP)
@@ -34,13 +41,23 @@ def weigh_command(
     workbook: Annotated[Optional[Path], typer.Option(
         "--workbook", help="Diagnostics workbook path (default: the plan's output.workbook, else OUT_weights.xlsx).")] = None,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace existing output files.")] = False,
+    engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
+    scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
+    partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
+    if engine is Engine.DASK:
+        try:
+            _weigh_with_dask(data, plan, out, questionnaire=questionnaire, workbook=workbook, overwrite=overwrite,
+                             scheduler=scheduler, partition_rows=partition_rows)
+        except SkipwiseError as err:
+            fail(err)
+        return
     try:
         from skipwise.io import read_survey, write_survey
         from skipwise.io.atomic import check_writable
         from skipwise.weighting.plan import load_plan
         from skipwise.weighting.weigh import CAUTIONS
-        from skipwise.weighting.workbook import summary_rows, write_workbook
+        from skipwise.weighting.workbook import write_workbook
 
         from skipwise.io.readers import output_format_of
 
@@ -74,6 +91,15 @@ def weigh_command(
     except SkipwiseError as err:
         fail(err)
         return
+    _echo_result(res)
+    typer.echo(f"wrote {out}" + (f", {parquet}" if parquet != out else "") + f" and {book}")
+    for text in CAUTIONS[:2]:
+        typer.echo(f"caution: {text}")
+
+
+def _echo_result(res) -> None:
+    from skipwise.weighting.workbook import summary_rows
+
     for name, value in summary_rows(res):
         shown = f"{value:,.4f}" if isinstance(value, float) else str(value)
         typer.echo(f"{name:>34}: {shown}")
@@ -86,7 +112,49 @@ def weigh_command(
         for r in res.estimates.itertuples():
             what = r.variable + (f"={r.category}" if r.category else "")
             typer.echo(f"  {what:<30} {r.estimate:12.4f}  se {r.se:.4f}  n {r.n}")
-    typer.echo(f"wrote {out}" + (f", {parquet}" if parquet != out else "") + f" and {book}")
+
+
+def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Optional[Path], workbook: Optional[Path],
+                     overwrite: bool, scheduler: Optional[str], partition_rows: int) -> None:
+    """``skipwise weigh --engine dask``: Parquet parts in, weighted parts and the workbook out."""
+    from skipwise.errors import Category, Problem, ProblemCode
+    from skipwise.io.atomic import check_writable
+    from skipwise.scale import dask_client
+    from skipwise.scale.sources import parquet_parts
+    from skipwise.scale.weigh_replicates import refuse_unsupported, weigh_on_cluster
+    from skipwise.weighting.plan import load_plan
+    from skipwise.weighting.weigh import CAUTIONS
+    from skipwise.weighting.workbook import write_workbook
+
+    def usage(message: str, hint: str) -> SkipwiseError:
+        return SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(out),
+                                     message=message, hint=hint))
+
+    if out.suffix:
+        raise usage("with the dask engine OUT names a folder (it receives one Parquet part per partition)",
+                    "leave out the suffix, e.g. -o weighted, or use --engine memory for a single file")
+    if questionnaire is not None:
+        raise usage("the dask engine does not use a questionnaire in weigh (no interview split, no estimates)",
+                    "leave out -q, or use --engine memory")
+    spec = load_plan(plan)
+    refuse_unsupported(spec)
+    book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.name + "_weights.xlsx"))
+    if book.suffix.lower() != ".xlsx":
+        raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
+    check_writable(book, overwrite=overwrite, inputs=[data, plan])
+    parts = parquet_parts(data, partition_rows)
+    with dask_client(scheduler) as client:
+        bar: dict = {}
+        with contextlib.ExitStack() as stack:
+            def on_design(count: int) -> None:
+                bar["bar"] = stack.enter_context(typer.progressbar(length=count, label="    replicates"))
+
+            res = weigh_on_cluster(data, spec, out, client=client, parts=parts, overwrite=overwrite,
+                                   note=lambda text: typer.echo(f"note: {text}"), on_design=on_design,
+                                   progress=lambda _done: bar["bar"].update(1))
+    write_workbook(res, book, overwrite=overwrite)
+    typer.echo(f"weighted {res.totals['cases']:,} cases in {len(parts):,} partitions")
+    _echo_result(res)
+    typer.echo(f"wrote {out}/ ({len(parts):,} parts) and {book}")
     for text in CAUTIONS[:2]:
         typer.echo(f"caution: {text}")
-

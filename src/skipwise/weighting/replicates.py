@@ -11,6 +11,7 @@ rescaling factor λ_h = √(1 − f_h).
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from typing import Callable
 
@@ -21,7 +22,8 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_y
 from skipwise.weighting.margins import category_label
 from skipwise.weighting.pipeline import Prepared, Structure, run_chain
 
-__all__ = ["ReplicateDesign", "jackknife_design", "bootstrap_design", "replicate_variance",
+__all__ = ["ReplicateDesign", "jackknife_design", "bootstrap_design", "jackknife_units", "bootstrap_units",
+           "stratum_fractions", "unit_check_problems", "replicate_variance",
            "run_replicates", "weighted_estimates", "replicate_standard_errors", "MAX_REPLICATES"]
 
 #: Largest number of replicates built (memory: cases × replicates floats).
@@ -43,6 +45,7 @@ class ReplicateDesign:
     coef: np.ndarray
     group: np.ndarray
     fpc: bool = False
+    unit_factors: np.ndarray | None = None   # PSU x replicate (the cases' factors are its rows by PSU)
 
     @property
     def count(self) -> int:
@@ -65,7 +68,8 @@ class ReplicateDesign:
                 "Variance: 1/R Σ_r (θ_r − θ̄)².", f"Variance: {fpc}.")
 
 
-def _units(frame: pd.DataFrame, psu: str | None, strata: str | None) -> tuple[np.ndarray, np.ndarray]:
+def unit_check_problems(frame: pd.DataFrame, psu: str | None, strata: str | None) -> list[Problem]:
+    """PSU and stratum columns that are absent or have missing values (row-local)."""
     problems = []
     for col, what in ((psu, "PSU"), (strata, "stratum")):
         if col is not None and col not in frame.columns:
@@ -75,6 +79,11 @@ def _units(frame: pd.DataFrame, psu: str | None, strata: str | None) -> tuple[np
         elif col is not None and frame[col].isna().any():
             problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=col,
                                     message=f"{int(frame[col].isna().sum())} case(s) have no {what}"))
+    return problems
+
+
+def _units(frame: pd.DataFrame, psu: str | None, strata: str | None) -> tuple[np.ndarray, np.ndarray]:
+    problems = unit_check_problems(frame, psu, strata)
     if problems:
         raise SkipwiseError(problems)
     n = len(frame)
@@ -107,23 +116,29 @@ def _fractions(fraction: np.ndarray | None, stratum: np.ndarray, n_strata: int, 
     if fraction is None:
         return np.zeros(n_strata)
     f = np.asarray(fraction, dtype=float)
+    bad = int((np.isnan(f) | (f < 0) | (f >= 1)).sum())
+    lo = np.full(n_strata, np.inf)
+    hi = np.full(n_strata, -np.inf)
+    if not bad:
+        np.minimum.at(lo, stratum, f)
+        np.maximum.at(hi, stratum, f)
+    return stratum_fractions(lo, hi, bad, what)
+
+
+def stratum_fractions(lo: np.ndarray, hi: np.ndarray, bad: int, what: str = "fraction") -> np.ndarray:
+    """f_h from each stratum's smallest and largest fraction (``bad``: cases outside [0, 1))."""
     problems = []
-    if np.isnan(f).any() or (f < 0).any() or (f >= 1).any():
+    if bad:
         problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=what,
                                 message="sampling fractions must lie in [0, 1) for every case",
                                 hint="give each stratum's share of its units that was sampled"))
+    elif (hi - lo > 1e-12 * np.maximum(hi, 1)).any():
+        problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=what,
+                                message=f"{int((hi - lo > 1e-12).sum())} stratum(s) have more than one "
+                                        "sampling fraction",
+                                hint="the finite population correction needs one fraction per stratum"))
     else:
-        lo = np.full(n_strata, np.inf)
-        hi = np.full(n_strata, -np.inf)
-        np.minimum.at(lo, stratum, f)
-        np.maximum.at(hi, stratum, f)
-        if (hi - lo > 1e-12 * np.maximum(hi, 1)).any():
-            problems.append(Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item=what,
-                                    message=f"{int((hi - lo > 1e-12).sum())} stratum(s) have more than one "
-                                            "sampling fraction",
-                                    hint="the finite population correction needs one fraction per stratum"))
-        else:
-            return hi
+        return hi
     raise SkipwiseError(problems)
 
 
@@ -148,23 +163,31 @@ def jackknife_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
     unit, stratum = _units(frame, psu, strata)
     of_unit = _psu_strata(unit, stratum)
     f_h = _fractions(fraction, stratum, int(stratum.max()) + 1 if len(stratum) else 1, "fraction")
+    design = jackknife_units(of_unit, f_h, stratified=strata is not None, item=strata or psu,
+                             fpc=fraction is not None)
+    return dataclasses.replace(design, factors=design.unit_factors[unit])
+
+
+def jackknife_units(of_unit: np.ndarray, f_h: np.ndarray, *, stratified: bool, item: str | None = None,
+                    fpc: bool = False) -> ReplicateDesign:
+    """The jackknife's PSU x replicate factor table (``of_unit``: each PSU's stratum); ``factors``
+    is left empty (the cases' factors are ``unit_factors[unit]``)."""
     n_units = len(of_unit)
     _check_count(n_units)
     n_h = np.bincount(of_unit)
     if (n_h < 2).any():
         bad = np.flatnonzero(n_h < 2)
-        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=strata or psu,
+        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=item,
                                     message=f"{len(bad)} stratum(s) have a single PSU; the jackknife needs two",
                                     hint="collapse single-PSU strata with a neighbouring stratum"))
     # unit-by-replicate factor matrix: replicate r deletes unit r
     same = of_unit[:, None] == of_unit[None, :]
     f_units = np.where(same, (n_h / (n_h - 1.0))[of_unit][None, :], 1.0)
     np.fill_diagonal(f_units, 0.0)
-    stratified = strata is not None
     coef = ((1.0 - f_h) * (n_h - 1.0) / n_h)[of_unit]
-    return ReplicateDesign(method="JKn" if stratified else "JK1", factors=f_units[unit], coef=coef,
-                           group=of_unit if stratified else np.zeros(n_units, dtype=np.intp),
-                           fpc=fraction is not None)
+    return ReplicateDesign(method="JKn" if stratified else "JK1", factors=np.zeros((0, n_units)), coef=coef,
+                           group=of_unit if stratified else np.zeros(n_units, dtype=np.intp), fpc=fpc,
+                           unit_factors=f_units)
 
 
 def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | None = None, *,
@@ -186,12 +209,23 @@ def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
     _check_count(count)
     unit, stratum = _units(frame, psu, strata)
     of_unit = _psu_strata(unit, stratum)
+    n_strata = int(of_unit.max()) + 1 if len(of_unit) else 1
+    f_h = _fractions(fraction, stratum, n_strata, "fraction")
+    design = bootstrap_units(of_unit, f_h, count=count, seed=seed, item=strata or psu, fpc=fraction is not None)
+    return dataclasses.replace(design, factors=design.unit_factors[unit])
+
+
+def bootstrap_units(of_unit: np.ndarray, f_h: np.ndarray, *, count: int, seed: int, item: str | None = None,
+                    fpc: bool = False) -> ReplicateDesign:
+    """The Rao–Wu bootstrap's PSU x replicate factor table, drawn with ``numpy.random.default_rng(seed)``
+    stratum by stratum; ``factors`` is left empty (the cases' factors are ``unit_factors[unit]``)."""
+    _check_count(count)
     n_h = np.bincount(of_unit)
     if (n_h < 2).any():
-        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=strata or psu,
+        raise SkipwiseError(Problem(code=ProblemCode.INFEASIBLE, category=Category.DATA, item=item,
                                     message="a stratum has a single PSU; the bootstrap needs two",
                                     hint="collapse single-PSU strata with a neighbouring stratum"))
-    lam = np.sqrt(1.0 - _fractions(fraction, stratum, len(n_h), "fraction"))
+    lam = np.sqrt(1.0 - f_h[:len(n_h)])
     rng = np.random.default_rng(seed)
     f_units = np.zeros((len(of_unit), count))
     for h, nh in enumerate(n_h):  # loop over strata, not cases
@@ -200,8 +234,8 @@ def bootstrap_design(frame: pd.DataFrame, psu: str | None = None, strata: str | 
         counts = np.zeros((count, nh))
         np.add.at(counts, (np.repeat(np.arange(count), nh - 1), draws.ravel()), 1.0)
         f_units[members] = (1.0 - lam[h] + lam[h] * counts * (nh / (nh - 1.0))).T
-    return ReplicateDesign(method="bootstrap", factors=f_units[unit], coef=np.full(count, 1.0 / count),
-                           group=np.zeros(count, dtype=np.intp), fpc=fraction is not None)
+    return ReplicateDesign(method="bootstrap", factors=np.zeros((0, count)), coef=np.full(count, 1.0 / count),
+                           group=np.zeros(count, dtype=np.intp), fpc=fpc, unit_factors=f_units)
 
 
 def replicate_variance(theta_r: np.ndarray, design: ReplicateDesign) -> np.ndarray:

@@ -54,6 +54,14 @@ class WeighResult:
     def final(self) -> np.ndarray:
         return self.chain.final
 
+    @property
+    def totals(self) -> dict[str, float]:
+        """Cases by role and the sums of base and final weights (what the summary shows)."""
+        prep = self.prepared
+        return {"cases": len(prep.frame), "eligible": int(prep.eligible.sum()), "unknown": int(prep.unknown.sum()),
+                "respondents": int(prep.respondent.sum()), "base_sum": float(prep.base.sum()),
+                "final_sum": float(self.final.sum())}
+
 
 def _stage_summary(chain: ChainResult) -> pd.DataFrame:
     rows = []

@@ -43,15 +43,14 @@ _STAGE_WORDS = {"base": "base (design) weights", "eligibility": "after the eligi
 
 def summary_rows(res: WeighResult) -> list[tuple[str, object]]:
     """Key figures, in the order the command line prints them."""
-    prep = res.prepared
-    final = res.final
+    t = res.totals
     rows: list[tuple[str, object]] = [
-        ("cases in file", len(prep.frame)),
-        ("eligible cases", int(prep.eligible.sum())),
-        ("unknown-eligibility cases", int(prep.unknown.sum())),
-        ("respondents (weighted cases)", int(prep.respondent.sum())),
-        ("sum of base weights", float(prep.base.sum())),
-        ("sum of final weights", float(final.sum())),
+        ("cases in file", t["cases"]),
+        ("eligible cases", t["eligible"]),
+        ("unknown-eligibility cases", t["unknown"]),
+        ("respondents (weighted cases)", t["respondents"]),
+        ("sum of base weights", t["base_sum"]),
+        ("sum of final weights", t["final_sum"]),
     ]
     last = res.stage_summary.iloc[-1]
     rows += [("Kish design effect (final)", float(last["kish_deff"])),

@@ -1,0 +1,246 @@
+"""Replicates, the propensity model and the weighted parts of ``skipwise weigh --engine dask``.
+
+The PSU x replicate factor table is built on the client by the in-memory
+engine's own builders (:func:`~skipwise.weighting.replicates.jackknife_units`,
+:func:`~skipwise.weighting.replicates.bootstrap_units`: the same PSU order, the
+same ``numpy.random.default_rng(seed)`` draws), and each partition takes its
+cases' factors by their global PSU code, so PSUs may span partitions.  The
+response propensity model gathers the eligible cases' covariates when they fit
+the memory budget.  :func:`weigh_on_cluster` runs the whole job and publishes
+the weighted parts.
+"""
+
+from __future__ import annotations
+
+import json
+from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
+from skipwise.scale import weigh_parts as wp
+from skipwise.weighting.replicates import bootstrap_units, jackknife_units, stratum_fractions
+
+__all__ = ["design_of", "propensity_step", "weigh_on_cluster", "refuse_unsupported", "REPLICATE_THREADS"]
+
+#: Replicates whose passes the client keeps in flight at once.
+REPLICATE_THREADS = 8
+
+
+def design_of(plan, census: list) -> tuple[object, list]:
+    """The replicate design (PSU x replicate table) and each partition's local → global PSU codes."""
+    r = plan.replicates
+    if r is None:
+        return None, [None] * len(census)
+    union = pd.concat([c.units for c in census], ignore_index=True).drop_duplicates(ignore_index=True)
+    if r.strata is None and r.psu is not None:
+        union = union.iloc[np.argsort(pd.factorize(union["psu"], sort=True)[0], kind="stable")]
+        union = union.reset_index(drop=True)
+    index = pd.MultiIndex.from_frame(union)
+    unit_map = [index.get_indexer(pd.MultiIndex.from_frame(c.units)).astype(np.intp) for c in census]
+    strata_codes, strata_values = pd.factorize(union["stratum"], sort=True)
+    of_unit = strata_codes.astype(np.intp)
+    n_strata = len(strata_values)
+    f_h = np.zeros(n_strata)
+    if r.fpc:
+        col = r.fraction or plan.base_probability
+        if any(c.fraction is None for c in census):
+            raise SkipwiseError(Problem(code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=col,
+                                        message=f"sampling-fraction column '{col}' (replicates.fpc) is not in the data"))
+        merged = pd.concat([c.fraction for c in census]).groupby("stratum", sort=True).agg(
+            lo=("lo", "min"), hi=("hi", "max"), bad=("bad", "sum"))
+        merged = merged.reindex(strata_values)
+        f_h = stratum_fractions(merged["lo"].to_numpy(float), merged["hi"].to_numpy(float), int(merged["bad"].sum()))
+    if r.method == "jackknife":
+        design = jackknife_units(of_unit, f_h, stratified=r.strata is not None, item=r.strata or r.psu, fpc=r.fpc)
+    else:
+        design = bootstrap_units(of_unit, f_h, count=r.count, seed=r.seed, item=r.strata or r.psu, fpc=r.fpc)
+    return design, unit_map
+
+
+def refuse_unsupported(plan) -> None:
+    """What the dask engine does not do yet, refused before any work."""
+    problems = []
+    if plan.dispositions.split is not None:
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="interview_split",
+                                file=plan.file, line=plan.line("dispositions", "interview_split"),
+                                message="the dask engine does not split interviews by the share of items answered",
+                                hint="use --engine memory, or remove interview_split from the plan"))
+    if plan.replicates is not None and plan.estimates is not None:
+        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="estimates",
+                                file=plan.file, line=plan.line("estimates"),
+                                message="the dask engine writes replicate weights but does not compute the "
+                                        "plan's estimates and their standard errors",
+                                hint="use --engine memory for the estimates, or remove 'estimates' from the plan "
+                                     "and compute them from the replicate weight columns"))
+    if problems:
+        raise SkipwiseError(problems)
+
+
+# --- response propensity: the model matrix is gathered ----------------------------------------
+
+def _eligible_covariates(state) -> tuple[pd.DataFrame, np.ndarray]:
+    return state.x_prop, state.respondent[state.eligible]
+
+
+def _eligible_of(state, w: np.ndarray) -> np.ndarray:
+    return w[state.eligible]
+
+
+def _full_of_eligible(state, values: np.ndarray, fill: float) -> np.ndarray:
+    out = np.full(state.n, fill, dtype=values.dtype)
+    out[state.eligible] = values
+    return out
+
+
+def _inverse(state, w: np.ndarray, p: np.ndarray) -> np.ndarray:
+    return np.where(state.respondent, w / np.where(p > 0, p, 1.0), 0.0)
+
+
+def propensity_step(chain, w: list, base: list, structure) -> tuple[list, object, list, list, str | None]:
+    """The nonresponse step by a propensity model: the eligible cases' covariates gathered, fitted on the client."""
+    from skipwise.weighting.propensity import fit_propensity, propensity_classes, propensity_design
+
+    nr = chain.plan.nonresponse
+    d = chain.d
+    cols = len(nr.covariates) + 2
+    need = chain.enc.eligible * cols * 16
+    if need > chain.budget:
+        from skipwise.scale.weigh import refuse_gather
+
+        raise refuse_gather("the response propensity model (its covariates)", need, chain.budget)
+    if structure is None:
+        chain.note(f"propensity model: the covariates of the {chain.enc.eligible:,} eligible cases "
+                   f"(about {need / 1e6:,.1f} MB) are gathered to the client and the model is fitted there")
+    got = d.gather(d.on(_eligible_covariates))
+    frame = pd.concat([g[0] for g in got])
+    responded = np.concatenate([g[1] for g in got])
+    x = propensity_design(frame, list(nr.covariates), categorical=nr.categorical)
+    fw = None
+    if structure is not None:
+        b_rep = np.concatenate(d.gather(d.on(_eligible_of, base)))
+        b_full = np.concatenate(d.gather(d.on(_eligible_of, chain.base)))
+        fw = b_rep / b_full
+    fit = fit_propensity(x, responded, fit_weights=fw)
+    note = None
+    if fit.separation is not None and fit.separation.separated:
+        note = ("propensity model: " + fit.separation.describe("respondents", "nonrespondents")
+                + " (their propensity is 1 and their weight is kept as it is)")
+    bounds = np.concatenate([[0], np.cumsum([len(g[1]) for g in got])])
+
+    def per_part(values: np.ndarray, fill: float) -> list:
+        return [d.client.submit(_full_of_eligible, s, values[bounds[i]:bounds[i + 1]], fill, pure=False)
+                for i, s in enumerate(d.states)]
+
+    if nr.propensity_use == "inverse":
+        return d.on(_inverse, w, per_part(fit.propensity, 0.0)), fit, [], [], note
+    pc, labels = propensity_classes(fit.propensity, nr.propensity_classes)
+    codes = per_part(pc.astype(np.intp), -1)
+    sums = d.total(d.on(_prop_sums, w, codes, n_classes=len(labels)))
+    from skipwise.weighting.adjust import class_factors
+
+    cf = class_factors(sums, labels, step="nonresponse", min_kept=nr.min_respondents, max_factor=np.inf)
+    out = d.on(_prop_apply, w, codes, factor_of_class=cf.factor_of_class)
+    return out, fit, [cf.table], list(cf.collapses), note
+
+
+def _prop_sums(state, w, codes, n_classes):
+    return wp.step_sums(state, w, "nonresponse", n_classes, codes=codes)
+
+
+def _prop_apply(state, w, codes, factor_of_class):
+    return wp.step_apply(state, w, "nonresponse", factor_of_class, codes=codes)
+
+
+# --- the whole job -----------------------------------------------------------------------------
+
+def _write_part(part, state, index: int, staging: str, columns: dict, labels: dict[str, str]) -> dict:
+    """Read the partition whole, add the weight columns and write its part; returns rows and digest."""
+    from skipwise.io import get_meta, write_survey
+    from skipwise.scale.classify import _sha
+    from skipwise.scale.sources import read_part
+
+    frame = read_part(part)
+    added = {name: (state.outcome.astype(str) if values is None else values) for name, values in columns.items()}
+    out = pd.concat([frame, pd.DataFrame(added, index=frame.index)], axis=1)
+    meta = get_meta(frame)
+    for col, label in labels.items():
+        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
+    name = f"part-{index:05d}.parquet"
+    target = Path(staging) / name
+    write_survey(out, target, meta, overwrite=True)
+    return {"file": name, "rows": len(out), "sha256": _sha(target)}
+
+
+def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False,
+                     note: Callable[[str], None] | None = None, on_design: Callable[[int], None] | None = None,
+                     progress: Callable[[int], None] | None = None):
+    """Weigh every partition of ``source`` by ``plan`` on the cluster; write the weighted parts into ``out``.
+
+    Returns a :class:`skipwise.scale.weigh.DaskWeighResult` (figures and tables for the
+    workbook and the console; the weights stay in the parts).
+    """
+    from skipwise.generated import check_generated
+    from skipwise.pipeline.steps import weight_labels
+    from skipwise.publish import PackagePublisher
+    from skipwise.scale.classify import PART_MANIFEST, _check_parts_folder
+    from skipwise.scale.weigh import ClusterChain, prepare_on_cluster
+    from skipwise.weighting.pipeline import STAGES
+    from skipwise.weighting.weigh import _generated, planned_weight_columns
+
+    import pyarrow.parquet as pq
+
+    refuse_unsupported(plan)
+    names = list(pq.ParquetFile(parts[0].path).schema_arrow.names)
+    check_generated(planned_weight_columns(plan, names), names)
+    _check_parts_folder(Path(out), overwrite)
+    dist, enc = prepare_on_cluster(client, parts, plan)
+    chain = ClusterChain(dist, enc, plan, note=note)
+    stages, result = chain.run()
+    p = plan.prefix
+    columns: dict[str, list | None] = {f"{p}outcome": None}
+    for stage in STAGES:
+        columns[f"{p}{stage}"] = stages[stage]
+    design = enc.design
+    if design is not None:
+        if on_design is not None:
+            on_design(design.count)
+        width = max(3, len(str(design.count)))
+
+        def replicate(r: int) -> list:
+            base_r = dist.on(wp.scaled, chain.base, factors=design.unit_factors[:, r])
+            return chain.run(base_r, structure=result.structure, detail=False)[0]["final"]
+
+        # replicates are independent: several run at once, so their passes overlap on the cluster
+        with ThreadPoolExecutor(max_workers=min(design.count, REPLICATE_THREADS)) as pool:
+            running = [pool.submit(replicate, r) for r in range(design.count)]
+            try:
+                for r, job in enumerate(running):
+                    try:
+                        columns[f"{p}rep{r + 1:0{width}d}"] = job.result()
+                    except SkipwiseError as err:
+                        raise SkipwiseError(err.problems, headline=f"replicate {r + 1} of {design.count} "
+                                                                   f"({design.method}) failed; collapse classes "
+                                                                   f"or categories") from None
+                    if progress is not None:
+                        progress(r + 1)
+            finally:
+                for job in running:
+                    job.cancel()
+    check_generated([_generated(plan, c, "weight column") for c in columns], names)
+    res = chain.result(stages, result, design, tuple(columns))
+    labels = weight_labels(res)
+    with PackagePublisher(Path(out)) as pub:
+        futures = []
+        for i, part in enumerate(parts):
+            cols = {k: (None if v is None else v[i]) for k, v in columns.items()}
+            futures.append(client.submit(_write_part, part, dist.states[i], i, str(pub.staging), cols, labels,
+                                         pure=False))
+        written = client.gather(futures)
+        listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
+        (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
+        pub.publish()
+    return res
