@@ -69,13 +69,6 @@ def refuse_unsupported(plan) -> None:
                                 file=plan.file, line=plan.line("dispositions", "interview_split"),
                                 message="the dask engine does not split interviews by the share of items answered",
                                 hint="use --engine memory, or remove interview_split from the plan"))
-    if plan.replicates is not None and plan.estimates is not None:
-        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="estimates",
-                                file=plan.file, line=plan.line("estimates"),
-                                message="the dask engine writes replicate weights but does not compute the "
-                                        "plan's estimates and their standard errors",
-                                hint="use --engine memory for the estimates, or remove 'estimates' from the plan "
-                                     "and compute them from the replicate weight columns"))
     if problems:
         raise SkipwiseError(problems)
 
@@ -155,6 +148,56 @@ def _prop_apply(state, w, codes, factor_of_class):
     return wp.step_apply(state, w, "nonresponse", factor_of_class, codes=codes)
 
 
+# --- estimates with replicate standard errors: weighted sums per partition ---------------------
+
+def _estimate_sums(part, state, plan, final: np.ndarray, reps: list) -> dict:
+    """Per estimate row: Σ w y and Σ w over valid respondents for the final and every replicate weight."""
+    from skipwise.weighting.replicates import _estimate_columns
+
+    est = plan.estimates
+    frame = wp._read(part, [*est.means, *est.proportions])
+    rows, y, valid = _estimate_columns(frame, state.respondent, est.means, est.proportions, est.exclude_values)
+    w = np.column_stack([final, *reps])
+    v = valid.astype(float)
+    num, den = (y * v).T @ w, v.T @ w
+    n = (valid & (final > 0)[:, None]).sum(axis=0)
+    return {(r["variable"], r["category"], r["kind"]): (num[k], den[k], int(n[k])) for k, r in enumerate(rows)}
+
+
+def _estimates(client, parts: list, dist, plan, final: list, reps: list, design) -> pd.DataFrame:
+    """:func:`skipwise.weighting.replicates.replicate_standard_errors` from merged weighted sums."""
+    from skipwise.weighting.replicates import replicate_variance
+
+    plan_future = client.scatter(plan, broadcast=True)
+    found = client.gather([client.submit(_estimate_sums, part, dist.states[i], plan_future, final[i],
+                                         [r[i] for r in reps], pure=False) for i, part in enumerate(parts)])
+    merged: dict = {}
+    for part in found:
+        for key, (num, den, n) in part.items():
+            if key in merged:
+                a, b, m = merged[key]
+                merged[key] = (a + num, b + den, m + n)
+            else:
+                merged[key] = (num, den, n)
+    est = plan.estimates
+    keys = [(name, "", "mean") for name in est.means if (name, "", "mean") in merged]
+    for name in est.proportions:
+        keys += sorted((k for k in merged if k[0] == name and k[2] == "proportion"), key=lambda k: k[1])
+    columns = ["variable", "category", "kind", "n", "estimate", "se", "replicates", "method"]
+    if not keys:
+        return pd.DataFrame(columns=columns)
+    num = np.array([merged[k][0] for k in keys])
+    den = np.array([merged[k][1] for k in keys])
+    ratio = num / den
+    table = pd.DataFrame([{"variable": k[0], "category": k[1], "kind": k[2]} for k in keys])
+    table["n"] = np.array([merged[k][2] for k in keys], dtype=np.int64)
+    table["estimate"] = ratio[:, 0]
+    table["se"] = np.sqrt(replicate_variance(ratio[:, 1:].T, design))
+    table["replicates"] = design.count
+    table["method"] = design.method
+    return table
+
+
 # --- the whole job -----------------------------------------------------------------------------
 
 def _write_part(part, state, index: int, staging: str, columns: dict, labels: dict[str, str]) -> dict:
@@ -187,7 +230,8 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     from skipwise.pipeline.steps import weight_labels
     from skipwise.publish import PackagePublisher
     from skipwise.scale.classify import PART_MANIFEST, _check_parts_folder
-    from skipwise.scale.weigh import ClusterChain, prepare_on_cluster
+    from skipwise.scale.weigh import ClusterChain
+    from skipwise.scale.weigh_prepare import prepare_on_cluster
     from skipwise.weighting.pipeline import STAGES
     from skipwise.weighting.weigh import _generated, planned_weight_columns
 
@@ -231,7 +275,11 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
                 for job in running:
                     job.cancel()
     check_generated([_generated(plan, c, "weight column") for c in columns], names)
-    res = chain.result(stages, result, design, tuple(columns))
+    estimates = None
+    if design is not None and plan.estimates is not None:
+        reps = [v for k, v in columns.items() if k.startswith(f"{p}rep")]
+        estimates = _estimates(client, parts, dist, plan, stages["final"], reps, design)
+    res = chain.result(stages, result, design, tuple(columns), estimates)
     labels = weight_labels(res)
     with PackagePublisher(Path(out)) as pub:
         futures = []
