@@ -228,13 +228,15 @@ def test_bad_data_problems_are_collected_over_all_partitions(data, client, tmp_p
     folder.mkdir()
     for i, rows in enumerate(np.split(np.arange(len(bad)), [250, 610])):
         write_survey(bad.iloc[rows].reset_index(drop=True), folder / f"b-{i}.parquet")
+    plan = PLANS["trim-spread"] + "calibration:\n  method: rake\n  margins:\n    regoin: {north: 1}\n"
     with pytest.raises(SkipwiseError) as err:
-        weigh_on_cluster(folder, load_plan(text=PLANS["trim-spread"]), tmp_path / "o", client=client,
-                         parts=parquet_parts(folder))
+        weigh_on_cluster(folder, load_plan(text=plan), tmp_path / "o", client=client, parts=parquet_parts(folder))
     text = str(err.value)
+    assert text.count("not mapped") == 1      # one problem per disposition, counted over the file
     assert "2 case(s) have a missing, non-numeric or out-of-range selection probability" in text
     assert "[4, 701]" in text                 # their case ids
     assert "disposition '999' (1 case(s)) is not mapped" in text
+    assert "margin variable 'regoin' is not a column of the data" in text and "region" in text
 
 
 def test_cli_weighs_on_the_cluster_and_refuses_what_it_does_not_do(data, client, tmp_path):

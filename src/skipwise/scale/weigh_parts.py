@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
-from skipwise.errors import Problem, SkipwiseError
+from skipwise.errors import Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.weighting import calibrate as cal
 from skipwise.weighting.adjust import ClassSums, apply_class_factors, class_keys, class_sums
 from skipwise.weighting.base import bad_weight_mask, base_source, base_values
@@ -158,6 +158,10 @@ def prepare_part(part, plan: WeightingPlan, offset: int) -> tuple[PartState, Par
         censuses, codes, enc = [], [], []
         for variable, (labels, values) in targets.items():
             if variable not in resp.columns:
+                problems.append(Problem(code=ProblemCode.MISSING_COLUMN, item=variable,
+                                        message=f"margin variable '{variable}' is not a column of the data",
+                                        hint=did_you_mean(variable, map(str, frame.columns)),
+                                        **plan.locate(variable, None)))
                 continue
             censuses.append(margin_census(resp[variable]))
             codes.append(margin_codes(resp[variable], labels))
