@@ -24,8 +24,10 @@ docs/statuses.md): statuses 1-9, reasons 11-99 by the questionnaire's
 
 from __future__ import annotations
 
+import dataclasses
 from enum import Enum
 from pathlib import Path
+from typing import Iterator
 
 import numpy as np
 import pandas as pd
@@ -40,7 +42,8 @@ from skipwise.io import SurveyMeta, get_meta
 from skipwise.questionnaire.model import ItemType
 
 __all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy",
-           "STATUS_SUFFIX", "status_columns", "fault_listing", "faults_path"]
+           "STATUS_SUFFIX", "status_columns", "fault_listing", "fault_listing_parts", "fault_count",
+           "write_fault_listing", "faults_path"]
 
 STATUS_SUFFIX = "_status"
 #: Extended missing letters of Stata, ``.a`` ... ``.z``: statuses 2-9 take ``.a``-``.h``, reasons 11-28 ``.i``-``.z``.
@@ -53,8 +56,13 @@ class ExportForm(str, Enum):
 
 
 def status_numbers(cl: Classification) -> dict[str, int]:
-    """Stable number of every status (DESIGN §3): fixed ones 1-9, reasons 11-99 (docs/statuses.md)."""
-    return {**S.STATUS_NUMBERS, **cl.questionnaire.reason_numbers}
+    """Stable number of every status (DESIGN §3): fixed ones 1-9, reasons 11-99 (docs/statuses.md).
+
+    Reasons come in the order of their numbers, so the value labels written from this mapping are
+    in the same order in every run (the questionnaire's mapping follows no fixed order).
+    """
+    reasons = sorted(cl.questionnaire.reason_numbers.items(), key=lambda kv: kv[1])
+    return {**S.STATUS_NUMBERS, **dict(reasons)}
 
 
 def status_codes(cl: Classification) -> dict[str, int]:
@@ -213,6 +221,74 @@ def fault_listing(cl: Classification) -> pd.DataFrame:
     if cid and cid != "case_id" and cid not in faults.columns:
         faults = faults.rename(columns={"case_id": cid})
     return faults
+
+
+def _listing_columns(cl: Classification, columns: list[str]) -> dict[str, str]:
+    cid = cl.questionnaire.case_id
+    if cid and cid != "case_id" and cid not in columns:
+        return {"case_id": cid}
+    return {}
+
+
+def _fault_counts(cl: Classification) -> np.ndarray:
+    """Fault cells (``off_route``, ``wrong_code``, ``invalid``) per item."""
+    wanted = [cl.code(s) for s in S.FAULT_STATUSES if s in cl.categories]
+    per_code = np.stack([np.bincount(cl.codes[:, j], minlength=len(cl.categories)) for j in range(len(cl.items))]
+                        ) if len(cl.items) else np.zeros((0, len(cl.categories)), dtype=np.int64)
+    return per_code[:, wanted].sum(axis=1)
+
+
+def fault_count(cl: Classification) -> int:
+    """How many rows :func:`fault_listing` has, counted from the statuses (the listing is not built)."""
+    if "faults" in cl.__dict__:  # already built
+        return len(cl.faults)
+    return int(_fault_counts(cl).sum())
+
+
+def fault_listing_parts(cl: Classification, rows: int = 2_000_000) -> Iterator[pd.DataFrame]:
+    """:func:`fault_listing` in parts of about ``rows`` rows (whole items, in interview order).
+
+    Concatenated, the parts are the listing itself; one part is held at a time, so a file with
+    tens of millions of faults is listed in a bounded amount of memory.  Each part is the
+    classification's own listing of a run of consecutive items: the other items' cells read as
+    answered (a status that is no fault).
+    """
+    if "faults" in cl.__dict__:
+        yield fault_listing(cl)
+        return
+    per_item = _fault_counts(cl)
+    items = np.flatnonzero(per_item)
+    if items.size == 0:
+        return
+    if per_item.sum() <= rows:
+        yield fault_listing(cl)
+        return
+    groups, start, size = [], 0, 0
+    for k, j in enumerate(items):
+        size += per_item[j]
+        if size >= rows or k == items.size - 1:
+            groups.append(items[start:k + 1])
+            start, size = k + 1, 0
+    answered = cl.code(S.ANSWERED)
+    scratch = np.full(cl.codes.shape, answered, dtype=cl.codes.dtype, order="F")
+    for group in groups:
+        scratch[:, group] = cl.codes[:, group]
+        part = dataclasses.replace(cl, codes=scratch).faults
+        scratch[:, group] = answered
+        yield part.rename(columns=_listing_columns(cl, list(part.columns)))
+
+
+def write_fault_listing(cl: Classification, path: str | Path, rows: int = 2_000_000) -> int:
+    """Write :func:`fault_listing` as CSV to ``path`` (a publisher's temporary file), part by part.
+
+    The bytes are those of ``fault_listing(cl).to_csv(path, index=False)``; returns the row count
+    (``rows``: about how many rows are built at a time).
+    """
+    from skipwise.classify.faultlist import FAULT_COLUMNS
+    from skipwise.io.writers_table import write_csv_frames
+
+    header = [_listing_columns(cl, FAULT_COLUMNS).get(c, c) for c in FAULT_COLUMNS]
+    return write_csv_frames(fault_listing_parts(cl, rows), path, header)
 
 
 def faults_path(out: Path) -> Path:

@@ -42,7 +42,9 @@ def classify_command(
     listing each routing fault with its case id — that listing holds respondents' data: share it
     only under your organization's data protection rules.
     """
-    from skipwise.classify.export import fault_listing, faults_path, recoded_copy, with_status_columns
+    from skipwise.classify.export import (
+        faults_path, recoded_copy, with_status_columns, write_fault_listing,
+    )
     from skipwise.io import get_meta, write_survey
     from skipwise.publish import check_writable, publish_files
     from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
@@ -82,7 +84,7 @@ def classify_command(
             with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
             stamp_file(tmp_out, timestamp_of(data))  # the write time inside the file: the data's own
-            fault_listing(cl).to_csv(tmp_faults, index=False)
+            faults = write_fault_listing(cl, tmp_faults)  # part by part: never the whole listing at once
     except SkipwiseError as err:
         fail(err)
     shares = cl.counts().sum(axis=0)
@@ -93,7 +95,7 @@ def classify_command(
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
     _echo_invalid_hint(cl, data, questionnaire)
     typer.echo(f"wrote {out}")
-    typer.echo(f"wrote {fault_file} ({len(cl.faults):,} routing faults; it lists case ids)")
+    typer.echo(f"wrote {fault_file} ({faults:,} routing faults; it lists case ids)")
 
 
 def _echo_invalid_hint(cl, data: Path, questionnaire: Path) -> None:
