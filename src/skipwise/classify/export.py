@@ -118,11 +118,16 @@ def _by_code(cl: Classification, mapping: dict[str, object], fill: object) -> np
 
 
 def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta | None = None,
-                        items: list[str] | None = None) -> tuple[pd.DataFrame, SurveyMeta]:
-    """The data plus one labelled integer status column per item."""
+                        items: list[str] | None = None, dtype: type = np.int16) -> tuple[pd.DataFrame, SurveyMeta]:
+    """The data plus one labelled integer status column per item.
+
+    ``dtype`` is that of the status columns: int16, or float32 for a frame about to be written
+    (the writers hand numbers to pyreadstat as floats; float32 holds every status number exactly,
+    so the file is the same and no second copy of the columns is made).
+    """
     meta = (meta or get_meta(data)).copy()
     numbers = status_numbers(cl)
-    lookup = np.array([numbers[c] for c in cl.categories], dtype=np.int16)
+    lookup = np.array([numbers[c] for c in cl.categories], dtype=dtype)
     labels = status_value_labels(numbers, cl.questionnaire)
     new = {}
     chosen = [(j, name) for j, name in enumerate(cl.items) if items is None or name in items]

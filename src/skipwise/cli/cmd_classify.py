@@ -76,13 +76,19 @@ def classify_command(
         meta = delivery_meta(get_meta(frame), q, frame)  # levels; the questionnaire's labels for a CSV
         fmt = out.suffix.lower().lstrip(".")
         if chosen is ExportForm.COLUMNS:
-            result, meta = with_status_columns(frame, cl, meta)
+            # SPSS and Stata files take the numbers as floats: float32 ones are written as they are
+            # (the same file as from int16, without a second copy); other formats keep int16.
+            import numpy as np
+
+            status_dtype = np.float32 if fmt in ("sav", "zsav", "dta") else np.int16
+            result, meta = with_status_columns(frame, cl, meta, dtype=status_dtype)
         else:
             result, meta = recoded_copy(frame, cl, fmt, meta)
         # Both files appear together or not at all.
         with publish_files([out, fault_file], overwrite=overwrite) as (tmp_out, tmp_faults):
             with echo_warnings({str(tmp_out): str(out)}):
                 write_survey(result, tmp_out, meta, overwrite=True)
+            del result  # the status columns or recoded copy: not held while the faults are listed
             stamp_file(tmp_out, timestamp_of(data))  # the write time inside the file: the data's own
             faults = write_fault_listing(cl, tmp_faults)  # part by part: never the whole listing at once
     except SkipwiseError as err:

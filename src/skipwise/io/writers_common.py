@@ -145,7 +145,7 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
         if pd.api.types.is_timedelta64_dtype(s):  # durations are written as seconds
             kind, s = "number", s.dt.total_seconds()
         elif pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
-            kind, s = "number", pd.Series(s.to_numpy(dtype=float, na_value=np.nan))
+            kind, s = "number", pd.Series(_as_floats(s), copy=False)
         elif pd.api.types.is_datetime64_any_dtype(s):
             kind = "datetime"
         elif pd.api.types.is_string_dtype(s) and s.dtype != object and not (ext_missing_ok and _all_letters(s)):
@@ -170,7 +170,12 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
             elif inferred in ("date", "datetime", "datetime64"):
                 kind, s = "datetime", pd.to_datetime(s)
             elif inferred in ("mixed", "mixed-integer"):
-                num, rest, texts, codes = split_numbers(s)
+                values = np.asarray(s.to_numpy(dtype=object), dtype=object)
+                fast = _floats_and_texts(values, numbers=False)  # floats and letters: one pass over the cells
+                if fast is not None:
+                    rest, text_codes, texts = fast[1], fast[2], [str(u) for u in fast[3]]
+                else:
+                    num, rest, texts, codes = split_numbers(s)
                 odd = [t for t in texts if not EXT_LETTER.fullmatch(t)]
                 if odd:
                     problems.append(problem(path, "column mixes numbers and text, or holds values that are neither "
@@ -184,9 +189,13 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                                                  "or write .dta or .parquet"))
                 else:
                     kind = "extmiss"
-                    mixed = numbers_as_objects(s, num)
                     bare = np.array([stata_letter(t, str(col), path, problems) for t in texts], dtype=object)
-                    mixed[rest] = bare[codes[rest]]
+                    if fast is not None:  # the numbers are Python floats already: kept as they are
+                        mixed = values.copy()
+                        mixed[rest] = bare[text_codes]
+                    else:
+                        mixed = numbers_as_objects(s, num)
+                        mixed[rest] = bare[codes[rest]]
                     out.letters[col] = {b for b in bare if b is not None}
                     s = pd.Series(mixed, dtype=object)
         if kind == "datetime":
@@ -202,9 +211,26 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
             _refuse_nul(s, str(col), path, problems)
         columns[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s.reset_index(drop=True)
     _refuse_nul_labels(meta, [str(c) for c in df.columns], path, problems)
-    if columns:  # one frame built at once, not one insertion per column
-        out.frame = pd.DataFrame(columns, index=pd.RangeIndex(len(df)))
+    if columns:  # one frame built at once, not one insertion per column, sharing the columns' arrays
+        out.frame = pd.DataFrame(columns, index=pd.RangeIndex(len(df)), copy=False)
     return out
+
+
+def _as_floats(s: pd.Series) -> np.ndarray:
+    """A numeric column as the floats pyreadstat writes, without a copy where it already is one.
+
+    float64 and float32 stay as stored; small whole numbers (8 and 16 bits, booleans) become
+    float32, which holds each of them exactly and which pyreadstat writes as the same doubles
+    (status columns are int16: half the memory of float64); everything else float64, missing
+    cells NaN.
+    """
+    dtype = s.dtype
+    if isinstance(dtype, np.dtype):
+        if dtype == np.float64 or dtype == np.float32:
+            return s.to_numpy()
+        if dtype == np.bool_ or (dtype.kind in "iu" and dtype.itemsize <= 2):
+            return s.to_numpy().astype(np.float32)
+    return s.to_numpy(dtype=float, na_value=np.nan)
 
 
 def split_numbers(s: pd.Series) -> tuple[np.ndarray, np.ndarray, list[str], np.ndarray]:
@@ -214,7 +240,14 @@ def split_numbers(s: pd.Series) -> tuple[np.ndarray, np.ndarray, list[str], np.n
     the mask of stored values that are no numbers, those values' distinct texts (in order of first
     appearance) and, per row, the index of its text among them (meaningful where the mask is set).
     """
-    codes, uniques = pd.factorize(np.asarray(s.to_numpy(dtype=object), dtype=object), use_na_sentinel=True)
+    values = np.asarray(s.to_numpy(dtype=object), dtype=object)
+    fast = _floats_and_texts(values)
+    if fast is not None:  # Python floats and texts only: the column converted at once, texts factorized
+        num, rest, text_codes, text_uniques = fast
+        position = np.full(len(values), -1, dtype=np.int64)
+        position[rest] = text_codes
+        return num, rest, [str(u) for u in text_uniques], position
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
     as_numbers = pd.to_numeric(pd.Series(uniques, dtype=object), errors="coerce").to_numpy(
         dtype=np.float64, na_value=np.nan)
     num = np.append(as_numbers, np.nan)[codes]  # code -1 (blank) takes the appended NaN
@@ -238,6 +271,31 @@ def numbers_as_objects(s: pd.Series, num: np.ndarray) -> np.ndarray:
     redo = ~plain[codes]
     out[redo] = num[redo].astype(object)
     return out
+
+
+def _floats_and_texts(values: np.ndarray, numbers: bool = True
+                      ) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, list] | None:
+    """Numbers, no-number mask, text codes and distinct texts of an object array that holds Python
+    floats and texts only, no text being a number (a recoded column: answers and ``.a`` letters);
+    None for any other column.
+
+    Each cell's type is read once (``map(type, ...)`` runs in C); the floats are converted at once
+    and only the texts are factorized, so no number is hashed or parsed (``numbers=False``: the
+    numbers are not wanted, None in their place).
+    """
+    types = np.fromiter(map(type, values), dtype=object, count=len(values))
+    is_text = types == str
+    if not (is_text | (types == float)).all():
+        return None
+    num = None
+    if numbers:
+        num = np.full(len(values), np.nan)
+        num[~is_text] = values[~is_text].astype(np.float64)
+    text_codes, text_uniques = pd.factorize(values[is_text])
+    as_numbers = pd.to_numeric(pd.Series(text_uniques, dtype=object), errors="coerce")
+    if as_numbers.notna().any():
+        return None  # a text that is a number ("7"): the general way
+    return num, is_text, text_codes, list(text_uniques)
 
 
 _NUL_HINT = ("SPSS and Stata files end a text at a NUL character, so the rest would be lost without "
