@@ -4,6 +4,9 @@ Figure: wall time and peak memory (largest resident set) of the command in a chi
 bench_classify's 1,000,000 x 200 file.  Floors measured in the same run: pyreadstat's read of the
 input .sav, and pyreadstat's write of the command's result frame (the data plus 200 status
 columns).  Targets: at most 1.2x (read + write floors); peak at most 2x the frame in memory.
+Also printed: the CPU seconds of the command and of the floors (the figures to compare on a
+shared machine) and the size of the fault listing the command writes beside the data (the floors
+write no listing).
 
     python benchmarks/bench_cli_sav.py [--cases N]
 """
@@ -21,11 +24,19 @@ from pathlib import Path
 import numpy as np
 import pyreadstat
 
-from _common import children_peak_mb, result, scaled
+from _common import children_peak_mb, cpu_of, result, scaled
 from bench_classify import make_data, questionnaire_text
 from skipwise.classify import classify
 from skipwise.classify.export import with_status_columns
 from skipwise.questionnaire import loads_questionnaire
+
+
+def _children_cpu() -> float:
+    """User + system CPU seconds of the finished child processes so far."""
+    import resource
+
+    use = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return use.ru_utime + use.ru_stime
 
 
 def main() -> None:
@@ -41,20 +52,19 @@ def main() -> None:
         qfile.write_text(text)
         pyreadstat.write_sav(data, str(src))
         del data
-        t0 = time.perf_counter()
-        data, _ = pyreadstat.read_sav(str(src), user_missing=True)
-        read = time.perf_counter() - t0
+        read, read_cpu, (data, _) = cpu_of(lambda: pyreadstat.read_sav(str(src), user_missing=True))
         res, _ = with_status_columns(data, classify(data, loads_questionnaire(text)))
         del data
-        t0 = time.perf_counter()
-        pyreadstat.write_sav(res, str(Path(tmp) / "floor.sav"))
-        write = time.perf_counter() - t0
+        write, write_cpu, _ = cpu_of(lambda: pyreadstat.write_sav(res, str(Path(tmp) / "floor.sav")))
         del res
         skipwise = [sys.executable, "-m", "skipwise"]
+        c0 = _children_cpu()
         t0 = time.perf_counter()
         done = subprocess.run([*skipwise, "classify", str(src), "-q", str(qfile), "-o", str(out)],
                               capture_output=True, text=True, env=os.environ)
         secs = time.perf_counter() - t0
+        cpu = _children_cpu() - c0
+        faults = (Path(tmp) / "out.sav.faults.csv").stat().st_size / 2**20 if done.returncode == 0 else 0
         if done.returncode != 0:
             print(done.stdout, done.stderr)
             raise SystemExit("the command failed")
@@ -62,6 +72,9 @@ def main() -> None:
     floor = read + write
     print(f"classify .sav -> .sav : {secs:.1f} s, peak {peak:,.0f} MB ({peak / frame_mb:.2f}x the {frame_mb:,.0f} MB frame)")
     print(f"floors                : read {read:.1f} s + write {write:.1f} s = {floor:.1f} s")
+    print(f"CPU seconds           : command {cpu:.1f} s; floors read {read_cpu:.1f} s + write {write_cpu:.1f} s = "
+          f"{read_cpu + write_cpu:.1f} s ({cpu / max(read_cpu + write_cpu, 1e-9):.2f}x; on a busy machine "
+          f"compare these); the command also wrote a {faults:,.0f} MB fault listing")
     result(f"CLI classify .sav {args.cases:,} x 200", f"{secs:.1f} s, peak {peak / frame_mb:.2f}x frame",
            f"{floor:.1f} s", secs / floor, "<= 1.2x, peak <= 2x frame", secs <= 1.2 * floor and peak <= 2 * frame_mb)
 
