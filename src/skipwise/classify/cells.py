@@ -27,7 +27,8 @@ import pandas as pd
 from skipwise.questionnaire.model import Code, CodeKind, Item, ItemType
 from skipwise.rules.evaluate import isin_small
 
-__all__ = ["BLANK", "STRUCT", "NONRESP", "SUBST", "INVALID", "Decoded", "decode_item", "column_views"]
+__all__ = ["BLANK", "STRUCT", "NONRESP", "SUBST", "INVALID", "Decoded", "decode_item", "column_views", "match_codes",
+           "NumericPlan", "numeric_plan", "numeric_fast_path", "decode_numeric", "Scratch"]
 
 BLANK, STRUCT, NONRESP, SUBST, INVALID = 0, 1, 2, 3, 4
 KIND_OF = _KIND_OF = {CodeKind.STRUCTURAL: STRUCT, CodeKind.NONRESPONSE: NONRESP, CodeKind.SUBSTANTIVE: SUBST}
@@ -87,6 +88,11 @@ def _match_codes(codes: tuple[Code, ...], num: np.ndarray, txt: np.ndarray | Non
             hit = num == float(code.value)
         idx += hit.view(np.int8) * np.int8(i + 1)
     return idx
+
+
+def match_codes(codes: tuple[Code, ...], num: np.ndarray) -> np.ndarray:
+    """Index of the code each number carries, -1 for none (a text code never matches a number)."""
+    return _match_codes(codes, num, None, np.zeros(0, bool))
 
 
 def _valid(item: Item, num: np.ndarray, txt: np.ndarray | None) -> np.ndarray:
@@ -180,23 +186,47 @@ def _equals(value: object, num: np.ndarray, txt: np.ndarray | None) -> np.ndarra
     return num == float(value)  # type: ignore[arg-type]
 
 
-# -- the numeric fast path: status, kind and rule state in one pass of arithmetic ------------------
+# -- the numeric fast path: status, kind and rule state by byte arithmetic ----------------------
 #
-# A numeric item's cell falls in exactly one class: blank, code i, a valid value or an invalid one.
-# Each class has a fixed kind and, for each of the three universe values, a fixed status and rule
-# state; all of them are packed into one int32 per class (status 6 bits per universe value, kind
-# 3 bits, state 2 bits per universe value).  The classes are exclusive, so the sum of
-# class-indicator x packed-word selects each cell's word, and shifts by the universe read it out:
-# elementwise arithmetic only, no masked copies and no table lookups with int8 indices.
-_STATUS_BITS, _KIND_SHIFT, _STATE_SHIFT = 6, 18, 21
+# A number-valued item's cell falls in exactly one class: blank, code i, a valid value, or an invalid
+# value (none of the others).  Each class has a fixed kind and, for each universe value, a fixed
+# status and rule state; the status (6 bits) and the state (2 bits) of a class are packed into one
+# byte.  The classes are exclusive, so one pass per class of "class indicator x class constant",
+# added up, gives every cell its constants: four bytes per cell (the in-universe byte, the change
+# out of universe, the change when the universe is unknown, the kind), computed as rows of one
+# 4 x rows uint8 matrix.  The universe then selects by two more byte operations.  All of it is
+# elementwise numpy on preallocated buffers: no masked copies, no table lookups, no temporaries.
+_STATE_SHIFT = 6
 
 
-def packed_word(statuses: tuple[int, int, int], kind: int, states: tuple[int, int, int]) -> int:
-    """One class's outcomes as an int32 word (statuses by universe FALSE/UNK/TRUE, kind, states)."""
-    word = kind << _KIND_SHIFT
-    for u in range(3):
-        word |= statuses[u] << (_STATUS_BITS * u) | states[u] << (_STATE_SHIFT + 2 * u)
-    return word
+def _byte(status: int, state: int) -> int:
+    return status | state << _STATE_SHIFT
+
+
+@dataclass(frozen=True)
+class NumericPlan:
+    """How the fast path decodes one number-valued item (made once per questionnaire).
+
+    ``tests`` is the value test as a short list of ``(op, operand)`` steps ANDed together
+    (``ge``/``le`` a bound, ``int`` whole numbers, ``in`` a list of allowed values, ``real`` not
+    NaN); ``code_values`` are the numeric codes, ``code_index`` their positions in ``item.codes``,
+    ``overlap`` the positions (in ``code_values``) of codes that also pass the value test (a code
+    wins over the value it also is).  ``consts`` is a 4 x classes uint8 matrix, classes in the
+    order blank, valid, code 0, code 1, ..., each column minus the invalid class's ``base``:
+    rows are the in-universe byte, its change out of universe, its change when the universe is
+    unknown, and the kind.
+    """
+
+    tests: tuple[tuple[str, object], ...]
+    code_values: tuple[float, ...]
+    code_index: tuple[int, ...]
+    overlap: tuple[int, ...]
+    base: np.ndarray      # uint8 (4,): the invalid class
+    consts: np.ndarray    # uint8 (4, 2 + codes): blank, valid, codes (each minus base, modulo 256)
+
+    @property
+    def classes(self) -> int:
+        return 2 + len(self.code_values)
 
 
 def numeric_fast_path(item: Item, series: pd.Series) -> bool:
@@ -205,32 +235,126 @@ def numeric_fast_path(item: Item, series: pd.Series) -> bool:
             and pd.api.types.is_numeric_dtype(series.dtype))
 
 
-def decode_numeric(item: Item, series: pd.Series, words: tuple[int, int, int, tuple[int, ...]], u: np.ndarray
-                   ) -> tuple[Decoded, np.ndarray, np.ndarray]:
-    """Decoded cells, statuses and rule states of a numeric item, given its universe ``u``.
+def _value_tests(item: Item) -> tuple[tuple[str, object], ...]:
+    """The value test of :func:`_valid` (numbers only) as steps; NaN fails every step but ``in``/``real``."""
+    if item.type is ItemType.CATEGORICAL and item.values is not None:
+        keys = sorted(float(k) for k in item.values if not isinstance(k, str))
+        if keys and all(np.isfinite(k) and k == int(k) for k in keys) and keys == [float(v) for v in range(int(keys[0]),
+                                                                                          int(keys[-1]) + 1)]:
+            return (("ge", keys[0]), ("le", keys[-1]), ("int", None))  # whole numbers lo..hi
+        return (("in", keys),)
+    tests: list[tuple[str, object]] = []
+    if item.range is not None:
+        tests += [("ge", float(item.range[0])), ("le", float(item.range[1]))]
+    if item.type is ItemType.INTEGER:
+        tests.append(("int", None))
+    return tuple(tests) or (("real", None),)
 
-    ``words`` are the packed words of the blank, valid and invalid classes and of each code
-    (:func:`packed_word`).  Gives the statuses and kinds of :func:`decode_item` with the status table.
+
+def _passes(tests: tuple[tuple[str, object], ...], x: np.ndarray) -> np.ndarray:
+    """The value test on a small array (the code values)."""
+    ok = np.ones(x.shape, bool)
+    with np.errstate(invalid="ignore"):
+        for op, v in tests:
+            ok &= (x >= v if op == "ge" else x <= v if op == "le" else np.floor(x) == x if op == "int"
+                   else isin_small(x, list(v)) if op == "in" else ~np.isnan(x))  # type: ignore[arg-type]
+    return ok
+
+
+def numeric_plan(item: Item, table: np.ndarray, reason_code: np.ndarray, state_of: np.ndarray
+                 ) -> NumericPlan | None:
+    """The item's :class:`NumericPlan`, or None when some outcome does not fit a byte.
+
+    ``table`` is the status table by [kind, universe] (-1: the code's reason), ``reason_code``
+    the status of each code's reason, ``state_of`` the rule state of each status.
     """
-    num, _, blank = column_views(series)
-    w_blank, w_valid, w_invalid, w_codes = words
-    valid = _valid(item, num, None)
-    packed = np.multiply(blank, np.int32(w_blank - w_invalid), dtype=np.int32)
-    code = np.full(len(num), -1, dtype=np.int8)
-    any_code = None
-    for i, c in enumerate(item.codes):
-        if isinstance(c.value, str):
-            continue  # a text code never matches a number
-        hit = num == float(c.value)
-        packed += hit * np.int32(w_codes[i] - w_invalid)
-        code += hit.view(np.int8) * np.int8(i + 1)
-        any_code = hit if any_code is None else any_code | hit
-    if any_code is not None:
-        valid &= ~any_code  # a code takes precedence over the value it also is
-    packed += valid * np.int32(w_valid - w_invalid)
-    packed += np.int32(w_invalid)
-    shift = u * np.int32(_STATUS_BITS)
-    status = ((packed >> shift) & 63).astype(np.int8)
-    state = ((packed >> (shift // 3 + _STATE_SHIFT)) & 3).astype(np.int8)
-    kind = ((packed >> _KIND_SHIFT) & 7).astype(np.int8)
-    return Decoded(kind=kind, code=code, values=num), status, state
+    if item.type not in (ItemType.INTEGER, ItemType.NUMBER, ItemType.CATEGORICAL) or _text_valued(item):
+        return None
+
+    def outcomes(kind: int, reason: int = -1) -> list[int] | None:
+        statuses = [int(reason if s < 0 else s) for s in table[kind]]  # universe FALSE, UNK, TRUE
+        if min(statuses) < 0 or max(statuses) >= 1 << _STATE_SHIFT:
+            return None
+        out, unk, inn = (_byte(s, int(state_of[s])) for s in statuses)
+        return [inn, out - inn, unk - inn, kind]
+
+    numeric = [(i, float(c.value)) for i, c in enumerate(item.codes) if not isinstance(c.value, str)]  # type: ignore[arg-type]
+    columns = [outcomes(BLANK), outcomes(SUBST)] + [outcomes(KIND_OF[item.codes[i].kind], int(reason_code[i]))
+                                                    for i, _ in numeric]
+    invalid = outcomes(INVALID)
+    if invalid is None or any(c is None for c in columns):
+        return None
+    base = np.array(invalid, dtype=np.int64)
+    consts = (np.array(columns, dtype=np.int64).T - base[:, None]) % 256
+    tests = _value_tests(item)
+    values = np.array([v for _, v in numeric], dtype=np.float64)
+    overlap = tuple(int(k) for k in np.flatnonzero(_passes(tests, values)))
+    return NumericPlan(tests=tests, code_values=tuple(values.tolist()), code_index=tuple(i for i, _ in numeric),
+                       overlap=overlap, base=(base % 256).astype(np.uint8), consts=consts.astype(np.uint8))
+
+
+class Scratch:
+    """Buffers of the fast path for one block of ``n`` rows (one per thread at a time)."""
+
+    def __init__(self, n: int, classes: int):
+        self.masks = np.empty((max(classes, 2), n), dtype=bool)
+        self.acc = np.empty((4, n), dtype=np.uint8)
+        self.term = np.empty((4, n), dtype=np.uint8)
+        self.where = np.empty((2, n), dtype=bool)
+        self.tmp = np.empty(n, dtype=bool)
+        self.real = np.empty(n, dtype=np.float64)
+
+
+_U01 = np.array([[0], [1]], dtype=np.int8)  # universe FALSE and UNK, against which u is compared
+
+
+def decode_numeric(plan: NumericPlan, x: np.ndarray, u: np.ndarray | None, status: np.ndarray,
+                   kind: np.ndarray, state: np.ndarray | None, s: Scratch) -> None:
+    """Statuses, kinds and (if ``state`` is given) rule states of a number column ``x`` (float64).
+
+    ``u`` is the universe (int8 FALSE/UNK/TRUE; None: TRUE everywhere).  Writes ``status``,
+    ``kind`` (int8) and ``state`` in place; gives the statuses and kinds of :func:`decode_item`
+    with the status table.
+    """
+    n = len(x)
+    masks, acc, term = s.masks[:, :n], s.acc[:, :n], s.term[:, :n]
+    blank, valid, tmp = masks[0], masks[1], s.tmp[:n]
+    np.isnan(x, out=blank)
+    with np.errstate(invalid="ignore"):
+        first = True
+        for op, v in plan.tests:
+            dst = valid if first else tmp
+            if op == "ge":
+                np.greater_equal(x, v, out=dst)
+            elif op == "le":
+                np.less_equal(x, v, out=dst)
+            elif op == "int":
+                np.equal(np.floor(x, out=s.real[:n]), x, out=dst)
+            elif op == "real":
+                np.logical_not(blank, out=dst)
+            else:
+                dst[...] = isin_small(x, list(v))  # type: ignore[arg-type]
+            if not first:
+                np.logical_and(valid, tmp, out=valid)
+            first = False
+    k = len(plan.code_values)
+    if k:
+        hits = masks[2:2 + k]
+        np.equal(x[None, :], np.asarray(plan.code_values)[:, None], out=hits)
+        for i in plan.overlap:
+            np.greater(valid, hits[i], out=valid)  # valid and not this code
+    acc[...] = plan.base[:, None]
+    for c in range(plan.classes):
+        np.multiply(plan.consts[:, c:c + 1], masks[c].view(np.uint8)[None, :], out=term)
+        np.add(acc, term, out=acc)
+    word = acc[0]
+    if u is not None:
+        where = s.where[:, :n]
+        np.equal(u[None, :], _U01, out=where)
+        np.multiply(acc[1:3], where.view(np.uint8), out=acc[1:3])
+        np.add(word, acc[1], out=word)
+        np.add(word, acc[2], out=word)
+    np.bitwise_and(word, np.uint8(63), out=status.view(np.uint8))
+    kind[...] = acc[3].view(np.int8)
+    if state is not None:
+        np.right_shift(word, np.uint8(_STATE_SHIFT), out=state.view(np.uint8))

@@ -47,6 +47,7 @@ from skipwise.classify.breakoff import apply_breakoff
 from skipwise.classify.result import Classification, status_categories
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.questionnaire.model import Item, ItemType, Questionnaire
+from skipwise.rules import ast
 from skipwise.rules.evaluate import ABSENT, KNOWN, TRUE, UNK, UNKNOWN, Operand, evaluate, isin_small
 
 __all__ = ["classify", "check_columns", "default_jobs", "BLOCK_ROWS"]
@@ -73,7 +74,7 @@ def check_columns(data: pd.DataFrame, q: Questionnaire) -> None:
 
 
 class _Env:
-    """Rule inputs for every case, filled in as items are classified."""
+    """Rule inputs for every case of one block, filled in as items are classified."""
 
     def __init__(self, data: pd.DataFrame, q: Questionnaire):
         self.data = data
@@ -82,6 +83,7 @@ class _Env:
         self._operands: dict[str, Operand] = {}
         self._answered: dict[str, np.ndarray] = {}
         self._codes: dict[str, tuple[Item, np.ndarray]] = {}
+        self._numbers: dict[str, tuple[Item, np.ndarray, np.ndarray]] = {}  # fast-path items: values, kinds
 
     def operand(self, name: str) -> Operand:
         if name not in self._operands:  # a context column, read on first use
@@ -96,10 +98,16 @@ class _Env:
 
     def answered(self, name: str) -> np.ndarray:
         if name not in self._answered:
-            self.operand(name)
+            if name in self._numbers:
+                self._answered[name] = self._numbers[name][2] == K.SUBST
+            else:
+                self.operand(name)
         return self._answered[name]
 
     def has_code(self, name: str, reason: str) -> np.ndarray:
+        if name not in self._codes:  # a fast-path item: its codes matched on first use
+            item, x, _ = self._numbers[name]
+            self._codes[name] = (item, K.match_codes(item.codes, x))
         item, code = self._codes[name]
         return isin_small(code, [i for i, c in enumerate(item.codes) if c.reason == reason])
 
@@ -115,6 +123,11 @@ class _Env:
                 self._operands[col] = Operand(num, state)
                 self._answered[col] = answered
                 self._codes[col] = (item, dec.code)
+
+    def add_number(self, item: Item, x: np.ndarray, kind: np.ndarray, state: np.ndarray) -> None:
+        """Record a fast-path item: its values and states now, its codes and answers when a rule asks."""
+        self._operands[item.name] = Operand(x, state)
+        self._numbers[item.name] = (item, x, kind)
 
 
 #: Rows per block.  Fixed, so the blocks (and so the results) never depend on ``jobs``.
@@ -170,6 +183,7 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
     kinds = np.empty((n, p), dtype=np.int8, order="F")
     universe = np.empty((n, p), dtype=np.int8, order="F")
     tables = _Tables(q, cats)
+    numbers = _number_columns(data, q, tables)
     starts = list(range(0, n, BLOCK_ROWS)) or [0]
     blocks = [(lo, min(lo + BLOCK_ROWS, n)) for lo in starts]
     units = len(blocks) * p
@@ -182,7 +196,8 @@ def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: Prog
 
     def run(block: tuple[int, int], per_item: Callable[[int], None] | None) -> None:
         lo, hi = block
-        _classify_block(data.iloc[lo:hi], q, tables, status[lo:hi], kinds[lo:hi], universe[lo:hi], per_item)
+        _classify_block(data.iloc[lo:hi], lo, q, tables, numbers, status[lo:hi], kinds[lo:hi], universe[lo:hi],
+                        per_item)
 
     if jobs == 1 or len(blocks) == 1:
         for block in blocks:
@@ -209,46 +224,67 @@ class _Tables:
         self.base_optional = _status_table(code_of, optional=True).ravel()
         self.reason_code = {item.name: np.array([code_of.get(c.reason, -1) for c in item.codes] + [-1], dtype=np.int8)
                             for item in q.items}
-        self.words = {item.name: self._words(item) for item in q.items} if len(cats) <= 64 else {}
-
-    def _words(self, item: Item) -> tuple[int, int, int, tuple[int, ...]] | None:
-        """Packed outcome words of the numeric fast path (:func:`cells.packed_word`); None: no fast path."""
-        table = (self.base_optional if item.optional else self.base).reshape(5, 3)
-
-        def word(kind: int, reason: int = -1) -> int | None:
-            statuses = tuple(int(reason if s < 0 else s) for s in table[kind])
-            if min(statuses) < 0:
-                return None
-            return K.packed_word(statuses, kind, tuple(int(self.state_of[s]) for s in statuses))  # type: ignore
-
-        codes = [word(K.KIND_OF[c.kind], int(r)) for c, r in zip(item.codes, self.reason_code[item.name])]
-        words = (word(K.BLANK), word(K.SUBST), word(K.INVALID))
-        if any(w is None for w in (*words, *codes)):
-            return None
-        return (*words, tuple(codes))  # type: ignore[return-value]
+        self.plans = {item.name: K.numeric_plan(item, (self.base_optional if item.optional else self.base).reshape(5, 3),
+                                                 self.reason_code[item.name], self.state_of)
+                      for item in q.items if item.type is not ItemType.MULTI}
+        # Names some rule reads: only their rule states are kept.
+        self.read = {name for item in q.items if item.rule is not None for name, _ in ast.names(item.rule)}
 
 
-def _classify_block(data: pd.DataFrame, q: Questionnaire, t: _Tables, status: np.ndarray, kinds: np.ndarray,
+def _number_columns(data: pd.DataFrame, q: Questionnaire, t: _Tables
+                    ) -> dict[str, tuple[K.NumericPlan, np.ndarray | None]]:
+    """Fast-path items: plan and stored numbers.
+
+    The numbers are the column's own numpy array (no copy; float64 per block later), or None for
+    a pandas extension dtype (nullable integers, Arrow numbers), read per block through pandas.
+    """
+    out: dict[str, tuple[K.NumericPlan, np.ndarray | None]] = {}
+    for item in q.items:
+        plan = t.plans.get(item.name)
+        if plan is None:
+            continue
+        series = data[item.name]
+        if K.numeric_fast_path(item, series):
+            out[item.name] = (plan, series.to_numpy() if isinstance(series.dtype, np.dtype) else None)
+    return out
+
+
+def _classify_block(data: pd.DataFrame, lo: int, q: Questionnaire, t: _Tables,
+                    numbers: dict[str, tuple[K.NumericPlan, np.ndarray | None]], status: np.ndarray, kinds: np.ndarray,
                     universe: np.ndarray, per_item: Callable[[int], None] | None) -> None:
-    """Classify the rows of ``data`` into the matching rows of the three matrices (in place)."""
+    """Classify the rows of ``data`` (from row ``lo`` of the file) into the matching matrix rows (in place)."""
     n = len(data)
     env = _Env(data, q)
+    scratch = K.Scratch(n, max((plan.classes for plan, _ in numbers.values()), default=2))
     for j, item in enumerate(q.items):
         # The rule reads earlier items only, so the universe comes first.
-        u = evaluate(item.rule, env) if item.rule is not None else np.full(n, TRUE, dtype=np.int8)
-        words = t.words.get(item.name)
-        series = data[item.name] if item.type is not ItemType.MULTI else None
-        if words is not None and series is not None and K.numeric_fast_path(item, series):
-            dec, st, state = K.decode_numeric(item, series, words, u)
+        u = evaluate(item.rule, env) if item.rule is not None else None
+        if u is None:
+            universe[:, j] = TRUE
+        else:
+            universe[:, j] = u
+        number = numbers.get(item.name)
+        if number is not None:
+            plan, column = number
+            if column is None:
+                x = K.column_views(data[item.name])[0]
+            else:
+                x = column[lo:lo + n]
+                if x.dtype != np.float64:
+                    x = x.astype(np.float64)
+            state = np.empty(n, dtype=np.int8) if item.name in t.read else None
+            K.decode_numeric(plan, x, u, status[:, j], kinds[:, j], state, scratch)
+            if state is not None:
+                env.add_number(item, x, kinds[:, j], state)
         else:
             dec = K.decode_item(item, data)
-            st = np.take(t.base_optional if item.optional else t.base, dec.kind * np.int8(3) + u)
+            uu = universe[:, j]
+            st = np.take(t.base_optional if item.optional else t.base, dec.kind * np.int8(3) + uu)
             nonresp = st < 0
             if nonresp.any():
                 st[nonresp] = t.reason_code[item.name][dec.code[nonresp]]
-            state = np.take(t.state_of, st)
-        status[:, j], kinds[:, j], universe[:, j] = st, dec.kind, u
-        env.add(item, dec, state)
+            status[:, j], kinds[:, j] = st, dec.kind
+            env.add(item, dec, np.take(t.state_of, st))
         if per_item is not None:
             per_item(1)
     apply_breakoff(status, kinds, data, q, t.code_of)
