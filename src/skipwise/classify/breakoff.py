@@ -37,6 +37,24 @@ from skipwise.questionnaire.model import Questionnaire
 __all__ = ["apply_breakoff", "last_activity"]
 
 
+def _position_dtype(p: int) -> type:
+    """The narrowest unsigned type holding positions 0..p (one byte for questionnaires up to 254 items)."""
+    return np.uint8 if p < 255 else np.uint16 if p < 65535 else np.uint32
+
+
+def _activity_end(kinds: np.ndarray, counted: np.ndarray | None, dtype: type) -> np.ndarray:
+    """Position + 1 of each case's last activity (0: none), in ``dtype``: a running maximum over items."""
+    last = np.zeros(kinds.shape[0], dtype=dtype)
+    act = np.empty(kinds.shape[0], dtype=bool)
+    step = np.empty(kinds.shape[0], dtype=dtype)
+    for j in range(kinds.shape[1]):
+        if counted is None or counted[j]:
+            np.greater_equal(kinds[:, j], K.NONRESP, out=act)  # NONRESP, SUBST, INVALID
+            np.multiply(act.view(np.uint8), dtype(j + 1), out=step, dtype=dtype)
+            np.maximum(last, step, out=last)
+    return last
+
+
 def last_activity(kinds: np.ndarray, counted: np.ndarray | None = None) -> np.ndarray:
     """Index of each case's last item with an answer, code of nonresponse or invalid value (-1: none).
 
@@ -44,13 +62,7 @@ def last_activity(kinds: np.ndarray, counted: np.ndarray | None = None) -> np.nd
     (optional items).  One pass over the item columns (contiguous in the Fortran-ordered matrix),
     never over cases.
     """
-    # position + 1 of the latest activity so far: a running maximum, no masked copy per item
-    last = np.zeros(kinds.shape[0], dtype=np.int32)
-    for j in range(kinds.shape[1]):
-        if counted is None or counted[j]:
-            np.maximum(last, (kinds[:, j] >= K.NONRESP) * np.int32(j + 1), out=last)  # NONRESP, SUBST, INVALID
-    last -= 1
-    return last
+    return _activity_end(kinds, counted, _position_dtype(kinds.shape[1])).astype(np.int32) - 1
 
 
 def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q: Questionnaire,
@@ -63,30 +75,44 @@ def apply_breakoff(status: np.ndarray, kinds: np.ndarray, data: pd.DataFrame, q:
     missing, unknown, breakoff = code_of[S.ITEM_MISSING], code_of[S.GATE_UNKNOWN], code_of[S.BREAKOFF]
     left_blank = code_of[S.LEFT_BLANK]
     required = np.array([not it.optional for it in q.items], dtype=bool)
+    dtype = _position_dtype(p)
 
-    def candidate(j: int) -> np.ndarray:
-        col = status[:, j]
-        return (col == missing) | (col == unknown) | (col == left_blank)
+    def candidate(col: np.ndarray, out: np.ndarray, tmp: np.ndarray) -> np.ndarray:
+        np.equal(col, missing, out=out)
+        out |= np.equal(col, unknown, out=tmp)
+        out |= np.equal(col, left_blank, out=tmp)
+        return out
 
-    # `end` is the position after which a broken-off case's blank cells become break-offs.
-    end = last_activity(kinds, required)
+    # `end` (position + 1) is where a broken-off case's blank cells start becoming break-offs.
+    end = _activity_end(kinds, required, dtype)
     if spec.disposition:
         broke = data[spec.disposition].isin(list(spec.breakoff_codes)).to_numpy()
     else:
-        trailing = np.zeros(n, dtype=np.int32)
+        trailing = np.zeros(n, dtype=dtype)
+        cand, tmp, after = (np.empty(n, dtype=bool) for _ in range(3))
         for j in np.flatnonzero(required):
-            trailing += candidate(j) & (end < j)
+            candidate(status[:, j], cand, tmp)
+            np.less_equal(end, dtype(j), out=after)
+            cand &= after
+            np.add(trailing, cand.view(np.uint8), out=trailing, dtype=dtype)
         broke = trailing >= spec.min_run
         if spec.last_item:
             reached = _position_of_last_item(data[spec.last_item], q)
             given = reached >= -1
-            end = np.where(given, reached, end)
+            end = np.where(given, reached + 1, end).astype(dtype)
             broke = broke | given
+    rows = np.flatnonzero(broke)
+    if rows.size == 0:
+        return
+    # Only the broken-off cases change: their rows, gathered (few in most files), then put back.
+    sub, sub_end = status[rows], end[rows]
+    cand, tmp = np.empty(rows.size, dtype=bool), np.empty(rows.size, dtype=bool)
     for j in range(p):
-        turn = candidate(j) & broke & (end < j)
+        col = sub[:, j]
+        turn = candidate(col, cand, tmp) & (sub_end <= j)
         if turn.any():  # arithmetic on the int8 column: breakoff where turned, unchanged elsewhere
-            col = status[:, j]
             col += turn.view(np.int8) * (np.int8(breakoff) - col)
+    status[rows] = sub
 
 
 def _position_of_last_item(column: pd.Series, q: Questionnaire) -> np.ndarray:

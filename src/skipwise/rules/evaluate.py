@@ -69,6 +69,8 @@ class Environment(Protocol):
 def evaluate(node: ast.BoolNode, env: Environment) -> np.ndarray:
     """Truth of a rule for every case: an int8 array of ``FALSE``, ``UNK``, ``TRUE``."""
     out = _truth(node, env)
+    if isinstance(out, np.ndarray) and out.shape == (env.n,) and out.dtype == np.int8:
+        return out  # every node gives a new array, never one the environment holds
     return np.broadcast_to(np.asarray(out, dtype=np.int8), (env.n,)).copy()
 
 
@@ -78,7 +80,9 @@ def _truth(node: ast.Node, env: Environment) -> np.ndarray:
         combine = np.minimum if node.op == "and" else np.maximum
         out = vals[0]
         for v in vals[1:]:
-            out = combine(out, v)
+            # in place where the running value is an array of its own (every node gives a new one)
+            out = combine(out, v, out=out) if isinstance(out, np.ndarray) and out.shape == np.shape(
+                np.broadcast(out, v)) else combine(out, v)
         return out
     if isinstance(node, ast.Not):
         return (TRUE - _truth(node.operand, env)).astype(np.int8)
@@ -88,7 +92,7 @@ def _truth(node: ast.Node, env: Environment) -> np.ndarray:
         return _bool_truth(env.has_code(node.name, node.reason))
     if isinstance(node, ast.Compare):
         left, right = _value(node.left, env), _value(node.right, env)
-        return _from_state(_compare(node.op, left, right), np.maximum(left.state, right.state))
+        return _from_state(_compare(node.op, left, right), _worse(left.state, right.state))
     if isinstance(node, ast.InList):
         opnd = _value(node.operand, env)
         hit = _isin(opnd, node.options)
@@ -101,6 +105,15 @@ def _bool_truth(flags: np.ndarray) -> np.ndarray:
     return np.ascontiguousarray(flags, dtype=bool).view(np.int8) * np.int8(TRUE)
 
 
+def _worse(a: np.ndarray | int, b: np.ndarray | int) -> np.ndarray | int:
+    """The state of a combination: the larger (KNOWN < UNKNOWN < ABSENT); a known constant changes nothing."""
+    if np.ndim(b) == 0 and b == KNOWN:
+        return a
+    if np.ndim(a) == 0 and a == KNOWN:
+        return b
+    return np.maximum(a, b)
+
+
 def _from_state(result: np.ndarray, state: np.ndarray | int) -> np.ndarray:
     """Known cases take the comparison; unknown ones UNK; absent ones FALSE."""
     result = np.asarray(result, dtype=bool)
@@ -109,10 +122,14 @@ def _from_state(result: np.ndarray, state: np.ndarray | int) -> np.ndarray:
         if state == KNOWN:
             return _bool_truth(result)
         return np.int8(UNK if state == UNKNOWN else FALSE)
-    # Arithmetic on bool-as-int8 views: TRUE=2 for known hits, UNK=1 for unknown, else FALSE=0.
-    truth = _bool_truth(result & (state == KNOWN))
-    truth += (state == UNKNOWN).view(np.int8)
-    return truth
+    # With KNOWN=0, UNKNOWN=1, ABSENT=2: min(2 * hit + state, 2 - state) is 2 * hit when known,
+    # 1 (UNK) when unknown and 0 (FALSE) when absent.  Arithmetic on int8, no masks.
+    state = state.astype(np.int8, copy=False)
+    if result.shape != state.shape:
+        result, state = np.broadcast_arrays(result, state)
+    truth = np.left_shift(np.ascontiguousarray(result).view(np.int8), 1)
+    truth += state
+    return np.minimum(truth, np.int8(TRUE) - state, out=truth)
 
 
 def _value(node: ast.Node, env: Environment) -> Operand:
@@ -193,7 +210,11 @@ def isin_small(values: np.ndarray, options: list) -> np.ndarray:
     """``np.isin`` for a short list of options: ORed equalities are far faster than sorting."""
     if len(options) > 16:
         return np.isin(values, np.asarray(options))
-    out = np.zeros(np.shape(values), bool)
-    for o in options:
-        out |= values == o
+    if not options:
+        return np.zeros(np.shape(values), bool)
+    out = np.asarray(values == options[0])
+    if len(options) > 1:
+        hit = np.empty(out.shape, bool)
+        for o in options[1:]:
+            out |= np.equal(values, o, out=hit)
     return out
