@@ -43,12 +43,29 @@ def cell_text(series: pd.Series) -> pd.Series:
     return series.astype(object).where(series.notna(), "").astype(str)
 
 
+def _number_codes(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Codes and distinct numbers of ``x``: offsets from the least whole number where the numbers
+    are whole and few apart (no hashing), else a factorization; NaN is a value of its own."""
+    nan = np.isnan(x)
+    finite = x[~nan] if nan.any() else x
+    if finite.size:
+        lo, hi = finite.min(), finite.max()
+        if np.isfinite(lo) and np.isfinite(hi) and hi - lo < 4096 and bool((np.floor(finite) == finite).all()):
+            span = int(hi - lo) + 1
+            codes = np.subtract(x, lo, out=np.empty_like(x))
+            codes[nan] = span
+            # every whole number lo..hi gets a text, used or not: at most 4,097 short texts
+            return codes.astype(np.int64), np.append(np.arange(span, dtype=np.float64) + lo, np.nan)
+    codes, uniques = pd.factorize(x, use_na_sentinel=False)
+    return codes, uniques
+
+
 def _coded_text(series: pd.Series, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Codes (one per row) and the distinct texts they index, for ``series`` at ``rows``."""
     if _is_number(series.dtype):
         # Distinct numbers first, then text for each distinct number only.
         x = series.to_numpy(dtype=np.float64, na_value=np.nan)[rows]
-        codes, uniques = pd.factorize(x, use_na_sentinel=False)
+        codes, uniques = _number_codes(x)
         return codes, _number_text(uniques)
     text = cell_text(series.iloc[rows]).to_numpy(dtype=object)
     codes, uniques = pd.factorize(text, use_na_sentinel=False)
@@ -58,18 +75,34 @@ def _coded_text(series: pd.Series, rows: np.ndarray) -> tuple[np.ndarray, np.nda
 def _joined(data: pd.DataFrame, columns: list[str], rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """``col=value; col=value`` at each of ``rows``, as codes and distinct texts.
 
-    The codes of the columns are combined one column at a time and factorized again, so the
-    text is built once per distinct combination of stored values.
+    The codes of the columns are combined into one number per row (mixed radix) and factorized
+    once, so the text is built once per distinct combination of stored values.
     """
     if not columns:
         return np.zeros(rows.size, dtype=np.int64), np.array([""], dtype=object)
-    codes = np.zeros(rows.size, dtype=np.int64)
-    texts = np.array([""], dtype=object)
-    for k, col in enumerate(columns):
-        c, t = _coded_text(data[col], rows)
-        codes, combos = pd.factorize(codes * len(t) + c)
-        part = (col + "=") + t[combos % len(t)]
-        texts = (texts[combos // len(t)] + "; " + part) if k else part
+    parts = [_coded_text(data[col], rows) for col in columns]
+    if len(parts) == 1:
+        codes, texts = parts[0]
+        return codes, (columns[0] + "=") + texts
+    sizes = [len(t) for _, t in parts]
+    if float(np.prod(np.array(sizes, dtype=np.float64))) >= 2.0 ** 62:
+        # too many combinations for one number: combine two columns at a time instead
+        codes, texts = parts[0][0], (columns[0] + "=") + parts[0][1]
+        for col, (c, t) in zip(columns[1:], parts[1:]):
+            codes, combos = pd.factorize(codes * len(t) + c)
+            texts = texts[combos // len(t)] + "; " + ((col + "=") + t[combos % len(t)])
+        return codes, texts
+    combined = parts[0][0].astype(np.int64, copy=True)
+    for (c, _), size in zip(parts[1:], sizes[1:]):
+        combined *= size
+        combined += c
+    codes, combos = pd.factorize(combined)
+    texts = None
+    for k in range(len(parts) - 1, -1, -1):  # the last column is the lowest digit
+        digit = combos % sizes[k]
+        combos = combos // sizes[k]
+        part = (columns[k] + "=") + parts[k][1][digit]
+        texts = part if texts is None else part + "; " + texts
     return codes, texts
 
 
@@ -89,21 +122,21 @@ def _rule_columns(q: Questionnaire, rule: ast.BoolNode | None) -> list[str]:
 
 
 class _Texts:
-    """Codes per fault and distinct texts, gathered item by item into one text column."""
+    """Codes per fault and distinct texts, written item by item into one preallocated code array."""
 
-    def __init__(self) -> None:
-        self.codes: list[np.ndarray] = []
+    def __init__(self, total: int) -> None:
+        self.codes = np.empty(total, dtype=np.int32 if total < 2**31 else np.int64)
         self.texts: list[np.ndarray] = []
         self.size = 0
 
-    def add(self, coded: tuple[np.ndarray, np.ndarray]) -> None:
+    def add(self, at: int, coded: tuple[np.ndarray, np.ndarray]) -> None:
         codes, texts = coded
-        self.codes.append(codes.astype(np.int64, copy=False) + self.size)
+        np.add(codes, self.size, out=self.codes[at:at + len(codes)], casting="unsafe")
         self.texts.append(texts)
         self.size += len(texts)
 
     def column(self) -> pd.Series | np.ndarray:
-        return text_column(np.concatenate(self.codes), np.concatenate(self.texts))
+        return text_column(self.codes, np.concatenate(self.texts))
 
 
 _STR = pd.Series(np.array(["x"], dtype=object)).dtype  # the text dtype pandas gives object arrays of str
@@ -113,15 +146,22 @@ def text_column(codes: np.ndarray, texts: np.ndarray) -> pd.Series | np.ndarray:
     """``texts[codes]`` as the column pandas would make of it, built without a Python pass per cell.
 
     Where pandas stores text in Arrow arrays, the distinct texts go to Arrow once and are taken
-    there by the codes (a dictionary array decoded); otherwise the object array itself.
+    there by the codes (Arrow's take: the strings written once, at their final place); otherwise
+    the object array itself.
     """
     if isinstance(_STR, pd.StringDtype) and _STR.storage == "pyarrow":
         import pyarrow as pa
 
-        taken = pa.DictionaryArray.from_arrays(pa.array(codes), pa.array(texts, type=pa.large_string())
-                                               ).dictionary_decode()
+        import pyarrow.compute as pc
+
+        taken = pc.take(pa.array(texts, type=pa.large_string(), from_pandas=True), codes)
         return pd.Series(pd.arrays.ArrowStringArray(taken, dtype=_STR), copy=False)
     return texts[codes]
+
+
+def _nulls_are_nan() -> bool:
+    """Whether pandas turns an object array of texts and None into its text dtype with NaN (pandas 3)."""
+    return isinstance(_STR, pd.StringDtype) and _STR.storage == "pyarrow" and _STR.na_value is np.nan
 
 
 def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ...], fault_codes: list[int],
@@ -130,32 +170,33 @@ def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ..
 
     Reads only the item's own columns and the columns its rule reads, at the faulty rows.
     """
-    rows_all, item_of, rules, positions = [], [], [], []
-    values, inputs, status = _Texts(), _Texts(), []
-    names: list[str] = []
-    for j, name in enumerate(q.item_names):
-        rows = np.flatnonzero(isin_small(codes[:, j], fault_codes))
-        if rows.size == 0:
-            continue
-        item = q.item(name)
-        rows_all.append(rows)
-        item_of.append(np.full(rows.size, len(names), dtype=np.int64))
-        status.append(codes[rows, j])
-        names.append(name)
-        positions.append(j)
-        rules.append(item.rule_text)
-        values.add(_stored_text(data, item.columns, rows, multi=item.type is ItemType.MULTI))
-        inputs.add(_joined(data, _rule_columns(q, item.rule), rows))
-    if not rows_all:
+    items = q.items
+    found = [(j, np.flatnonzero(isin_small(codes[:, j], fault_codes))) for j in range(len(items))]
+    found = [(j, rows) for j, rows in found if rows.size]
+    if not found:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in FAULT_COLUMNS})
-    which = np.concatenate(item_of)
+    total = sum(rows.size for _, rows in found)
+    rows_all = np.concatenate([rows for _, rows in found])
+    which = np.repeat(np.arange(len(found), dtype=np.int32), [rows.size for _, rows in found])
+    status = np.empty(total, dtype=np.int32)
+    values, inputs = _Texts(total), _Texts(total)
+    names, rules = [], []
+    at = 0
+    for j, rows in found:
+        item = items[j]
+        names.append(item.name)
+        rules.append(item.rule_text)
+        status[at:at + rows.size] = codes[rows, j]
+        values.add(at, _stored_text(data, item.columns, rows, multi=item.type is ItemType.MULTI))
+        inputs.add(at, _joined(data, _rule_columns(q, item.rule), rows))
+        at += rows.size
     rule_texts = np.asarray(rules, dtype=object)
-    # (an item without a rule has no rule text: None, as the listing always showed it)
-    rule = rule_texts[which] if any(r is None for r in rules) else text_column(which, rule_texts)
+    # (an item without a rule has no rule text: missing, as the listing always showed it)
+    rule = text_column(which, rule_texts) if _nulls_are_nan() else rule_texts[which]
     return pd.DataFrame({
-        "case_id": case_ids[np.concatenate(rows_all)],
+        "case_id": case_ids[rows_all],
         "item": text_column(which, np.asarray(names, dtype=object)),
-        "status": text_column(np.concatenate(status).astype(np.int64), np.asarray(categories, dtype=object)),
+        "status": text_column(status, np.asarray(categories, dtype=object)),
         "value": values.column(),
         "rule": rule,
         "inputs": inputs.column(),
