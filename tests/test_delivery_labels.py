@@ -144,3 +144,14 @@ def test_demo_delivers_the_age_band_made_for_a_margin(demo_output):
     # the outcome category is a labelled number there too
     assert set(df["wt_outcome"].dropna()) <= set(range(1, 9))
     assert meta.variable_value_labels["wt_outcome"][1] == "I: complete interview"
+
+
+def test_item_report_uses_the_same_words_as_the_files():
+    # One wording everywhere: the workbook's status labels and the files' value labels.
+    from skipwise.classify.delivery import status_value_labels
+    from skipwise.questionnaire import loads_questionnaire
+    from skipwise.rates import status_label
+
+    q = loads_questionnaire(Q)
+    for status in ("skipped", "item_missing", "dont_know", "refused"):
+        assert status_label(status, q) == status_value_labels({status: 0}, q)[0] == WORDS[status]

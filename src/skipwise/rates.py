@@ -124,7 +124,9 @@ def status_label(status: str, questionnaire=None) -> str:
         for code in (*questionnaire.codes, *(c for it in questionnaire.items for c in it.codes)):
             if code.reason == status and getattr(code, "label", None):
                 return f"{code.label} (nonresponse)"
-    return status.replace("_", " ").capitalize() + " (nonresponse)"
+    from skipwise.classify.delivery import REASON_WORDS  # the words the delivered files use too
+
+    return (REASON_WORDS.get(status) or status.replace("_", " ").capitalize()) + " (nonresponse)"
 
 
 def format_rate(x: float | None) -> str:
