@@ -201,7 +201,7 @@ def test_poststratified_weights_meet_the_closed_form(data, client, tmp_path):
                                  "    region: {north: 6000, south: 4000}\n")
     weigh_on_cluster(root / "parts", plan, tmp_path / "ps", client=client, parts=parquet_parts(root / "parts"))
     got = _parts(tmp_path / "ps")
-    resp = got["wt_outcome"].isin(["I", "P"])
+    resp = got["wt_outcome"].isin([1, 2])  # I and P (docs/weighting.md: outcome numbers 1-8)
     for h, n_h in (("north", 6000), ("south", 4000)):
         sel = resp & (got["region"] == h)
         d = got.loc[sel, "wt_nonresponse"]

@@ -207,11 +207,18 @@ def _write_part(part, state, index: int, staging: str, columns: dict, labels: di
     from skipwise.scale.sources import read_part
 
     frame = read_part(part)
-    added = {name: (state.outcome.astype(str) if values is None else values) for name, values in columns.items()}
+    from skipwise.weighting.outcomes import OUTCOME_NUMBERS, OUTCOME_VALUE_LABELS
+
+    # the outcome category as its labelled number 1-8, as the in-memory engine delivers it
+    added = {name: (pd.Series(np.asarray(state.outcome)).map(OUTCOME_NUMBERS).to_numpy(dtype=np.int64)
+                    if values is None else values)
+             for name, values in columns.items()}
     out = pd.concat([frame, pd.DataFrame(added, index=frame.index)], axis=1)
     meta = get_meta(frame)
     for col, label in labels.items():
-        meta = meta.with_column(col, label=label, measure="nominal" if col.endswith("outcome") else "scale")
+        outcome = col.endswith("outcome")
+        meta = meta.with_column(col, label=label, measure="nominal" if outcome else "scale",
+                                value_labels=OUTCOME_VALUE_LABELS if outcome else None)
     name = f"part-{index:05d}.parquet"
     target = Path(staging) / name
     write_survey(out, target, meta, overwrite=True)
