@@ -1,12 +1,12 @@
 """The bad-input catalogue (tests/bad_inputs/catalogue.yaml), run through the command line.
 
-Every case must end the way DESIGN.md section 5 fixes for a user error: exit status 1 and
+Every case must end the way docs/contract.md §4 fixes for a user error: exit status 1 and
 one readable message without a traceback, here also holding the catalogue's fragment and
 exactly its problem codes; no output file (nor a leftover temporary ``.part`` file) is
 written and no input file changes.  A small happy path then checks that no successful
 command modifies its inputs and that an existing output is replaced only with --overwrite
 (README, "File formats").  The expected messages are the project's own wording: the
-outside rule checked is the exit-status and no-partial-output contract of DESIGN.md.
+outside rule checked is the exit-status and no-partial-output contract of docs/contract.md §4.
 """
 
 from __future__ import annotations
@@ -146,7 +146,7 @@ def test_catalogue_is_well_formed():
 def test_bad_input(case, tmp_path, recorded):
     result, in_before, in_after, out_before, out_after, out = run_case(case, tmp_path, recorded)
     text = result.output
-    if case.get("exit") == 2:  # a usage error (DESIGN §5): click's message, nothing written or recorded
+    if case.get("exit") == 2:  # a usage error (docs/contract.md §4): click's message, nothing written or recorded
         assert result.exit_code == 2, f"exit {result.exit_code}: {text}\n{result.exception!r}"
         assert case["message"] in text and "Traceback" not in text and recorded == []
         assert out_after == out_before and in_after == in_before

@@ -1,7 +1,7 @@
 """Tests of `skipwise check`: a questionnaire against the data it describes.
 
 The expected findings are hand-counted on the tiny inline frames (invented data), following
-the declarations of DESIGN §2 (categories, ranges, codes, case id); duplicate counts are
+the declarations of docs/questionnaire-format.md (categories, ranges, codes, case id); duplicate counts are
 cross-checked with pandas' own ``Series.duplicated`` (outside reference).
 """
 

@@ -1,4 +1,4 @@
-"""Cell statuses against DESIGN §3, case by case, on tiny inline frames."""
+"""Cell statuses against docs/contract.md §1, case by case, on tiny inline frames."""
 
 from __future__ import annotations
 
@@ -81,7 +81,7 @@ def test_status_table(classified, row):
 
 
 def test_skipped_gate_makes_not_equal_false_but_not_equal_negation_true():
-    # DESIGN §2: with x skipped, `x != 1` is false while `not x == 1` is true.
+    # docs/contract.md §3: with x skipped, `x != 1` is false while `not x == 1` is true.
     q = loads_questionnaire(textwrap.dedent("""\
         format: 1
         survey: {name: t, case_id: id}

@@ -1,6 +1,6 @@
 """Classification in row blocks and threads: the result never depends on ``jobs`` or on the blocks.
 
-Classification is row-local (DESIGN §3), so classifying fixed blocks of rows apart, in any order
+Classification is row-local (docs/contract.md §1), so classifying fixed blocks of rows apart, in any order
 and on any number of threads, must give the statuses of classifying the whole file at once.
 """
 

@@ -1,4 +1,4 @@
-"""Hypothesis invariants of the classifier (DESIGN §2-§3).
+"""Hypothesis invariants of the classifier (docs/contract.md §1 and §3).
 
 The routing of the test questionnaire is also written out by hand below (``walk``), so the
 "answered along the routing" property does not rely on the rule evaluator under test, and
@@ -105,7 +105,7 @@ def test_every_off_route_cell_has_a_false_rule(frame):
 
 
 class _RowEnv:
-    """Rule inputs of one case, rebuilt from the statuses (DESIGN §2), for the reference evaluator."""
+    """Rule inputs of one case, rebuilt from the statuses (docs/contract.md §3), for the reference evaluator."""
 
     def __init__(self, frame: pd.DataFrame, status: pd.DataFrame, i: int):
         self.ops, self.ans, self.codes = {}, {}, {}
@@ -126,7 +126,7 @@ def walk(rng: np.random.Generator, n: int) -> pd.DataFrame:
     zone = rng.choice([1, 2], n)
     b = np.where(a == 1, rng.integers(0, 11, n), np.nan)
     c = np.where(b > 3, rng.integers(0, 11, n), np.nan)
-    # a skipped c makes `c != 5` false (DESIGN §2), so d needs c asked and not 5
+    # a skipped c makes `c != 5` false (docs/contract.md §3), so d needs c asked and not 5
     d = np.where((a == 1) & ~np.isnan(c) & (c != 5), rng.integers(1, 4, n), np.nan)
     m_x, m_y = rng.integers(0, 2, n), rng.integers(0, 2, n)
     e = np.where((m_x == 1) | (zone == 2), rng.integers(0, 6, n), np.nan)

@@ -59,11 +59,11 @@ def test_classify_writes_status_columns_and_faults(files):
     assert result.exit_code == 0, result.output
     # Read back with pyreadstat directly, not through skipwise.
     frame, meta = pyreadstat.read_sav(str(out))
-    # DESIGN §3 numbers: answered 1, off_route 6, refused 12 (built-in, docs/statuses.md), gate_unknown 4
+    # docs/contract.md §1 numbers: answered 1, off_route 6, refused 12 (built-in, docs/statuses.md), gate_unknown 4
     assert frame["amount_status"].tolist() == [1, 6, 12, 4]
     # the status in words, as in every format (the report's labels, skipwise.rates.STATUS_LABELS)
     assert meta.variable_value_labels["amount_status"][6.0] == "Answer or code where not asked (routing fault)"
-    # DESIGN §8: the listing of x.sav is x.sav.faults.csv; its case id column keeps the data's name.
+    # docs/contract.md §5: the listing of x.sav is x.sav.faults.csv; its case id column keeps the data's name.
     faults = pd.read_csv(tmp / "out.sav.faults.csv")
     assert faults[["id", "item", "status", "value", "inputs"]].values.tolist() == [
         [2, "amount", "off_route", 3, "gate=2"]]
@@ -94,7 +94,7 @@ def test_classify_recoded_dta_read_by_pandas(files):
     # pandas' own Stata reader (an independent implementation) sees the extended missing letters.
     back = pd.read_stata(out, convert_missing=True, convert_categoricals=False)
     cells = [v.string if hasattr(v, "string") else v for v in back["amount"]]
-    # DESIGN §3: off_route 6 -> .e, refused (built-in reason 12, docs/statuses.md) -> .j, gate_unknown 4 -> .c
+    # docs/contract.md §1: off_route 6 -> .e, refused (built-in reason 12, docs/statuses.md) -> .j, gate_unknown 4 -> .c
     assert cells == [5, ".e", ".j", ".c"]
 
 
@@ -165,7 +165,7 @@ def test_sav_and_dta_fault_listings_do_not_collide(files):
 def test_form_is_a_choice_and_a_bad_one_exits_2_with_the_choices(files):
     tmp, q, data = files
     result = runner.invoke(app, ["classify", str(data), "-q", str(q), "-o", str(tmp / "c.csv"), "--form", "wide"])
-    # click's usage-error exit status is 2 (DESIGN §5: bad command-line usage).
+    # click's usage-error exit status is 2 (docs/contract.md §4: bad command-line usage).
     assert result.exit_code == 2
     assert "'wide' is not one of" in result.output and "columns" in result.output and "recoded" in result.output
     assert not (tmp / "c.csv").exists()

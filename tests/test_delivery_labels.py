@@ -7,7 +7,7 @@ Outside readers used here:
 - pandas' own Stata reader (``pandas.io.stata.StataReader``: ``value_labels()`` names each label
   set, and its ``_lbllist`` names the set each variable uses), independent of ReadStat;
 - pandas' Parquet reader for the weighting file the demo's age band comes from.
-The status numbers and letters are those of docs/statuses.md (DESIGN §3).
+The status numbers and letters are those of docs/statuses.md (docs/contract.md §1).
 """
 
 from __future__ import annotations

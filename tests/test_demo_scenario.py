@@ -20,7 +20,7 @@ from skipwise.questionnaire.model import CodeKind, ItemType
 from skipwise.rules import ast
 
 STATUSES = {"answered", "skipped", "dont_know", "refused", "item_missing", "wrong_code", "off_route",
-            "gate_unknown", "breakoff", "invalid", "left_blank",   # DESIGN §3
+            "gate_unknown", "breakoff", "invalid", "left_blank",   # docs/contract.md §1
             "prefer_not_to_say"}                                   # the scenario's web-only reason
 INTERVIEWED = (110, 120, 212)
 
@@ -156,7 +156,7 @@ def test_breakoffs(sc):
 
 
 def test_optional_comment_box(q, sc):
-    """The closing comment box is optional (DESIGN §3): blanks are left_blank, never item nonresponse."""
+    """The closing comment box is optional (docs/contract.md §1): blanks are left_blank, never item nonresponse."""
     st = sc.truth_status["comment"]
     disp = sc.interviews["disposition"].to_numpy()
     done = disp == 110

@@ -84,7 +84,7 @@ def test_sav_draft_round_trip_matches_spss_dictionary(tmp_path):
             lo, hi = entry["lo"], entry["hi"]
             labelled = {k for k in ref.variable_value_labels.get(it.name, {}) if lo <= k <= hi}
             missing |= {lo, hi} if lo == hi else labelled
-        # global codes apply to every item (DESIGN §2), so they join the item's own declarations
+        # global codes apply to every item (docs/questionnaire-format.md), so they join the item's own declarations
         assert _code_values(it) == missing | {c.value for c in q.codes}, it.name
         labels = ref.variable_value_labels.get(it.name, {})
         if it.type is ItemType.CATEGORICAL:

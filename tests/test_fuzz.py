@@ -7,8 +7,8 @@
    columns missing or extra) fed to ``classify`` and to ``write_item_report``.
 3. Random rules over earlier items, built into a questionnaire and evaluated by ``classify``.
 
-Only the error contract is asserted (DESIGN.md section 5: a user error is one SkipwiseError),
-plus the shape of a successful classification (DESIGN.md section 3: one status per case and
+Only the error contract is asserted (docs/contract.md §4: a user error is one SkipwiseError),
+plus the shape of a successful classification (docs/contract.md §1: one status per case and
 item, from the status vocabulary).
 """
 

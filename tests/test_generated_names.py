@@ -1,6 +1,6 @@
 """The generated-name guard (skipwise.generated) and where it is used.
 
-The rule checked is DESIGN.md section 8: every generated column name is checked against the
+The rule checked is docs/contract.md §5: every generated column name is checked against the
 data's columns and against each other before anything is written.  Case folding follows the
 SPSS rule that variable names are not case sensitive (IBM SPSS Statistics documentation,
 "Variable names" [memory]).

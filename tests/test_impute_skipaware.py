@@ -85,7 +85,7 @@ def test_completed_data_obey_routing(data, method):
         assert not (changed & ~may_change).any().any()
         assert d.loc[data.index[0], "sat"] == 7.0
         assert (after[ITEMS].isin(S.FAULT_STATUSES) == before[ITEMS].isin(S.FAULT_STATUSES)).all().all()
-        # Filled values obey the items (DESIGN §2: values and range).
+        # Filled values obey the items (docs/questionnaire-format.md: values and range).
         assert set(d.loc[imp["sat"], "sat"]) <= {1.0, 2.0, 3.0}
         assert set(d.loc[imp["employed"], "employed"]) <= {1.0, 2.0}
         ages = d.loc[imp["age"], "age"]

@@ -1,6 +1,6 @@
-"""Optional items and ``left_blank`` (DESIGN §2, §3), case by case on tiny inline frames.
+"""Optional items and ``left_blank`` (docs/questionnaire-format.md, docs/contract.md §1), case by case on tiny inline frames.
 
-Every expected status below is stated by hand from the contract's text (DESIGN §3: "left_blank:
+Every expected status below is stated by hand from the contract's text (docs/contract.md §1: "left_blank:
 in universe, blank, and the item is marked optional: true"; "Optional items neither set nor count
 toward the break-off point; an optional blank after a detected break-off is breakoff. As a rule
 input a left_blank item is absent"), never produced by the classifier.
@@ -90,7 +90,7 @@ def test_model_keeps_optional_and_text():
 
 def test_left_blank_is_outside_the_rate_base(classified):
     # comment: in universe in rows 1, 2, 5, 6 (gate == 1); row 1 left_blank -> D = 3 cells:
-    # refused (1), answered (1), wrong_code (1). Item nonresponse rate = 1/3 (DESIGN §3).
+    # refused (1), answered (1), wrong_code (1). Item nonresponse rate = 1/3 (docs/contract.md §2).
     s = classified.item_summary()
     assert s.loc["comment", "in_universe"] == 3
     assert s.loc["comment", "left_blank"] == 1
@@ -191,7 +191,7 @@ def test_left_blank_is_never_imputed():
 def test_numbers_of_left_blank_in_exports(classified):
     from skipwise.classify.export import status_codes, status_letters, status_numbers
 
-    # DESIGN §3: left_blank is status 9, -909 in recoded .sav, .h in recoded .dta
+    # docs/contract.md §1: left_blank is status 9, -909 in recoded .sav, .h in recoded .dta
     assert status_numbers(classified)["left_blank"] == 9
     assert status_codes(classified)["left_blank"] == -909
     assert status_letters(classified)["left_blank"] == ".h"

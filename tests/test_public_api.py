@@ -1,4 +1,4 @@
-"""DESIGN §4: the public entry points are importable from ``skipwise`` with the contract's shapes."""
+"""The public entry points (README, DEVELOPERS.md) are importable from ``skipwise`` with the contract's shapes."""
 
 from __future__ import annotations
 

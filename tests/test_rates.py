@@ -1,4 +1,4 @@
-"""The one item-rate function against counts worked out by hand, row by row (DESIGN §3)."""
+"""The one item-rate function against counts worked out by hand, row by row (docs/contract.md §2)."""
 
 from __future__ import annotations
 
@@ -33,7 +33,7 @@ Q = loads_questionnaire(textwrap.dedent("""\
     """))
 
 N = None
-# id, gate, amount, tail1, tail2, grp -> the status of `amount`, worked out by hand from the table in DESIGN §3
+# id, gate, amount, tail1, tail2, grp -> the status of `amount`, worked out by hand from the table in docs/contract.md §2
 ROWS = [
     (1, 1, 10, 1, 1, "a"),     # answered
     (2, 1, 20, 1, 1, "a"),     # answered

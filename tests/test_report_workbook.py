@@ -43,7 +43,7 @@ sections:
 
 IDS = ["ZQ-7001", "ZQ-7002", "ZQ-7003", "ZQ-7004", "ZQ-7005", "ZQ-7006"]
 
-# Statuses stated by hand from DESIGN §3 (rows: cases ZQ-7001..7006; columns a..f).
+# Statuses stated by hand from docs/contract.md §1 (rows: cases ZQ-7001..7006; columns a..f).
 HAND = [
     ["answered", "answered", "answered", "answered", "answered", "answered"],
     ["answered", "refused", "item_missing", "answered", "answered", "answered"],
@@ -116,7 +116,7 @@ def test_items_sheet_counts_match_classifier(tiny, tmp_path):
             assert r[header.index(H(status))] == counts.loc[item, status], (item, status)
             checked += 1
     assert checked == len(ITEMS) * len(c.categories)
-    # Hand count from HAND (DESIGN §3): item c has dont_know 1, item_missing 1, breakoff 1, 5 in universe.
+    # Hand count from HAND (docs/contract.md §1): item c has dont_know 1, item_missing 1, breakoff 1, 5 in universe.
     rc = rows[ITEMS.index("c")]
     assert (rc[header.index(H("dont_know"))], rc[header.index(H("item_missing"))],
             rc[header.index(H("breakoff"))]) == (1, 1, 1)

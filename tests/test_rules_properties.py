@@ -2,7 +2,7 @@
 
 1. Any text either parses or raises the project's own error, never another exception.
 2. Random well-formed rules evaluated vectorized agree, case by case, with a slow
-   per-row reference evaluator written here from DESIGN §2 (Kleene's strong
+   per-row reference evaluator written here from docs/contract.md §3 (Kleene's strong
    three-valued logic, Kleene 1952 §64 [memory]; absent operands make comparisons false).
 """
 

@@ -208,7 +208,7 @@ def test_codebook_lists_every_output_variable(ran):
         assert f"`{col}`" in md, col
         assert col in shown, col
     assert "mood_imp" in md and "asked_if: pet == 1" in md and "special code: refused (nonresponse, status 12)" in md
-    # mood: 40 cases in universe, 2 refused + 1 blank = 3 nonresponse -> 7.5% (DESIGN §3 rate, by hand)
+    # mood: 40 cases in universe, 2 refused + 1 blank = 3 nonresponse -> 7.5% (docs/contract.md §2 rate, by hand)
     mood = md[md.index("### `mood`"):]
     assert "| D: in universe, excluding break-off and optional blanks | 40 |" in mood
     assert "| item nonresponse rate | 7.5% |" in mood and "|   of which refused | 5.0% |" in mood

@@ -1,6 +1,6 @@
-"""``weigh`` on the dask engine against the in-memory engine on the same rows (DESIGN: files larger than memory).
+"""``weigh`` on the dask engine against the in-memory engine on the same rows (docs/scale.md).
 
-Identity (DESIGN §7): outcome counts exactly, rates and weights within 1e-9, the workbook's cells
+Identity (docs/scale.md): outcome counts exactly, rates and weights within 1e-9, the workbook's cells
 equal (text exactly, numbers within 1e-9 and the same number format). The in-memory weighting is
 itself checked against published formulas in tests/test_weighting_*.py; here one closed form is
 also checked on the cluster's own output (post-stratification, Holt & Smith 1979). Invented data;

@@ -1,6 +1,6 @@
-"""Stable status and reason numbers (DESIGN §3, docs/statuses.md), and the files that carry them.
+"""Stable status and reason numbers (docs/contract.md §1, docs/statuses.md), and the files that carry them.
 
-The expected numbers are the contract's (DESIGN §3: statuses 1-9; recoded .sav -900 - number;
+The expected numbers are the contract's (docs/contract.md §1, docs/statuses.md: statuses 1-9; recoded .sav -900 - number;
 recoded .dta .a-.h for statuses 2-9 and .i-.z for reasons 11-28) and the built-in table of
 docs/statuses.md; the written files are read back with pyreadstat and pandas' own Stata reader,
 implementations independent of skipwise's writers.
@@ -113,7 +113,7 @@ FRAME = pd.DataFrame({
     "amount": [5, np.nan, -7, -5, np.nan, -3],
     "note": [1, np.nan, np.nan, 2, 3, -4],
 })
-# Statuses of amount by DESIGN §3: answered, skipped, refused, proxy_unable, gate_unknown, aa_not_reached;
+# Statuses of amount by docs/contract.md §1: answered, skipped, refused, proxy_unable, gate_unknown, aa_not_reached;
 # of note: answered, left_blank, left_blank, answered, answered, zz_lost_form.
 AMOUNT_NUMBERS = [1, 2, 12, 25, 4, 21]
 NOTE_NUMBERS = [1, 9, 9, 1, 1, 22]

@@ -1,6 +1,6 @@
 """skipwise: decode every gap of a survey file against its questionnaire's routing.
 
-Public entry points (DESIGN §4; see README and DEVELOPERS.md):
+Public entry points (see README and DEVELOPERS.md):
 
 - :func:`load_questionnaire` — read and validate a questionnaire file
 - :func:`read_survey` / :func:`write_survey` — survey files with labels and missing-value metadata

@@ -281,7 +281,7 @@ class ItemRates:
 
 def item_rates(c: Classification, weight: pd.Series | np.ndarray | None = None,
                by: pd.Series | np.ndarray | None = None, *, min_base: int = DEFAULT_MIN_BASE) -> ItemRates:
-    """Count every item's cells into D and the statuses counted apart (DESIGN §3).
+    """Count every item's cells into D and the statuses counted apart (docs/contract.md §2).
 
     Parameters
     ----------

@@ -20,7 +20,7 @@ Optional items (``optional: true``) neither set nor count toward the
 break-off point: an answer to an optional comment box is not the case's last
 activity, and its blank is no evidence of a break-off.  Once a break-off is
 found, an optional item's blank after that point (``left_blank`` or
-``gate_unknown``) becomes ``breakoff`` like any other (DESIGN §3).
+``gate_unknown``) becomes ``breakoff`` like any other (docs/contract.md §1).
 
 All of it works on the whole status matrix at once, row-locally.
 """

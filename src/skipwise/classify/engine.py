@@ -9,7 +9,7 @@ their status when the rule is evaluated.  For each item:
    an answered item has its value; a skipped or off-route item is absent
    (its questionnaire routing says it was not asked), and so is an optional
    item left blank (no answer was required); every other status is unknown;
-3. kind and universe give the status through a fixed table (DESIGN §3):
+3. kind and universe give the status through a fixed table (docs/contract.md §1):
 
    ========== ============ ============ ============
    stored     out          unknown      in universe
@@ -144,7 +144,7 @@ def default_jobs() -> int:
 
 def classify(data: pd.DataFrame, questionnaire: Questionnaire, *, progress: ProgressFn | None = None,
              jobs: int | None = None) -> Classification:
-    """Give every (case, item) of ``data`` exactly one status (DESIGN §3).
+    """Give every (case, item) of ``data`` exactly one status (docs/contract.md §1).
 
     Parameters
     ----------

@@ -15,7 +15,7 @@ Two forms, chosen by the user:
     categorical items whose categories are texts, keep their cells (those formats
     have no missing codes for text) and get a status column instead.
 
-The numbering is fixed so files of different waves line up (DESIGN §3,
+The numbering is fixed so files of different waves line up (docs/contract.md §1,
 docs/statuses.md): statuses 1-9, reasons 11-99 by the questionnaire's
 :attr:`~skipwise.questionnaire.model.Questionnaire.reason_numbers`; a recoded
 ``.sav`` holds -900 - number, a recoded ``.dta`` the letters ``.a``-``.h``
@@ -56,7 +56,7 @@ class ExportForm(str, Enum):
 
 
 def status_numbers(cl: Classification) -> dict[str, int]:
-    """Stable number of every status (DESIGN §3): fixed ones 1-9, reasons 11-99 (docs/statuses.md).
+    """Stable number of every status (docs/contract.md §1): fixed ones 1-9, reasons 11-99 (docs/statuses.md).
 
     Reasons come in the order of their numbers, so the value labels written from this mapping are
     in the same order in every run (the questionnaire's mapping follows no fixed order).
@@ -297,6 +297,6 @@ def write_fault_listing(cl: Classification, path: str | Path, rows: int = 2_000_
 
 
 def faults_path(out: Path) -> Path:
-    """Where the fault listing of ``out`` goes: ``x.sav`` -> ``x.sav.faults.csv`` (DESIGN §8), so
+    """Where the fault listing of ``out`` goes: ``x.sav`` -> ``x.sav.faults.csv`` (docs/contract.md §5), so
     ``x.sav`` and ``x.dta`` never claim the same file."""
     return out.with_name(out.name + ".faults.csv")

@@ -144,7 +144,7 @@ class Classification:
 
         An optional item left blank (``left_blank``) required no answer: it is not applicable
         here, so it never lowers the share answered nor moves a case between complete and
-        partial (DESIGN §3).
+        partial (docs/contract.md §1).
         """
         applicable = (self._applicable & ~self._is((S.LEFT_BLANK,))).sum(axis=1)
         answered = (self.codes == self.code(S.ANSWERED)).sum(axis=1)

@@ -2,7 +2,7 @@
 
 Fixed statuses are module constants; nonresponse *reasons* (``dont_know``,
 ``refused``, ...) come from the questionnaire's codes of kind ``nonresponse``.
-Every status has a stable number (DESIGN §3, docs/statuses.md): the fixed
+Every status has a stable number (docs/contract.md §1, docs/statuses.md): the fixed
 statuses 1-9 (:data:`STATUS_NUMBERS`), reasons 11-99
 (:attr:`skipwise.questionnaire.model.Questionnaire.reason_numbers`).
 """
@@ -23,7 +23,7 @@ LEFT_BLANK = "left_blank"  # in universe, blank, the item is optional: no answer
 FIXED_STATUSES: tuple[str, ...] = (
     ANSWERED, SKIPPED, ITEM_MISSING, WRONG_CODE, OFF_ROUTE, GATE_UNKNOWN, BREAKOFF, INVALID, LEFT_BLANK,
 )
-#: Stable number of each fixed status in ``<item>_status`` columns (DESIGN §3).
+#: Stable number of each fixed status in ``<item>_status`` columns (docs/contract.md §1).
 STATUS_NUMBERS: dict[str, int] = {
     ANSWERED: 1, SKIPPED: 2, ITEM_MISSING: 3, GATE_UNKNOWN: 4, BREAKOFF: 5,
     OFF_ROUTE: 6, WRONG_CODE: 7, INVALID: 8, LEFT_BLANK: 9,
@@ -32,7 +32,7 @@ STATUS_NUMBERS: dict[str, int] = {
 FAULT_STATUSES: tuple[str, ...] = (OFF_ROUTE, WRONG_CODE, INVALID)
 #: Statuses of cells outside the item's universe.
 OUT_OF_UNIVERSE: tuple[str, ...] = (SKIPPED, OFF_ROUTE)
-#: Statuses that are rule inputs *absent* (DESIGN §2): not asked, or no answer was required.
+#: Statuses that are rule inputs *absent* (docs/contract.md §3): not asked, or no answer was required.
 ABSENT_AS_INPUT: tuple[str, ...] = (SKIPPED, OFF_ROUTE, LEFT_BLANK)
-#: In-universe statuses outside every item rate's base D (counted apart, DESIGN §3).
+#: In-universe statuses outside every item rate's base D (counted apart, docs/contract.md §1).
 OUTSIDE_D: tuple[str, ...] = (BREAKOFF, LEFT_BLANK)

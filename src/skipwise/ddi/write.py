@@ -257,7 +257,7 @@ def _sum_stats(var: ET.Element, values: np.ndarray, n: int) -> None:
         _sub(var, "sumStat", _num(valid.max()), type="max")
 
 
-#: The package's item rates, written as ``sumStat type="other"`` (shares of D, DESIGN of the rates).
+#: The package's item rates, written as ``sumStat type="other"`` (shares of D, docs/contract.md §2).
 RATE_STATS = (("base", "items-in-universe-D"), ("answered_rate", "answered-rate"),
               ("nonresponse_rate", "item-nonresponse-rate"), ("fault_rate", "fault-rate"))
 

@@ -32,7 +32,7 @@ point.  Completed interviews always answer the final required item
 (``recontact``).
 
 The status of every cell is written from what the simulation did, in the
-vocabulary of DESIGN §3.
+vocabulary of docs/contract.md §1.
 """
 
 from __future__ import annotations
@@ -47,7 +47,7 @@ from skipwise.demo.items import ABSENT, COLUMNS, ITEM_NAMES, ITEMS, KNOWN, UNKNO
 
 __all__ = ["STATUSES", "Interviews", "simulate_interviews", "LATEST_STOP"]
 
-#: Status vocabulary (DESIGN §3) with the integer codes used during the walk.
+#: Status vocabulary (docs/contract.md §1) with the integer codes used during the walk.
 STATUSES: tuple[str, ...] = ("answered", "skipped", "dont_know", "refused", "item_missing", "wrong_code",
                              "off_route", "gate_unknown", "breakoff", "invalid", "left_blank",
                              "prefer_not_to_say")

@@ -67,7 +67,7 @@ class Scenario:
         (1..4, see :data:`~skipwise.demo.population.AGE_BANDS`) and ``sex``
         as recorded in the interview (NaN if not interviewed or not answered).
     truth_status
-        True status (DESIGN §3) of every cell: interviews' row order, one
+        True status (docs/contract.md §1) of every cell: interviews' row order, one
         column per questionnaire item (the set ``modes`` is one item).
     truth_values
         True value of every questionnaire column for the interviewed cases,

@@ -25,7 +25,7 @@ STUDY_KEYS = ("title", "id", "producer", "population", "geography", "nation", "f
 
 
 class CodeKind(str, Enum):
-    """What a special code means for classification (DESIGN §2)."""
+    """What a special code means for classification (docs/questionnaire-format.md)."""
 
     STRUCTURAL = "structural"    # a legitimate not-asked mark
     NONRESPONSE = "nonresponse"  # counts as item nonresponse; the status is the code's reason

@@ -1,4 +1,4 @@
-"""Stable numbers of nonresponse reasons (DESIGN §3; the table is in docs/statuses.md).
+"""Stable numbers of nonresponse reasons (docs/contract.md §1; the table is in docs/statuses.md).
 
 A reason's number is what its cells hold in ``<item>_status`` columns (11-99),
 the basis of its recoded ``.sav`` code (-900 - number) and, for 11-28, of its
