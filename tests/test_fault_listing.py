@@ -8,7 +8,6 @@ hand from the questionnaire's routing.
 
 from __future__ import annotations
 
-import time
 
 import numpy as np
 import pandas as pd
@@ -123,9 +122,9 @@ def test_hand_made_listing():
 
 
 # -- wide files ----------------------------------------------------------------------------------
-def test_wide_file_classifies_and_lists_faults_in_seconds():
-    # 5,000 items x 40 cases, every second item routed on the one before: the listing reads only
-    # the columns a rule needs, so its cost follows the faults, not the width of the file.
+def test_wide_file_classifies_and_lists_its_faults():
+    # 5,000 items x 40 cases, every second item routed on the one before.  Its speed is a
+    # benchmark figure (benchmarks/bench_faults.py, the wide-file row), not a timed test.
     n_items, n = 5000, 40
     lines = ["format: 1", "survey: {name: wide, case_id: id}", "sections:", "  - name: s", "    items:"]
     for j in range(n_items):
@@ -136,14 +135,12 @@ def test_wide_file_classifies_and_lists_faults_in_seconds():
     values = rng.integers(0, 3, size=(n, n_items)).astype(float)
     frame = pd.concat([pd.DataFrame({"id": np.arange(n)}),
                        pd.DataFrame(values, columns=[f"w{j}" for j in range(n_items)])], axis=1)
-    t0 = time.perf_counter()
     cl = classify(frame, q)
     faults = cl.faults
-    seconds = time.perf_counter() - t0
     # off route: a routed item answered while the one before is not 1 (values 0..2, so 0 or 2)
     expected = int(((values[:, 0::2] != 1) & (values[:, 1::2] >= 0)).sum())
     assert len(faults) == expected
-    assert seconds < 60, f"{seconds:.1f} s for 5,000 items x 40 cases"  # generous: seconds expected
+    assert set(faults["item"]) <= {f"w{j}" for j in range(1, n_items, 2)}
 
 
 def test_listing_equals_reference_with_and_without_rules():

@@ -376,16 +376,13 @@ def test_fuzz_labels_are_the_text_written(label, value_label):
 @settings(max_examples=examples(40), **SETTINGS)
 @given(width=st.integers(1, 12), depth=st.integers(1, 8))
 def test_fuzz_alias_expansion_is_bounded(width, depth):
-    import time
-
     lines = ["a0: &a0 [x]"] + [f"a{i}: &a{i} [" + ", ".join([f"*a{i - 1}"] * width) + "]" for i in range(1, depth + 1)]
     # nodes the aliases repeat, counted independently: each alias of level i-1 repeats its whole tree
     size = [2]  # a0: the list and its one text
     for _ in range(depth):
         size.append(1 + width * size[-1])
     repeated = sum(width * size[i - 1] for i in range(1, depth + 1))
-    t0 = time.perf_counter()
-    try:
+    try:  # expanding the refused ones would take minutes and gigabytes: the test would not end
         doc = load_yaml_text("\n".join(lines) + "\n", "a.yaml")
     except SkipwiseError as err:
         assert repeated > MAX_ALIAS_NODES, (width, depth, repeated)
@@ -393,4 +390,3 @@ def test_fuzz_alias_expansion_is_bounded(width, depth):
     else:
         assert repeated <= MAX_ALIAS_NODES
         assert len(doc) == depth + 1
-    assert time.perf_counter() - t0 < 2.0

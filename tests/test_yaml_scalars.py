@@ -9,7 +9,6 @@ plain is a string (so yes/no/on/off, 2024-01-01, 1_000 and 1:20 are strings).
 from __future__ import annotations
 
 import textwrap
-import time
 
 import pytest
 
@@ -116,9 +115,7 @@ def test_alias_bomb_used_as_a_label_is_refused_fast_with_its_line():
               - {name: q1, type: integer, label: *a8}
         """)
     assert len(text.encode()) < 1200  # about 1 KB, 387 million strings when expanded
-    t0 = time.perf_counter()
-    found = problems(text)
-    assert time.perf_counter() - t0 < 2.0
+    found = problems(text)  # expanded, it would not fit in memory: refused before expansion
     assert found[0].code is ProblemCode.YAML_SYNTAX and found[0].line is not None
     assert f"aliases repeat more than {MAX_ALIAS_NODES:,} values" in found[0].message
 
