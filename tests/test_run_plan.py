@@ -108,3 +108,46 @@ def test_missing_plan_file(tmp_path):
     with pytest.raises(SkipwiseError) as info:
         load_run_plan(tmp_path / "nope.yaml")
     assert info.value.codes == [ProblemCode.FILE_NOT_FOUND]
+
+
+def test_engine_key_read_and_checked_against_the_steps_it_supports(inputs):
+    # DESIGN §7: engine: {kind: dask, scheduler: ..., partition_rows: ...}; dask writes Parquet or CSV only
+    plan = load_run_plan(_write(inputs, """\
+        format: 1
+        data: in/data.csv
+        questionnaire: in/q.yaml
+        diagnose: false
+        engine: {kind: dask, scheduler: "tcp://10.0.0.5:8786", partition_rows: 5000}
+        output: {folder: out, status_columns: [parquet]}
+        """))
+    assert (plan.engine.kind, plan.engine.scheduler, plan.engine.partition_rows) == ("dask", "tcp://10.0.0.5:8786",
+                                                                                     5000)
+    assert plan.resolved()["engine"]["partition_rows"] == 5000
+    assert load_run_plan(_write(inputs, """\
+        format: 1
+        data: in/data.csv
+        questionnaire: in/q.yaml
+        output: {folder: out}
+        """)).engine.kind == "memory"
+    with pytest.raises(SkipwiseError) as info:
+        load_run_plan(_write(inputs, """\
+            format: 1
+            data: in/data.csv
+            questionnaire: in/q.yaml
+            engine:
+              kind: dusk
+              partiton_rows: 10
+            output: {folder: out, status_columns: [sav]}
+            """))
+    lines = {(p.code, p.line) for p in info.value.problems}
+    assert (ProblemCode.BAD_VALUE, 5) in lines and (ProblemCode.UNKNOWN_KEY, 6) in lines
+    with pytest.raises(SkipwiseError) as info:
+        load_run_plan(_write(inputs, """\
+            format: 1
+            data: in/data.csv
+            questionnaire: in/q.yaml
+            engine: dask
+            output: {folder: out, status_columns: [sav]}
+            """))
+    text = " ".join(p.message for p in info.value.problems)
+    assert "the step 'diagnose' has no dask engine" in text and "names sav" in text

@@ -74,8 +74,10 @@ def test_statuses_counts_and_rates_equal_the_in_memory_engine(survey, client, tm
     np.testing.assert_allclose(res.rates.table()["nonresponse_rate"], mem["nonresponse_rate"], atol=1e-9)
     assert res.faults == len(cl.faults) == len(_read_parts(tmp_path / "out_faults"))
     # the fault listing holds the same rows (partition by partition, so compared in one order)
+    from skipwise.classify.export import fault_listing
+
     faults = _read_parts(tmp_path / "out_faults").astype(str)
-    mem_faults = cl.faults.astype(str)
+    mem_faults = fault_listing(cl).astype(str)
     key = list(mem_faults.columns)
     assert sorted(faults[key].values.tolist()) == sorted(mem_faults.values.tolist())
 
@@ -101,18 +103,102 @@ def test_a_folder_that_is_not_ours_is_refused_and_left_alone(survey, client, tmp
     assert (out / "notes.txt").read_text() == "keep me" and len(list(out.iterdir())) == 1
 
 
-def test_cli_refuses_single_file_outputs_and_non_parquet_input(survey, tmp_path):
+def test_cli_refuses_sav_and_dta_outputs_and_other_inputs(survey, tmp_path):
     root, frame, _ = survey
     runner = CliRunner()
-    res = runner.invoke(app, ["classify", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / "x.sav"),
-                              "--engine", "dask"])
-    assert res.exit_code == 1 and "writes Parquet parts into a folder" in res.output
-    csv = tmp_path / "d.csv"
-    frame.head(5).to_csv(csv, index=False)
-    res = runner.invoke(app, ["classify", str(csv), "-q", str(DEMO_Q), "-o", str(tmp_path / "o"),
+    for name in ("x.sav", "x.dta"):
+        res = runner.invoke(app, ["classify", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / name),
+                                  "--engine", "dask"])
+        assert res.exit_code == 1 and "writes Parquet or CSV only" in res.output, res.output
+    xlsx = tmp_path / "d.xlsx"
+    frame.head(5).to_excel(xlsx, index=False)
+    res = runner.invoke(app, ["classify", str(xlsx), "-q", str(DEMO_Q), "-o", str(tmp_path / "o"),
                               "--engine", "dask", "--scheduler", "tcp://127.0.0.1:1"])
-    assert res.exit_code == 1 and "Parquet input only" in res.output and "Traceback" not in res.output
+    assert res.exit_code == 1 and "the dask engine reads Parquet files" in res.output and "Traceback" not in res.output
     assert not (tmp_path / "o").exists()
+
+
+def _in_memory(path: Path, q):
+    """The in-memory engine's classified frame and metadata of a file (as `classify -o x.parquet` writes it)."""
+    from skipwise.classify.delivery import delivery_meta
+    from skipwise.io import get_meta, read_survey
+
+    data = read_survey(path)
+    cl = classify(data, q)
+    ref, meta = with_status_columns(data, cl, delivery_meta(get_meta(data), q, data))
+    return ref, meta, cl
+
+
+@pytest.mark.parametrize("ext", [".sav", ".csv"])
+def test_converted_sav_and_csv_equal_the_in_memory_engine(survey, client, tmp_path, ext):
+    from skipwise.classify.delivery import delivery_meta
+    from skipwise.io import get_meta, read_survey
+    from skipwise.scale.convert import convert_to_parts
+
+    root, frame, q = survey
+    src = tmp_path / f"interviews{ext}"
+    write_survey(frame, src, delivery_meta(get_meta(frame), q, frame))
+    ref, ref_meta, cl = _in_memory(src, q)
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    conv = convert_to_parts(src, scratch, partition_rows=600)
+    assert len(conv.parts) == 4 and conv.rows == len(frame)  # 2249 rows in chunks of 600
+    res = classify_on_cluster(src, q, tmp_path / "out", client=client, parts=conv.parts, meta=conv.meta,
+                              dtypes=conv.dtypes)
+    got = pd.concat([read_survey(p) for p in sorted((tmp_path / "out").glob("part-*.parquet"))], ignore_index=True)
+    assert list(got.columns) == list(ref.columns)
+    status = [c for c in ref.columns if c.endswith("_status")]
+    np.testing.assert_array_equal(got[status].to_numpy(), ref[status].to_numpy())
+    # the data cells too, in the whole file's column types (pandas' own comparison)
+    pd.testing.assert_frame_equal(got.drop(columns=status), ref.drop(columns=status), check_dtype=True)
+    pd.testing.assert_frame_equal(res.counts, cl.counts().astype("int64"), check_names=False)
+    part_meta = get_meta(read_survey(sorted((tmp_path / "out").glob("part-*.parquet"))[1]))
+    for field in ("value_labels", "missing_values", "missing_ranges", "column_labels", "measure"):
+        assert getattr(part_meta, field) == getattr(ref_meta, field), field
+
+
+def test_single_file_outputs_csv_parts_and_auto_through_the_cli(survey, client, tmp_path, monkeypatch):
+    from skipwise.io import read_survey
+
+    root, frame, q = survey
+    monkeypatch.setenv("SKIPWISE_SCHEDULER", client.scheduler.address)
+    runner = CliRunner()
+    ref, _, cl = _in_memory(root / "whole.parquet", q)
+    mem_faults = pd.read_csv(_run_memory(root / "whole.parquet", tmp_path / "mem.parquet"))
+    for name in ("one.parquet", "one.csv"):
+        res = runner.invoke(app, ["classify", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / name),
+                                  "--engine", "dask"])
+        assert res.exit_code == 0, res.output
+        got = read_survey(tmp_path / name)
+        if name.endswith(".csv"):  # pandas' CSV reader on both engines' files
+            _run_memory(root / "whole.parquet", tmp_path / "mem.csv")
+            pd.testing.assert_frame_equal(got, read_survey(tmp_path / "mem.csv"))
+        else:
+            pd.testing.assert_frame_equal(got, read_survey(tmp_path / "mem.parquet"))
+        faults = pd.read_csv(tmp_path / f"{name}.faults.csv")
+        assert sorted(faults.astype(str).values.tolist()) == sorted(mem_faults.astype(str).values.tolist())
+    res = runner.invoke(app, ["classify", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / "p"),
+                              "--engine", "dask", "--parts", "csv"])
+    assert res.exit_code == 0, res.output
+    assert len(list((tmp_path / "p").glob("part-*.csv"))) == 3 and len(list((tmp_path / "p_faults").glob("*.csv"))) == 3
+    # --engine auto: dask above the budget for an output that allows it, and it says so
+    monkeypatch.setenv("SKIPWISE_MEMORY_BUDGET", "1KB")
+    res = runner.invoke(app, ["classify", str(root / "whole.parquet"), "-q", str(DEMO_Q), "-o",
+                              str(tmp_path / "auto.parquet"), "--engine", "auto"])
+    assert res.exit_code == 0 and "using the dask engine" in res.output and "1 partitions" in res.output, res.output
+    res = runner.invoke(app, ["classify", str(root / "whole.parquet"), "-q", str(DEMO_Q), "-o",
+                              str(tmp_path / "auto.sav"), "--engine", "auto"])
+    assert res.exit_code == 0 and "using the in-memory engine" in res.output and (tmp_path / "auto.sav").is_file()
+    monkeypatch.setenv("SKIPWISE_MEMORY_BUDGET", "100GB")
+    res = runner.invoke(app, ["classify", str(root / "whole.parquet"), "-q", str(DEMO_Q), "-o",
+                              str(tmp_path / "auto2.parquet"), "--engine", "auto"])
+    assert res.exit_code == 0 and "--engine auto" not in res.output and "partitions" not in res.output
+
+
+def _run_memory(data: Path, out: Path) -> Path:
+    res = CliRunner().invoke(app, ["classify", str(data), "-q", str(DEMO_Q), "-o", str(out), "--overwrite"])
+    assert res.exit_code == 0, res.output
+    return out.with_name(out.name + ".faults.csv")
 
 
 def _free_port() -> int:

@@ -10,7 +10,7 @@ import typer
 from skipwise.classify.export import ExportForm
 from skipwise.cli.app import app, fail
 from skipwise.cli.common import classify_with_progress, echo_warnings, load_inputs
-from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
+from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, PARTS_HELP, SCHEDULER_HELP, Engine, PartFormat
 from skipwise.errors import SkipwiseError
 
 OUT_FORMATS = (".sav", ".zsav", ".dta", ".parquet", ".csv", ".xlsx")
@@ -31,6 +31,7 @@ def classify_command(
     engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
+    parts: Annotated[PartFormat, typer.Option("--parts", case_sensitive=False, help=PARTS_HELP)] = PartFormat.PARQUET,
     jobs: Annotated[int | None, typer.Option(
         "--jobs", min=1, help="Threads classifying blocks of rows at once (default: every core of the "
                               "machine). The result is the same for every number.")] = None,
@@ -41,6 +42,9 @@ def classify_command(
     Writes OUT with every original column and label kept, and OUT.faults.csv (e.g. x.sav.faults.csv)
     listing each routing fault with its case id — that listing holds respondents' data: share it
     only under your organization's data protection rules.
+
+    With --engine dask (files larger than memory, clusters; docs/scale.md) OUT is a folder of parts
+    (plus OUT_faults/), or one .parquet or .csv file written part by part; .sav and .dta are refused.
     """
     from skipwise.classify.export import (
         faults_path, recoded_copy, with_status_columns, write_fault_listing,
@@ -50,12 +54,18 @@ def classify_command(
     from skipwise.io.readers import SUPPORTED_EXTENSIONS, output_format_of
     from skipwise.io.stable import stamp_file, timestamp_of
 
+    if engine is Engine.AUTO:
+        from skipwise.cli.engine import choose_engine
+
+        # a folder OUT needs an explicit --engine dask; auto never changes the form of the output
+        allows = ExportForm(form) is ExportForm.COLUMNS and out.suffix.lower() in (".parquet", ".csv")
+        engine = choose_engine(engine, data, output_allows=allows, echo=typer.echo)
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
 
         try:
             classify_with_dask(data, questionnaire, out, form=form, scheduler=scheduler,
-                               partition_rows=partition_rows, overwrite=overwrite)
+                               partition_rows=partition_rows, overwrite=overwrite, parts_form=parts.value)
         except SkipwiseError as err:
             fail(err)
         return

@@ -134,6 +134,11 @@ def _read_readstat(path: Path, fmt: str, encoding: str | None, columns: list[str
 
     if columns is not None:
         df = df[list(columns)]
+    return readstat_frame(df, m, fmt, encoding)
+
+
+def readstat_frame(df: pd.DataFrame, m, fmt: str, encoding: str | None) -> pd.DataFrame:
+    """pyreadstat's frame and metadata (a whole SPSS/Stata file or a chunk of its rows) as read_survey gives them."""
     types = dict(m.readstat_variable_types)
     strings = [c for c in df.columns if types.get(c) == "string"]
     _blank_text_to_nan(df, strings)

@@ -95,6 +95,12 @@ def read_sas(path: Path, fmt: str, encoding: str | None, columns: list[str] | No
                           "check the file was copied completely; re-export it from SAS") from None
     if columns is not None:
         df = df[list(columns)]
+    return sas_frame(df, m, fmt, encoding, path, catalog)
+
+
+def sas_frame(df: pd.DataFrame, m, fmt: str, encoding: str | None, path: Path,
+              catalog: Path | None = None) -> pd.DataFrame:
+    """pyreadstat's frame and metadata (a whole SAS file or a chunk of its rows) as read_survey gives them."""
     types = dict(m.readstat_variable_types)
     strings = [c for c in df.columns if types.get(c) == "string"]
     _blank_text_to_nan(df, strings)

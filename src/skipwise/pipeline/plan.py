@@ -13,6 +13,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Mapping
 
+from skipwise.engine_spec import EngineSpec, parse_engine, unsupported_steps
 from skipwise.errors import Category, ProblemCode, ProblemList, did_you_mean
 from skipwise.io.readers import SAS_OUTPUT_REASON, SUPPORTED_EXTENSIONS
 from skipwise.questionnaire.yamlread import LineDict, LineList, is_version, load_yaml_text, read_text_file
@@ -23,7 +24,7 @@ __all__ = ["RunPlan", "ReportOptions", "DiagnoseOptionsSpec", "OutputOptions", "
 
 PLAN_FORMAT = 1
 TOP_KEYS = ("format", "data", "questionnaire", "min_base", "check", "report", "diagnose", "weighting",
-            "imputation", "output", "study")
+            "imputation", "output", "study", "engine")
 #: Output formats of the final data file; ``input`` is the data file's own format.
 FORMATS = ("input", "sav", "zsav", "dta", "csv", "xlsx", "parquet")
 
@@ -107,6 +108,7 @@ class RunPlan:
     imputation_plan: Path | None = None
     min_base: int = 30   # minimum unweighted D for a rate to be ranked (common practice, no source)
     study: Mapping[str, str] = field(default_factory=dict)   # overrides the questionnaire's study block key by key
+    engine: EngineSpec = field(default_factory=EngineSpec)   # where classify, check and report compute
     lines: Mapping[tuple, int] = field(default_factory=dict)
 
     def line(self, *path: str) -> int | None:
@@ -147,6 +149,7 @@ class RunPlan:
             {"plan": str(self.weighting_plan), "data": str(self.weighting_data or self.data)},
             "imputation": None if self.imputation_plan is None else {"plan": str(self.imputation_plan)},
             "output": plain(self.output),
+            "engine": plain(self.engine),
         }
 
 
@@ -345,6 +348,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
                       f"{SAS_OUTPUT_REASON}", r.lines.get(("output", key)) or (out_raw.line if out_raw else doc.line),
                       f"name the formats, e.g. output: {{{key}: " + ("dta}" if key == "imputed_format"
                                                                     else "[dta, parquet]}"))
+    engine = _engine(r, doc, report_on, diagnose_on, weighting, imputation, out, data)
     r.problems.raise_if_any(headline=f"{len(r.problems)} problem(s) in run plan {file}")
 
     assert data is not None and questionnaire is not None
@@ -359,7 +363,46 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         diagnose=DiagnoseOptionsSpec(**diagnose) if diagnose_on else None,
         weighting_plan=weighting.get("plan"), weighting_data=weighting.get("data"),
         imputation_plan=imputation.get("plan"), min_base=min_base, study=study, lines=dict(r.lines),
+        engine=engine,
     )
+
+
+def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weighting: dict, imputation: dict,
+            out: dict, data: Path | None) -> EngineSpec:
+    """The ``engine`` key (skipwise.engine_spec), and the steps and outputs the chosen engine cannot do."""
+    if "engine" not in doc:
+        return EngineSpec()
+    raw = doc["engine"]
+    line = doc.key_line("engine")
+    r.lines[("engine",)] = line
+    key_line = (lambda key: raw.key_line(key) if key in raw else line) if isinstance(raw, LineDict) else \
+        (lambda key: line)
+    if isinstance(raw, LineDict):
+        for key in raw:
+            r.lines[("engine", str(key))] = raw.key_line(key)
+    spec = parse_engine(raw, line=line, key_line=key_line,
+                        add=lambda code, message, at, hint=None: r.add(code, message, at, hint))
+    if spec.kind == "memory":
+        return spec
+    steps = ["classify", "check"] + (["report"] if report_on else []) + (["diagnose"] if diagnose_on else [])
+    steps += (["weigh"] if weighting.get("plan") is not None else []) + \
+        (["impute"] if imputation.get("plan") is not None else [])
+    for step in unsupported_steps(spec, steps):
+        key = {"weigh": "weighting", "impute": "imputation"}.get(step, step)
+        r.add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}': the step '{step}' has no dask engine in this "
+              "version", r.lines.get((key,)) or line,
+              f"turn it off ({key}: false, or leave the key out) or use engine: memory")
+    own = data.suffix.lower().lstrip(".") if data is not None else "parquet"
+    chosen = [own if f == "input" else f for f in out.get("status_columns", ("input", "parquet"))]
+    formats = [f for f in dict.fromkeys(chosen) if f not in ("parquet", "csv")]
+    if formats:
+        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes Parquet or CSV only, and "
+              f"'output.status_columns' names {', '.join(formats)}",
+              r.lines.get(("output", "status_columns")) or line, "e.g. status_columns: [parquet]")
+    if out.get("recoded"):
+        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes the columns form only",
+              r.lines.get(("output", "recoded")) or line, "leave out 'output.recoded'")
+    return spec
 
 
 def load_run_plan(path: str | Path) -> RunPlan:

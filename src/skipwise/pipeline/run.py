@@ -236,6 +236,13 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
     reporter = reporter or SilentReporter()
     if not isinstance(plan, RunPlan):
         plan = load_run_plan(plan)
+    if plan.engine.kind != "memory":
+        # The plan key is read and checked (skipwise.engine_spec); the package is still built in memory.
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file), line=plan.line("engine"),
+            message=f"'engine: {plan.engine.kind}': skipwise run builds its package in memory in this version",
+            hint="remove the engine key, or run the steps as commands: skipwise classify/check/report "
+                 "--engine dask (docs/scale.md)"))
     started = _now()
     records: list[StepRecord] = []
     st = S.RunState(plan=plan, targets={})

@@ -40,6 +40,7 @@ class PartSummary:
     rates: object            # skipwise.rates.ItemRates
     faults: int
     file: str
+    faults_file: str
     sha256: str
     faults_sha256: str
 
@@ -78,23 +79,35 @@ def _fault_part(faults: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def classify_part(part: Part, q, staging: str, faults_staging: str, index: int) -> PartSummary:
-    """Classify one partition on a worker and write its two parts; returns counts only."""
+def classify_part(part: Part, q, staging: str, faults_staging: str, index: int, meta=None,
+                  dtypes: dict[str, str] | None = None, part_format: str = "parquet",
+                  fault_format: str | None = None) -> PartSummary:
+    """Classify one partition on a worker and write its two parts; returns counts only.
+
+    The data part is what the in-memory engine writes for the whole file
+    (``with_status_columns`` on the metadata ``delivery_meta`` gives), the fault
+    part what it lists (``fault_listing``), for this partition's rows.
+    """
     from skipwise.classify import classify
-    from skipwise.classify.export import with_status_columns
+    from skipwise.classify.delivery import delivery_meta
+    from skipwise.classify.export import fault_listing, with_status_columns
     from skipwise.io import get_meta, write_survey
     from skipwise.rates import item_rates
 
-    frame = read_part(part)
+    frame = read_part(part, meta, dtypes)
     cl = classify(frame, q)
-    result, meta = with_status_columns(frame, cl, get_meta(frame))
-    name = f"part-{index:05d}.parquet"
+    result, out_meta = with_status_columns(frame, cl, delivery_meta(get_meta(frame), q, frame))
+    name = f"part-{index:05d}.{part_format}"
     target = Path(staging) / name
-    write_survey(result, target, meta, overwrite=True)
-    fault_target = Path(faults_staging) / name
-    faults = cl.faults
-    _fault_part(faults).to_parquet(fault_target, index=False)
+    write_survey(result, target, out_meta, overwrite=True)
+    fault_target = Path(faults_staging) / f"part-{index:05d}.{fault_format or part_format}"
+    faults = fault_listing(cl)
+    if (fault_format or part_format) == "csv":
+        faults.to_csv(fault_target, index=False)
+    else:
+        _fault_part(faults).to_parquet(fault_target, index=False)
     return PartSummary(rows=len(frame), counts=cl.counts(), rates=item_rates(cl), faults=len(faults), file=name,
+                       faults_file=fault_target.name,
                        sha256=_sha(target), faults_sha256=_sha(fault_target))
 
 
@@ -122,11 +135,17 @@ def _check_parts_folder(folder: Path, overwrite: bool) -> None:
 
 def classify_on_cluster(source: str | Path, q, out: Path, *, client, overwrite: bool = False,
                         partition_rows: int = DEFAULT_PARTITION_ROWS, parts: list[Part] | None = None,
+                        meta=None, dtypes: dict[str, str] | None = None, part_format: str = "parquet",
                         progress: Callable[[int], None] | None = None) -> DaskClassification:
-    """Classify every partition of ``source`` on the cluster behind ``client`` into the folder ``out``.
+    """Classify every partition of ``source`` on the cluster behind ``client`` into ``out``.
 
+    ``out`` is a folder (one part per partition, ``part_format`` ``parquet`` or ``csv``)
+    or one ``.parquet`` or ``.csv`` file, which the client writes from the parts
+    one part at a time (its fault listing is ``OUT.faults.csv``, DESIGN §8).
     ``parts`` (default: :func:`~skipwise.scale.sources.parquet_parts` of ``source``) fixes the
-    partitions; ``progress`` is called with the rows of each partition as it finishes.
+    partitions; ``meta`` and ``dtypes`` are the whole file's metadata and column types when the
+    parts were converted (:mod:`skipwise.scale.convert`), sent to the workers once; ``progress``
+    is called with the rows of each partition as it finishes.
 
     Raises
     ------
@@ -135,39 +154,60 @@ def classify_on_cluster(source: str | Path, q, out: Path, *, client, overwrite: 
         questionnaire that does not fit the data (its columns are checked on the
         first partition before any work is sent out).
     """
-    from distributed import as_completed
-
     from skipwise.classify import check_columns
-    from skipwise.publish import PackagePublisher
 
     out = Path(out)
-    faults_out = faults_folder(out)
     parts = parquet_parts(source, partition_rows) if parts is None else parts
-    check_columns(read_part(Part(parts[0].path, parts[0].row_groups[:1], 0)), q)
+    check_columns(read_part(Part(parts[0].path, parts[0].row_groups[:1], 0), meta, dtypes), q)
+    if out.suffix.lower() in (".parquet", ".csv"):
+        from skipwise.scale.single import classify_to_one_file
+
+        return classify_to_one_file(source, q, out, client=client, overwrite=overwrite, parts=parts, meta=meta,
+                                    dtypes=dtypes, progress=progress)
+    from skipwise.publish import PackagePublisher
+
+    faults_out = faults_folder(out)
     for folder in (out, faults_out):
         _check_parts_folder(folder, overwrite)
     with PackagePublisher(faults_out) as fpub, PackagePublisher(out) as dpub:
-        q_future = client.scatter(q, broadcast=True)
-        futures = [client.submit(classify_part, p, q_future, str(dpub.staging), str(fpub.staging), i,
-                                 key=f"skipwise-classify-{i}-{id(parts)}", pure=False)
-                   for i, p in enumerate(parts)]
-        summaries: dict[int, PartSummary] = {}
-        index = {f.key: i for i, f in enumerate(futures)}
-        for fut in as_completed(futures):
-            summaries[index[fut.key]] = fut.result()  # a worker's SkipwiseError is raised here, as itself
-            if progress is not None:
-                progress(summaries[index[fut.key]].rows)
-        ordered = [summaries[i] for i in range(len(parts))]
+        ordered = run_parts(client, parts, q, dpub.staging, fpub.staging, meta=meta, dtypes=dtypes,
+                            part_format=part_format, progress=progress)
         for pub, key in ((dpub, "sha256"), (fpub, "faults_sha256")):
             listing = {"tool": "skipwise classify --engine dask", "source": str(source),
-                       "outputs": [{"file": s.file, "rows": s.rows, "sha256": getattr(s, key)} for s in ordered]}
+                       "outputs": [{"file": s.file if key == "sha256" else s.faults_file, "rows": s.rows,
+                                    "sha256": getattr(s, key)} for s in ordered]}
             (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
         fpub.publish()
         dpub.publish()
+    return merged(ordered)
+
+
+def run_parts(client, parts: list[Part], q, staging: Path, faults_staging: Path, *, meta=None,
+              dtypes: dict[str, str] | None = None, part_format: str = "parquet", fault_format: str | None = None,
+              progress: Callable[[int], None] | None = None) -> list[PartSummary]:
+    """One :func:`classify_part` task per partition; the summaries in partition order."""
+    from distributed import as_completed
+
+    q_future, meta_future = client.scatter([q, meta], broadcast=True)  # shipped to every worker once
+    futures = [client.submit(classify_part, p, q_future, str(staging), str(faults_staging), i, meta_future,
+                             dtypes, part_format, fault_format, key=f"skipwise-classify-{i}-{id(parts)}", pure=False)
+               for i, p in enumerate(parts)]
+    summaries: dict[int, PartSummary] = {}
+    index = {f.key: i for i, f in enumerate(futures)}
+    for fut in as_completed(futures):
+        summaries[index[fut.key]] = fut.result()  # a worker's SkipwiseError is raised here, as itself
+        if progress is not None:
+            progress(summaries[index[fut.key]].rows)
+    return [summaries[i] for i in range(len(parts))]
+
+
+def merged(ordered: list[PartSummary], files: tuple[str, ...] | None = None) -> DaskClassification:
+    """The partitions' counts added up (status counts and :class:`~skipwise.rates.ItemRates`)."""
     counts = ordered[0].counts
     rates = ordered[0].rates
     for s in ordered[1:]:
         counts = counts.add(s.counts, fill_value=0)
         rates = rates + s.rates
     return DaskClassification(rows=sum(s.rows for s in ordered), counts=counts.astype("int64"), rates=rates,
-                              faults=sum(s.faults for s in ordered), parts=tuple(s.file for s in ordered))
+                              faults=sum(s.faults for s in ordered),
+                              parts=files if files is not None else tuple(s.file for s in ordered))

@@ -14,13 +14,12 @@ from pathlib import Path
 
 import pandas as pd
 
+from skipwise.engine_spec import DEFAULT_PARTITION_ROWS  # rows a partition holds at most
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.publish import clean_message
 
 __all__ = ["Part", "parquet_parts", "read_part", "DEFAULT_PARTITION_ROWS"]
 
-#: Rows a partition holds at most when a file's row groups allow splitting it (consecutive groups are joined).
-DEFAULT_PARTITION_ROWS = 250_000
 
 
 @dataclass(frozen=True)
@@ -51,7 +50,8 @@ def _files(source: str | Path) -> list[Path]:
     bad = [f for f in files if f.suffix.lower() != ".parquet"]
     if bad:
         raise SkipwiseError(Problem(code=ProblemCode.FILE_FORMAT, category=Category.USAGE, file=str(bad[0]),
-                                    message="the dask engine reads Parquet input only",
+                                    message="the dask engine reads Parquet files, folders and globs of them, and "
+                                            "one .sav, .zsav, .dta, .sas7bdat or .csv file",
                                     hint="convert the file to Parquet first (skipwise writes .parquet), "
                                          "or use the in-memory engine"))
     return files
@@ -92,12 +92,24 @@ def parquet_parts(source: str | Path, partition_rows: int = DEFAULT_PARTITION_RO
     return parts
 
 
-def read_part(part: Part) -> pd.DataFrame:
-    """One partition as a DataFrame with its survey metadata (as read_survey gives a whole file)."""
+def read_part(part: Part, meta=None, dtypes: dict[str, str] | None = None) -> pd.DataFrame:
+    """One partition as a DataFrame with its survey metadata (as read_survey gives a whole file).
+
+    ``meta`` and ``dtypes`` (the whole file's metadata and column types, see
+    :mod:`skipwise.scale.convert`) replace what the part itself records.
+    """
     import pyarrow.parquet as pq
 
+    from skipwise.io.meta import set_meta
     from skipwise.io.readers import parquet_frame
 
     pf = pq.ParquetFile(part.path)
     table = pf.read_row_groups(list(part.row_groups)) if part.row_groups else pf.schema_arrow.empty_table()
-    return parquet_frame(table, Path(part.path))
+    frame = parquet_frame(table, Path(part.path))
+    if dtypes:
+        from skipwise.scale.convert import harmonize
+
+        frame = harmonize(frame, dtypes)
+    if meta is not None:
+        set_meta(frame, meta.subset(frame.columns))
+    return frame
