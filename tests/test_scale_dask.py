@@ -242,6 +242,22 @@ def test_cli_against_a_real_scheduler_and_two_workers(survey, tmp_path):
         ref, _ = with_status_columns(frame, cl)
         got = _read_parts(out)
         np.testing.assert_array_equal(got["income_status"].to_numpy(), ref["income_status"].to_numpy())
+        # report and check through the same scheduler: the in-memory engine's sheets and findings
+        runner = CliRunner()
+        res = runner.invoke(app, ["report", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / "d.xlsx"),
+                                  "--engine", "dask", "--scheduler", address, "--by", "district"])
+        assert res.exit_code == 0 and "in 3 partitions" in res.output, res.output
+        res = runner.invoke(app, ["report", str(root / "whole.parquet"), "-q", str(DEMO_Q), "-o",
+                                  str(tmp_path / "m.xlsx"), "--by", "district"])
+        assert res.exit_code == 0, res.output
+        mem, dsk = _cells(tmp_path / "m.xlsx"), _cells(tmp_path / "d.xlsx")
+        for sheet in ("Items", "Subgroups", "Patterns", "Completeness"):
+            assert {k: v for k, v in mem.items() if k[0] == sheet} == {k: v for k, v in dsk.items() if k[0] == sheet}
+        mem_check = runner.invoke(app, ["check", str(root / "whole.parquet"), "-q", str(DEMO_Q)])
+        dask_check = runner.invoke(app, ["check", str(root / "parts"), "-q", str(DEMO_Q), "--engine", "dask",
+                                         "--scheduler", address])
+        assert dask_check.exit_code == mem_check.exit_code
+        assert dask_check.stdout.splitlines()[:-2] == mem_check.stdout.splitlines()[:-2]
     finally:
         for p in procs:
             p.terminate()
@@ -250,3 +266,87 @@ def test_cli_against_a_real_scheduler_and_two_workers(survey, tmp_path):
                 p.wait(timeout=20)
             except subprocess.TimeoutExpired:
                 p.kill()
+
+
+def _cells(path: Path) -> dict:
+    """Every cell of every sheet: (sheet, coordinate) -> (value, number format), read by openpyxl."""
+    import openpyxl
+
+    wb = openpyxl.load_workbook(path)
+    return {(ws.title, cell.coordinate): (cell.value, cell.number_format)
+            for ws in wb.worksheets for row in ws.iter_rows() for cell in row if cell.value is not None}
+
+
+@pytest.mark.parametrize("kind", ["parquet-row-groups", "sav", "csv"])
+def test_report_workbook_equals_the_in_memory_engine(survey, client, tmp_path, kind):
+    """DESIGN §7: formatted workbook cells equal (counts exactly, floats within 1e-9, same number format)."""
+    import datetime as dt
+
+    import pyarrow.parquet as pq
+
+    from skipwise.classify.delivery import delivery_meta
+    from skipwise.io import get_meta, read_survey
+    from skipwise.report import write_item_report
+    from skipwise.scale.convert import convert_to_parts
+    from skipwise.scale.report import report_on_cluster
+    from skipwise.scale.sources import parquet_parts
+
+    root, frame, q = survey
+    data = frame.assign(wt=1.0 / frame["sel_prob"])
+    data.loc[data.index[::97], "wt"] = 0.0  # some weights of 0 (the Overview's note)
+    meta = delivery_meta(get_meta(frame), q, frame)
+    meta, dtypes = None, None
+    if kind == "parquet-row-groups":
+        src = tmp_path / "w.parquet"
+        write_survey(data, tmp_path / "one.parquet")
+        pq.write_table(pq.read_table(tmp_path / "one.parquet"), src, row_group_size=500)
+        parts = parquet_parts(src, 500)
+    else:
+        src = tmp_path / f"w.{kind}"
+        write_survey(data, src, delivery_meta(get_meta(data), q, data))
+        scratch = tmp_path / "scratch"
+        scratch.mkdir()
+        conv = convert_to_parts(src, scratch, partition_rows=500)
+        parts, meta, dtypes = conv.parts, conv.meta, conv.dtypes
+    assert len(parts) == 5
+    when = dt.datetime(2026, 6, 30, 12, 0)
+    opts = dict(weight="wt", by=("district", "years_here"), fault_rows=40, top_items=6, input_path=src, written=when)
+    write_item_report(read_survey(src), q, tmp_path / "mem.xlsx", **opts)
+    res = report_on_cluster(parts, q, tmp_path / "dask.xlsx", client=client, meta=meta, dtypes=dtypes, **opts)
+    assert res.counts.faults_total > 40  # the fault sheet is capped, the total counts them all
+    mem, got = _cells(tmp_path / "mem.xlsx"), _cells(tmp_path / "dask.xlsx")
+    assert mem.keys() == got.keys()
+    for key, (value, fmt) in mem.items():
+        other, other_fmt = got[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, (int, float)) and isinstance(other, (int, float)) and not isinstance(value, bool):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-12), key
+        else:
+            assert other == value, key
+
+
+def test_check_findings_equal_the_in_memory_engine(survey, client, tmp_path):
+    """Duplicate ids across partitions, blank ids and undeclared values: the same findings, word for word."""
+    import pyarrow.parquet as pq
+
+    from skipwise.checkdata import check_data
+    from skipwise.io import read_survey
+    from skipwise.scale.check import check_on_cluster
+    from skipwise.scale.sources import parquet_parts
+
+    root, frame, q = survey
+    data = frame.copy()
+    ids = data["case_id"].astype(object).to_numpy().copy()
+    ids[1900], ids[2000], ids[2100] = ids[3], ids[3], ids[700]  # across partitions
+    ids[[10, 1200]] = None
+    data["case_id"] = ids
+    data.loc[data.index[[5, 1500, 2200]], "hh_size"] = 77.0  # no declared code, outside the range
+    write_survey(data, tmp_path / "one.parquet")
+    src = tmp_path / "c.parquet"
+    pq.write_table(pq.read_table(tmp_path / "one.parquet"), src, row_group_size=500)
+    mem = check_data(read_survey(src), q, top=3)
+    got = check_on_cluster(parquet_parts(src, 500), q, client=client, top=3)
+    assert [p.code for p in mem.problems] == [p.code for p in got.problems]
+    assert mem.to_rows() == got.to_rows()
+    text = " ".join(r["detail"] for r in got.to_rows())
+    assert "2 case id(s) occur more than once (5 rows)" in text and "2 row(s) have a blank case id (rows 11, 1201)" in text

@@ -131,26 +131,19 @@ def _problem(code: ProblemCode, message: str, q: Questionnaire, item: str | None
     return Problem(code=code, category=Category.DATA, file=q.path, item=item, message=message, hint=hint)
 
 
-def _case_ids(data: pd.DataFrame, q: Questionnaire, top: int) -> list[Problem]:
-    if q.case_id not in data.columns:
-        return []
-    from skipwise.caseids import id_values
-
-    stored = id_values(data[q.case_id])  # compared in their stored type, never as floats
-    blank = stored.isna().to_numpy()
+def _case_ids(counts, q: Questionnaire, top: int) -> list[Problem]:
+    """Blank and duplicate case ids from merged :class:`~skipwise.checkcounts.CheckCounts`."""
     out = []
-    if blank.any():
-        rows = np.flatnonzero(blank)
-        out.append(_problem(ProblemCode.BAD_DATA, f"{len(rows):,} row(s) have a blank case id (rows "
-                            f"{_listed(list(rows[:top] + 1), len(rows))})", q, q.case_id,
+    if counts.blank_ids:
+        rows = counts.blank_rows
+        out.append(_problem(ProblemCode.BAD_DATA, f"{counts.blank_ids:,} row(s) have a blank case id (rows "
+                            f"{_listed(list(rows[:top] + 1), counts.blank_ids)})", q, q.case_id,
                             "give every case an id"))
-    ids = stored[~blank]
-    dup = ids[ids.duplicated(keep=False)]
-    if len(dup):
-        distinct = pd.unique(dup)
-        out.append(_problem(ProblemCode.DUPLICATE_CASE_ID, f"{len(distinct):,} case id(s) occur more than once "
-                            f"({len(dup):,} rows): {_listed(list(distinct[:top]), len(distinct))}", q, q.case_id,
-                            "remove duplicate rows or correct the ids"))
+    dups = counts.duplicates
+    if dups is not None and dups.distinct:
+        out.append(_problem(ProblemCode.DUPLICATE_CASE_ID, f"{dups.distinct:,} case id(s) occur more than once "
+                            f"({dups.rows:,} rows): {_listed(list(dups.first['id'][:top]), dups.distinct)}", q,
+                            q.case_id, "remove duplicate rows or correct the ids"))
     return out
 
 
@@ -165,12 +158,12 @@ def _known_columns(q: Questionnaire) -> dict[str, str | None]:
     return known
 
 
-def _missing(data: pd.DataFrame, q: Questionnaire, known: dict[str, str | None]) -> list[Problem]:
-    present = [str(c) for c in data.columns]
+def _missing(columns: Sequence[str], q: Questionnaire, known: dict[str, str | None]) -> list[Problem]:
+    present = [str(c) for c in columns]
     unclaimed = [c for c in present if c not in known]
     out = []
     for col, owner in known.items():
-        if col in data.columns:
+        if col in present:
             continue
         what = ("the case id" if col == q.case_id else f"option column of '{owner}'" if owner and owner != col
                 else "an item" if owner else "a context or paradata column")
@@ -188,15 +181,14 @@ def _decoded_columns(item: Item, data: pd.DataFrame) -> list[tuple[str, K.Decode
             for col in item.columns if col in data.columns]
 
 
-def _undeclared(item: Item, col: str, dec: K.Decoded, data: pd.DataFrame, q: Questionnaire,
-                top: int) -> Problem | None:
-    bad = dec.kind == K.INVALID
-    n = int(bad.sum())
+def _undeclared(item: Item, col: str, values: pd.DataFrame, q: Questionnaire, top: int) -> Problem | None:
+    """The finding of one column's undeclared values (``values``: value, cases, first row)."""
+    n = int(values["cases"].sum())
     if not n:
         return None
     # stored values as written; most frequent first, ties in order of first appearance
-    counts = data[col][bad].value_counts(sort=False).sort_values(ascending=False, kind="stable")
-    shown = ", ".join(f"{_show(v)} ({c:,})" for v, c in counts.head(top).items())
+    counts = values.sort_values(["cases", "row"], ascending=[False, True], kind="stable")
+    shown = ", ".join(f"{_show(v)} ({c:,})" for v, c in zip(counts["value"].head(top), counts["cases"].head(top)))
     if len(counts) > top:
         shown += f" and {len(counts) - top:,} more value(s)"
     where = f"column '{col}': " if col != item.name else ""
@@ -231,25 +223,35 @@ def check_data(data: pd.DataFrame, questionnaire: Questionnaire, *, top: int = 5
     DataCheck
         ``ok`` is False when any finding is an error (see the module's table).
     """
+    from skipwise.checkcounts import check_counts
+
+    return check_findings(check_counts(data, questionnaire, top=top, whole=True), questionnaire,
+                          [str(c) for c in data.columns], top=top)
+
+
+def check_findings(counts, questionnaire: Questionnaire, columns: Sequence[str], *, top: int = 5) -> DataCheck:
+    """The findings of :func:`check_data` from merged counts (:mod:`skipwise.checkcounts`) and the file's columns.
+
+    The dask engine counts partitions and calls this on the client; the in-memory engine
+    counts the whole file as one chunk.
+    """
     q = questionnaire
     known = _known_columns(q)
-    problems = _case_ids(data, q, top) + _missing(data, q, known)
+    present = set(columns)
+    problems = _case_ids(counts, q, top) + _missing(columns, q, known)
     unused: list[Problem] = []
     global_hits = np.zeros(len(q.codes), dtype=np.int64)
     global_users = np.zeros(len(q.codes), dtype=np.int64)
     for item in q.items:
-        if item.type is not ItemType.MULTI and item.name not in data.columns:
+        if item.name not in counts.hits:
             continue
-        decoded = _decoded_columns(item, data)
-        if not decoded:
-            continue
-        hits = np.zeros(len(item.codes), dtype=np.int64)
-        for col, dec in decoded:
-            found = _undeclared(item, col, dec, data, q, top)
-            if found is not None:
-                problems.append(found)
-            coded = dec.code[dec.code >= 0]
-            hits += np.bincount(coded, minlength=len(item.codes))[:len(item.codes)]
+        cols = [c for c in item.columns if c in present] if item.type is ItemType.MULTI else [item.name]
+        for col in cols:
+            if (item.name, col) in counts.undeclared:
+                found = _undeclared(item, col, counts.undeclared[(item.name, col)], q, top)
+                if found is not None:
+                    problems.append(found)
+        hits = counts.hits[item.name]
         for i, code in enumerate(item.codes):
             g = next((j for j, gc in enumerate(q.codes) if gc is code), None)
             if g is not None:
@@ -266,9 +268,9 @@ def check_data(data: pd.DataFrame, questionnaire: Questionnaire, *, top: int = 5
                                    "remove it if the instrument cannot produce it"))
     extra = [_problem(ProblemCode.UNDECLARED_COLUMN, f"column '{c}' is not in the questionnaire", q, str(c),
                       "add it as an item, or list it under context if it is frame or paradata")
-             for c in data.columns if str(c) not in known]
-    return DataCheck(problems=problems + unused + reason_number_notes(q) + extra, n_cases=len(data),
-                     n_columns=data.shape[1])
+             for c in columns if str(c) not in known]
+    return DataCheck(problems=problems + unused + reason_number_notes(q) + extra, n_cases=counts.n,
+                     n_columns=len(columns))
 
 
 def reason_number_notes(q: Questionnaire) -> list[Problem]:

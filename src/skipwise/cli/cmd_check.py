@@ -3,12 +3,13 @@
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated, Sequence
+from typing import Annotated, Optional, Sequence
 
 import typer
 
 from skipwise.checkdata import check_data
 from skipwise.cli.app import app, fail
+from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 
 COLUMNS = ("kind", "item", "finding", "detail")
@@ -32,6 +33,9 @@ def check_command(
                                                 help="Questionnaire file (YAML, format 1) to check.")],
     top: Annotated[int, typer.Option("--top", min=1,
                                      help="How many values or case ids a finding lists.")] = 5,
+    engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
+    scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
+    partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
     """Check a questionnaire file against a data file before classifying.
 
@@ -44,15 +48,28 @@ def check_command(
     The table shows a few stored values and case ids: the data holds
     respondents' answers, so treat the output under your organization's data
     protection rules.
+
+    With --engine dask (files larger than memory, clusters; docs/scale.md) partitions are counted
+    on the cluster and duplicate case ids found across them; the findings equal the in-memory
+    engine's.
     """
+    if engine is Engine.AUTO:
+        from skipwise.cli.engine import choose_engine
+
+        engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
     try:
         q = load(questionnaire)
-        from skipwise.io import read_survey
+        if engine is Engine.DASK:
+            from skipwise.cli.engine import check_with_dask
 
-        frame = read_survey(data)
+            result = check_with_dask(data, q, scheduler=scheduler, partition_rows=partition_rows, top=top)
+        else:
+            from skipwise.io import read_survey
+
+            frame = read_survey(data)
+            result = check_data(frame, q, top=top)
     except SkipwiseError as err:
         fail(err)
-    result = check_data(frame, q, top=top)
     rows = result.to_rows(list(COLUMNS))
     if rows:
         for text in format_table(rows):

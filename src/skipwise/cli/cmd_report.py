@@ -8,6 +8,7 @@ from typing import Annotated, Optional
 import typer
 
 from skipwise.cli.app import app, fail
+from skipwise.cli.engine import ENGINE_HELP, PARTITION_HELP, SCHEDULER_HELP, Engine
 from skipwise.errors import SkipwiseError
 from skipwise.rates import DEFAULT_MIN_BASE, item_rates, worst_lines
 
@@ -22,7 +23,9 @@ HELP = (
     "with D under --min-base are marked and never ranked.\n\n"
     "Caution: nonresponse adjustments do not repair data missing not at random (MNAR). The Routing "
     "faults sheet lists case ids (leave them out with --no-case-ids): share the workbook only under "
-    "your organization's data protection rules."
+    "your organization's data protection rules.\n\n"
+    "With --engine dask (files larger than memory, clusters; docs/scale.md) every figure comes from "
+    "counts of partitions merged on the client, and the workbook equals the in-memory engine's."
 )
 
 
@@ -49,11 +52,30 @@ def report_command(
                                   "and subgroup cells under it are shown but marked (default 30: common "
                                   "practice).")] = DEFAULT_MIN_BASE,
     overwrite: Annotated[bool, typer.Option("--overwrite", help="Replace an existing workbook.")] = False,
+    engine: Annotated[Engine, typer.Option("--engine", help=ENGINE_HELP)] = Engine.MEMORY,
+    scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
+    partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
     from skipwise.cli.common import classify_with_progress, load_inputs
     from skipwise.io.atomic import check_writable
     from skipwise.report import write_item_report
 
+    if engine is Engine.AUTO:
+        from skipwise.cli.engine import choose_engine
+
+        engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
+    if engine is Engine.DASK:
+        from skipwise.cli.engine import report_with_dask
+
+        try:
+            if out.suffix.lower() != ".xlsx":
+                raise SkipwiseError(f"output {out} must end in .xlsx")
+            report_with_dask(data, questionnaire, out, scheduler=scheduler, partition_rows=partition_rows,
+                             overwrite=overwrite, weight=weight, by=tuple(by or ()), case_ids=not no_case_ids,
+                             top_items=top_items, top_patterns=top_patterns, fault_rows=fault_rows, min_base=min_base)
+        except SkipwiseError as err:
+            fail(err)
+        return
     try:
         if out.suffix.lower() != ".xlsx":
             raise SkipwiseError(f"output {out} must end in .xlsx")

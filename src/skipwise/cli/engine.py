@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import contextlib
+import sys
 from enum import Enum
 from pathlib import Path
 from typing import Optional
@@ -12,7 +13,8 @@ import typer
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = ["Engine", "PartFormat", "ENGINE_HELP", "SCHEDULER_HELP", "PARTITION_HELP", "PARTS_HELP", "classify_with_dask",
-           "choose_engine", "dask_parts", "memory_budget", "data_size"]
+           "choose_engine", "dask_parts", "memory_budget", "data_size", "report_with_dask",
+           "check_with_dask"]
 
 
 class Engine(str, Enum):
@@ -190,3 +192,44 @@ def classify_with_dask(data: Path, questionnaire: Path, out: Path, *, form: str,
         return
     typer.echo(f"wrote {out}/ ({len(res.parts):,} parts)")
     typer.echo(f"wrote {faults_folder(out)}/ ({res.faults:,} routing faults; it lists case ids)")
+
+
+def report_with_dask(data: Path, questionnaire: Path, out: Path, *, scheduler: Optional[str], partition_rows: int,
+                     overwrite: bool, **options) -> None:
+    """``skipwise report --engine dask``: the workbook from counts merged on the client."""
+    from skipwise.io.atomic import check_writable
+    from skipwise.questionnaire import load_questionnaire
+    from skipwise.rates import worst_lines
+    from skipwise.scale import dask_client
+    from skipwise.scale.report import report_on_cluster
+
+    check_writable(out, overwrite=overwrite, inputs=[data] if data.is_file() else [])
+    q = load_questionnaire(questionnaire)
+    with dask_parts(data, out, partition_rows) as (parts, meta, dtypes):
+        with dask_client(scheduler) as client:
+            with typer.progressbar(length=max(sum(p.rows for p in parts), 1), label="    counting") as bar:
+                res = report_on_cluster(parts, q, out, client=client, meta=meta, dtypes=dtypes, input_path=data,
+                                        overwrite=overwrite, progress=bar.update, **options)
+    first = res.counts
+    typer.echo(f"{first.n:,} cases x {len(q.items)} items in {res.partitions:,} partitions")
+    weighted = first.wcounts is not None
+    rates = first.rates.with_min_base(options.get("min_base", 30))
+    typer.echo("highest item nonresponse rates" + (" (weighted)" if weighted else "") + ":")
+    for line in worst_lines(rates, weighted=weighted):
+        typer.echo(line)
+    typer.echo(f"wrote {res.path}" + ("" if not options.get("case_ids", True) else
+                                      " (its Routing faults sheet lists case ids)"))
+
+
+def check_with_dask(data: Path, q, *, scheduler: Optional[str], partition_rows: int, top: int):
+    """``skipwise check --engine dask``: the findings from counts merged on the client."""
+    from skipwise.scale import dask_client
+    from skipwise.scale.check import check_on_cluster
+
+    scratch_beside = data if data.is_file() else data / "x"
+    with dask_parts(data, scratch_beside, partition_rows) as (parts, meta, dtypes):
+        with dask_client(scheduler) as client:
+            with typer.progressbar(length=max(sum(p.rows for p in parts), 1), label="    checking",
+                                   file=sys.stderr) as bar:
+                return check_on_cluster(parts, q, client=client, meta=meta, dtypes=dtypes, top=top,
+                                        progress=bar.update)

@@ -79,22 +79,6 @@ def pick_items(rates: pd.Series, top: int) -> tuple[str, ...]:
     return tuple(name for name in rates.index if name in chosen)
 
 
-def _encode(mask: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Unique patterns of a (cases x k) boolean matrix: (unique rows as bool, inverse, counts)."""
-    n, k = mask.shape
-    if k <= 64:
-        key = np.zeros(n, dtype=np.uint64)
-        for i in range(k):  # loop over items, not cases
-            key |= mask[:, i].astype(np.uint64) << np.uint64(i)
-        uniq, inverse, counts = np.unique(key, return_inverse=True, return_counts=True)
-        bits = ((uniq[:, None] >> np.arange(k, dtype=np.uint64)[None, :]) & np.uint64(1)).astype(bool)
-        return bits, inverse.reshape(-1), counts
-    packed = np.packbits(mask, axis=1)
-    uniq, inverse, counts = np.unique(packed, axis=0, return_inverse=True, return_counts=True)
-    bits = np.unpackbits(uniq, axis=1, count=k).astype(bool)
-    return bits, inverse.reshape(-1), counts
-
-
 def nonresponse_patterns(mask: np.ndarray, items: tuple[str, ...], *, top: int,
                          weight: np.ndarray | None = None) -> PatternTable:
     """Count the joint nonresponse patterns of ``items`` and keep the ``top`` most frequent.
@@ -114,24 +98,9 @@ def nonresponse_patterns(mask: np.ndarray, items: tuple[str, ...], *, top: int,
     Returns
     -------
     PatternTable
+        Counted through :func:`skipwise.report.counts.pattern_counts`, whose counts of chunks
+        of rows add up (the dask engine's path).
     """
-    n, k = mask.shape
-    w_total = None if weight is None else float(weight.sum())
-    if n == 0 or k == 0:
-        return PatternTable(items=items, grid=np.zeros((0, k), dtype=bool), counts=np.zeros(0, dtype=np.int64),
-                            weighted=None if weight is None else np.zeros(0), total_cases=n,
-                            total_weight=w_total, distinct=0, other_cases=0,
-                            other_weight=None if weight is None else 0.0)
-    bits, inverse, counts = _encode(mask)
-    n_missing = bits.sum(axis=1)
-    order = np.lexsort((np.arange(len(counts)), -n_missing, -counts))
-    keep = order[:top]
-    weighted = None
-    other_w = None
-    if weight is not None:
-        wsum = np.bincount(inverse, weights=weight, minlength=len(counts))
-        weighted = wsum[keep]
-        other_w = float(wsum.sum() - weighted.sum())
-    return PatternTable(items=items, grid=bits[keep], counts=counts[keep].astype(np.int64), weighted=weighted,
-                        total_cases=n, total_weight=w_total, distinct=len(counts),
-                        other_cases=int(n - counts[keep].sum()), other_weight=other_w)
+    from skipwise.report.counts import pattern_counts
+
+    return pattern_counts(mask, weight).table(items, top)

@@ -25,6 +25,7 @@ from skipwise.rules.words import universe_words
 __all__ = [
     "Figures", "compute_figures", "in_codes", "ITEM_RATE", "ITEM_RATE_W", "items_table", "status_shares", "subgroup_rates", "SubgroupTable",
     "completeness_table", "completeness_summary", "fault_counts", "fault_rows", "COMPLETENESS_BINS",
+    "items_from", "shares_from", "subgroups_from",
 ]
 
 ITEM_RATE = "Item nonresponse rate"
@@ -124,6 +125,13 @@ ANSWERED_RATE, FAULT_RATE = "Answered rate", "Fault rate"
 
 
 def items_table(c: Classification, fig: Figures, rates: ItemRates | None = None) -> pd.DataFrame:
+    """One row per item in interview order (see :func:`items_from`), from a classification's figures."""
+    rates = rates if rates is not None else item_rates(c, fig.weight)
+    return items_from(c.questionnaire, tuple(c.items), tuple(c.categories), fig.counts, rates)
+
+
+def items_from(q, item_names: tuple[str, ...], categories: tuple[str, ...], counts: pd.DataFrame,
+               rates: ItemRates) -> pd.DataFrame:
     """One row per item in interview order: rule, counts of every status and the rates.
 
     Every rate comes from :func:`skipwise.rates.item_rates` (the package's one
@@ -132,20 +140,18 @@ def items_table(c: Classification, fig: Figures, rates: ItemRates | None = None)
     rate has the same denominator.  With weights the weighted rate (a ratio of
     weighted totals) stands right beside each unweighted one.
     """
-    q = c.questionnaire
-    rates = rates if rates is not None else item_rates(c, fig.weight)
     u = rates.table(False)
     w = rates.table(True) if rates.weighted else None
-    items = [q.item(i) for i in c.items]
+    items = [q.item(i) for i in item_names]
     out = pd.DataFrame({
-        "Section": [it.section for it in items], "Item": list(c.items), "Label": [it.label for it in items],
+        "Section": [it.section for it in items], "Item": list(item_names), "Label": [it.label for it in items],
         "Who was asked": [universe_words(it, q) for it in items],
         "Asked if (rule as written)": [it.rule_text for it in items],
         "Cases": u["cases"].to_numpy(), BASE_COL: u["D"].to_numpy(),
         SMALL_COL: np.where(u["below_min_base"].to_numpy(), f"yes (D < {rates.min_base})", ""),
     })
-    for status in c.categories:
-        out[status] = fig.counts[status].to_numpy()
+    for status in categories:
+        out[status] = counts[status].to_numpy()
     out["invalid where asked (in D)"] = u["invalid_in_universe"].to_numpy()
     out["Nonresponse"] = u["nonresponse"].to_numpy()
     out["Faults (in D)"] = u["faults"].to_numpy()
@@ -163,12 +169,18 @@ def items_table(c: Classification, fig: Figures, rates: ItemRates | None = None)
 
 def status_shares(c: Classification, fig: Figures) -> pd.DataFrame:
     """Share of all (case, item) cells holding each status, unweighted and weighted."""
-    counts = fig.counts.sum(axis=0)
+    return shares_from(tuple(c.categories), fig.counts, fig.wcounts)
+
+
+def shares_from(categories: tuple[str, ...], counts_frame: pd.DataFrame,
+                wcounts_frame: pd.DataFrame | None) -> pd.DataFrame:
+    """Share of all (case, item) cells holding each status, from the items x statuses counts."""
+    counts = counts_frame.sum(axis=0)
     total = max(int(counts.sum()), 1)
-    out = pd.DataFrame({"status": list(c.categories), "cells": counts.to_numpy(dtype=np.int64),
+    out = pd.DataFrame({"status": list(categories), "cells": counts.to_numpy(dtype=np.int64),
                         "share": counts.to_numpy(dtype=np.float64) / total})
-    if fig.wcounts is not None:
-        wc = fig.wcounts.sum(axis=0).to_numpy(dtype=np.float64)
+    if wcounts_frame is not None:
+        wc = wcounts_frame.sum(axis=0).to_numpy(dtype=np.float64)
         out["weighted share"] = wc / wc.sum() if wc.sum() > 0 else np.nan
     return out
 
@@ -205,21 +217,14 @@ def group_codes(values: pd.Series, value_labels: dict | None = None) -> tuple[pd
 
     Labelled codes read by their value label ("Northfold" rather than "1"), codes
     as whole numbers ("1", never "1.0"), and a numeric column with many distinct
-    values in quintile bins named by their observed ends ("19–41").
+    values in quintile bins named by their observed ends ("19–41").  The groups are
+    chosen from the column's distinct values and counts (:func:`skipwise.report.counts.group_spec`),
+    which chunks of rows add up to.
     """
-    labels_of = {_plain_key(k): str(v) for k, v in (value_labels or {}).items()}
-    numeric = pd.api.types.is_numeric_dtype(values) and not pd.api.types.is_bool_dtype(values)
-    if numeric and not labels_of and values.nunique() > MAX_UNBINNED:
-        x = values.astype("float64")
-        bins = pd.qcut(x, BINS, labels=False, duplicates="drop")
-        ends = x.groupby(bins).agg(["min", "max"])
-        labels = [f"{_fmt_number(lo)}\u2013{_fmt_number(hi)}" if lo != hi else _fmt_number(lo)
-                  for lo, hi in zip(ends["min"], ends["max"])]
-        codes = pd.Series(bins.to_numpy(), index=values.index).map({b: i for i, b in enumerate(ends.index)})
-        return codes.astype("float64"), labels
-    codes, uniques = pd.factorize(values, sort=True, use_na_sentinel=True)
-    labels = [labels_of.get(_plain_key(u), _group_label(u)) for u in uniques]
-    return pd.Series(np.where(codes < 0, np.nan, codes), index=values.index), labels
+    from skipwise.report.counts import group_spec, group_values
+
+    spec = group_spec(group_values(values), value_labels)
+    return spec.codes(values), spec.labels
 
 
 def _plain_key(value: object) -> object:
@@ -240,28 +245,36 @@ def subgroup_rates(c: Classification, data: pd.DataFrame, by: tuple[str, ...],
                    weight: np.ndarray | None = None, *, min_base: int = 30,
                    value_labels: dict[str, dict] | None = None) -> SubgroupTable:
     """Item nonresponse rate (:func:`skipwise.rates.item_rates`) per item within each group."""
+    from skipwise.report.counts import count_second, group_spec, group_values
+
+    specs = {var: group_spec(group_values(data[var]), (value_labels or {}).get(var)) for var in by}
+    second = count_second(c, data, weight, chosen=(), specs=specs)
+    return subgroups_from(tuple(c.items), second.subgroups, specs, weighted=weight is not None, min_base=min_base)
+
+
+def subgroups_from(items: tuple[str, ...], parts: dict, specs: dict, *, weighted: bool,
+                   min_base: int = 30) -> SubgroupTable:
+    """The Subgroups table from merged subgroup rates and group sizes (one entry per ``by`` column)."""
     cols: dict[tuple[str, str], np.ndarray] = {}
     small: dict[tuple[str, str], np.ndarray] = {}
     sizes: dict[tuple[str, str], float] = {}
-    w = np.ones(len(c.index)) if weight is None else np.asarray(weight, dtype=np.float64)
-    for var in by:
-        codes, labels = group_codes(data[var], (value_labels or {}).get(var))
-        r = item_rates(c, weight, by=codes, min_base=min_base)
-        t = r.table(weight is not None)
-        p = len(c.items)
-        gnum = codes.fillna(-1).to_numpy(dtype=np.int64)
+    p = len(items)
+    for var, (r, group_sizes) in parts.items():
+        r = r.with_min_base(min_base)
+        t = r.table(weighted)
+        labels = specs[var].labels
         for gi, key in enumerate(r.groups):  # the table is group-major: p rows per group
             lab = MISSING_GROUP if key is None else labels[int(key)]
             part = t.iloc[gi * p:(gi + 1) * p]
             cols[(var, lab)] = part["nonresponse_rate"].to_numpy()
             small[(var, lab)] = part["below_min_base"].to_numpy(dtype=bool)
-            sizes[(var, lab)] = float(w[gnum == (-1 if key is None else int(key))].sum())
-    rates = pd.DataFrame(cols, index=list(c.items))
-    flags = pd.DataFrame(small, index=list(c.items))
+            sizes[(var, lab)] = float(group_sizes[0 if key is None else int(key) + 1])
+    rates = pd.DataFrame(cols, index=list(items))
+    flags = pd.DataFrame(small, index=list(items))
     if cols:
         rates.columns = pd.MultiIndex.from_tuples(list(cols))
         flags.columns = pd.MultiIndex.from_tuples(list(small))
-    return SubgroupTable(rates=rates, sizes=pd.Series(sizes, dtype=np.float64), weighted=weight is not None,
+    return SubgroupTable(rates=rates, sizes=pd.Series(sizes, dtype=np.float64), weighted=weighted,
                          small=flags, min_base=min_base)
 
 
@@ -271,51 +284,76 @@ COMPLETENESS_BINS: tuple[str, ...] = (
 )
 
 
-def completeness_table(fig: Figures) -> pd.DataFrame:
+def completeness_table(fig) -> pd.DataFrame:
     """Distribution of cases by the share of their applicable items that were answered.
 
     Bins are computed in integers (``10 * answered // applicable``) so a share
-    such as 3/10 always falls in its own tenth, never below it.
+    such as 3/10 always falls in its own tenth, never below it.  ``fig`` is a
+    chunk's :class:`Figures` or merged :class:`~skipwise.report.counts.CaseCounts`.
     """
-    applicable, answered, weight = fig.applicable, fig.answered, fig.weight
+    cases = _cases(fig)
+    applicable, answered = cases.applicable, cases.answered
     bins = np.where(applicable > 0, (10 * answered) // np.maximum(applicable, 1), 11)
     bins = np.where((applicable > 0) & (answered == applicable), 10, bins)
-    counts = np.bincount(bins, minlength=12)
+    counts = np.bincount(bins, weights=cases.cases, minlength=12).round().astype(np.int64)
     out = pd.DataFrame({"Share of applicable items answered": list(COMPLETENESS_BINS), "Cases": counts,
-                        "Share of cases": counts / max(len(bins), 1)})
-    if weight is not None:
-        wc = np.bincount(bins, weights=weight, minlength=12)
+                        "Share of cases": counts / max(cases.n, 1)})
+    if cases.weight is not None:
+        wc = np.bincount(bins, weights=cases.weight, minlength=12)
         out["Weighted share"] = wc / wc.sum() if wc.sum() > 0 else np.nan
     return out
 
 
-def completeness_summary(fig: Figures) -> list[tuple[str, object, str]]:
-    """Headline figures of case completeness: (label, value, kind) with kind 'int', 'pct' or 'dec'."""
-    weight = fig.weight
-    has = fig.applicable > 0
-    share = np.where(has, fig.answered / np.maximum(fig.applicable, 1), np.nan)
-    n = len(share)
+def _cases(fig):
+    from skipwise.report.counts import CaseCounts, case_counts
+
+    return fig if isinstance(fig, CaseCounts) else case_counts(fig)
+
+
+def _order_stat(values: np.ndarray, counts: np.ndarray, i: int) -> float:
+    """The ``i``-th smallest (0-based) of the values repeated ``counts`` times (values sorted)."""
+    return float(values[np.searchsorted(np.cumsum(counts), i, side="right")])
+
+
+def completeness_summary(fig) -> list[tuple[str, object, str]]:
+    """Headline figures of case completeness: (label, value, kind) with kind 'int', 'pct' or 'dec'.
+
+    Computed from the cases per (applicable, answered) pair, so chunks of rows add up; the
+    median is the middle order statistic (the mean of the two middle ones for an even count).
+    """
+    cases = _cases(fig)
+    has = cases.applicable > 0
+    n = cases.n
+    app, ans = cases.applicable[has], cases.answered[has]
+    share = ans / np.maximum(app, 1)
+    cnt = cases.cases[has]
+    order = np.argsort(share, kind="stable")
+    s_sorted, c_sorted = share[order], cnt[order]
+    m = int(cnt.sum())
+    if m:
+        mid = (_order_stat(s_sorted, c_sorted, m // 2) if m % 2 else
+               (_order_stat(s_sorted, c_sorted, m // 2 - 1) + _order_stat(s_sorted, c_sorted, m // 2)) / 2)
     rows: list[tuple[str, object, str]] = [
         ("Cases", n, "int"),
-        ("Cases with at least one applicable item", int(has.sum()), "int"),
-        ("Mean share of applicable items answered", float(share[has].mean()) if has.any() else None, "pct"),
-        ("Median share of applicable items answered", float(np.median(share[has])) if has.any() else None, "pct"),
-        ("Lowest share answered", float(share[has].min()) if has.any() else None, "pct"),
-        ("Cases that answered every applicable item",
-         int((has & (fig.answered == fig.applicable)).sum()), "int"),
-        ("Cases that broke off", int(fig.broke_off.sum()), "int"),
-        ("Cases with at least one routing fault", int((fig.faults > 0).sum()), "int"),
-        ("Mean applicable items per case", float(fig.applicable.mean()) if n else None, "dec"),
-        ("Mean items with nonresponse per case", float(fig.nonresponse.mean()) if n else None, "dec"),
+        ("Cases with at least one applicable item", m, "int"),
+        ("Mean share of applicable items answered", float((share * cnt).sum() / m) if m else None, "pct"),
+        ("Median share of applicable items answered", mid if m else None, "pct"),
+        ("Lowest share answered", float(share.min()) if m else None, "pct"),
+        ("Cases that answered every applicable item", int(cnt[ans == app].sum()), "int"),
+        ("Cases that broke off", cases.broke_off, "int"),
+        ("Cases with at least one routing fault", cases.with_faults, "int"),
+        ("Mean applicable items per case", cases.applicable_sum / n if n else None, "dec"),
+        ("Mean items with nonresponse per case", cases.nonresponse_sum / n if n else None, "dec"),
     ]
-    if weight is not None and has.any() and weight[has].sum() > 0:
-        rows.insert(3, ("Weighted mean share answered", float(np.average(share[has], weights=weight[has])), "pct"))
+    if cases.weight is not None and m and cases.weight[has].sum() > 0:
+        w = cases.weight[has]
+        rows.insert(3, ("Weighted mean share answered", float((share * w).sum() / w.sum()), "pct"))
     return rows
 
 
-def fault_counts(fig: Figures) -> pd.DataFrame:
-    """Per item with any routing fault: count of each fault status and the total."""
-    counts = fig.counts[list(S.FAULT_STATUSES)].copy()
+def fault_counts(fig) -> pd.DataFrame:
+    """Per item with any routing fault: count of each fault status and the total (``fig``: Figures or counts)."""
+    counts = (fig.counts if isinstance(fig, Figures) else fig)[list(S.FAULT_STATUSES)].copy()
     counts["total"] = counts.sum(axis=1)
     counts = counts[counts["total"] > 0]
     return counts.rename_axis("item").reset_index()

@@ -16,9 +16,10 @@ from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError, did_you_mean
 from skipwise.io.atomic import atomic_output, check_writable
 from skipwise.questionnaire.model import Questionnaire
-from skipwise.rates import DEFAULT_MIN_BASE, ItemRates, item_rates, status_label
+from skipwise.rates import DEFAULT_MIN_BASE, status_label
 from skipwise.report import tables as T
-from skipwise.report.patterns import nonresponse_patterns, pick_items
+from skipwise.report.counts import GroupSpec, ReportCounts, SecondCounts, count_first, count_second, group_spec
+from skipwise.report.patterns import pick_items
 from skipwise.report.sheets_completeness import worst_items, write_charts_sheet, write_completeness_sheet
 from skipwise.report.sheets_faults import FAULTS_HEADER_ROW, write_faults_sheet
 from skipwise.report.sheets_items import write_items_sheet, write_subgroups_sheet
@@ -33,7 +34,7 @@ SHEETS: tuple[str, ...] = ("Overview", "Items", "Routing faults", "Patterns", "S
 #: Fault rows listed by default; the per-item counts always cover every fault.
 DEFAULT_FAULT_ROWS = 100_000
 #: Most distinct values a ``by`` column may have (one sheet column each).
-MAX_GROUPS = 200
+from skipwise.report.counts import MAX_GROUPS  # noqa: E402
 
 
 def _check_options(data: pd.DataFrame, weight: str | None, by: tuple[str, ...], top_items: int,
@@ -99,21 +100,14 @@ def _value_labels(data: pd.DataFrame, q: Questionnaire, by: tuple[str, ...]) -> 
     return out
 
 
-def _weight_notes(weight: str | None, w: np.ndarray | None, rates: ItemRates) -> tuple[str, ...]:
+def _weight_notes(weight: str | None, zero: int | None) -> tuple[str, ...]:
     """Say where cases of weight 0 are counted (the weighting gives break-offs and nonrespondents 0)."""
-    if w is None:
-        return ()
-    zero = int(np.count_nonzero(w == 0))
     if not zero:
         return ()
     return (f"{zero:,} case(s) have weight 0 in '{weight}' (for example interviews the weighting treats as "
             "break-offs or nonrespondents, or cases not in the weighting file). They are counted in the "
             "unweighted counts and rates, and add nothing to the weighted ones; the Items sheet shows, per "
             "item, how many of its cells in D have weight 0.",)
-
-
-def _status_meanings(c: Classification) -> dict[str, str]:
-    return {s: status_label(s, c.questionnaire) for s in c.categories}
 
 
 def _sha256(path: Path) -> str:
@@ -205,42 +199,69 @@ def write_item_report(
         w = np.nan_to_num(np.asarray(weights, dtype=np.float64), nan=0.0)
     c = classification if classification is not None else run_classify(data, questionnaire)
     q = questionnaire
-
-    rates_all = item_rates(c, w, min_base=min_base)
-    fig = T.compute_figures(c, w, rates_all)
-    items = T.items_table(c, fig, rates_all)
+    # The whole file is one chunk: the same counts, choices and sheets as the dask engine's partitions.
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
-    faults, n_faults = T.fault_rows(c, fig, limit)
-    rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
+    first = count_first(c, data, w, by=by, fault_limit=limit)
+    chosen, specs = second_pass_choices(first, q, top_items=top_items, min_base=min_base,
+                                        value_labels=_value_labels(data, q, by))
+    second = count_second(c, data, w, chosen=chosen, specs=specs)
+    input_sha = _sha256(Path(input_path)) if input_path and Path(input_path).is_file() else None
+    return write_report_from_counts(q, path, first, second, chosen, specs, weight=weight, by=by, case_ids=case_ids,
+                                    top_patterns=top_patterns, min_base=min_base, input_path=input_path,
+                                    input_sha256=input_sha, overwrite=overwrite, written=written)
+
+
+def second_pass_choices(first: ReportCounts, q: Questionnaire, *, top_items: int, min_base: int,
+                        value_labels: dict[str, dict]) -> tuple[tuple[str, ...], dict[str, GroupSpec]]:
+    """What pass two needs from the whole file: the pattern grid's items and each ``by`` column's groups."""
+    rates_all = first.rates.with_min_base(min_base)
+    u = rates_all.table(False)
+    rates = pd.Series(u["nonresponse_rate"].to_numpy(), index=list(first.items))
     # Items under the minimum base are never chosen for the grid: one case can make a rate of 100%.
-    chosen = pick_items(rates.where(~rates_all.below_min_base.to_numpy()), top_items)
+    chosen = pick_items(rates.where(~u["below_min_base"].to_numpy()), top_items)
+    specs = {var: group_spec(values, value_labels.get(var)) for var, values in first.groups.items()}
+    return chosen, specs
+
+
+def write_report_from_counts(q: Questionnaire, path: Path, first: ReportCounts, second: SecondCounts,
+                             chosen: tuple[str, ...], specs: dict[str, GroupSpec], *, weight: str | None,
+                             by: tuple[str, ...], case_ids: bool, top_patterns: int, min_base: int,
+                             input_path: str | Path | None, input_sha256: str | None, overwrite: bool,
+                             written: dt.datetime | None) -> Path:
+    """Build and write the workbook from merged counts only (both engines end here)."""
+    weighted = first.wcounts is not None
+    rates_all = first.rates.with_min_base(min_base)
+    counts = first.counts_frame()
+    items = T.items_from(q, first.items, first.categories, counts, rates_all)
+    faults, n_faults = first.fault_head, first.faults_total
+    rates = pd.Series(items[T.ITEM_RATE].to_numpy(), index=items["Item"].to_numpy())
     base_col = next(col for col in items.columns if str(col).startswith(("D: in universe", "In universe (excl.")))
-    idx = [c.items.index(name) for name in chosen]
-    nr_codes = [c.code(s) for s in c.nonresponse_statuses if s in c.categories]
-    mask = np.column_stack([T.in_codes(c.codes[:, j], nr_codes) for j in idx]) if idx else np.zeros((len(c.index), 0), dtype=bool)
-    patterns = nonresponse_patterns(mask, chosen, top=top_patterns, weight=w)
-    subgroups = T.subgroup_rates(c, data, by, w, min_base=min_base,
-                                 value_labels=_value_labels(data, q, by)) if by else None
+    patterns = second.patterns.table(chosen, top_patterns)
+    subgroups = T.subgroups_from(first.items, second.subgroups, specs, weighted=weighted,
+                                 min_base=min_base) if by else None
     info = OverviewInfo(
         survey_name=q.name, survey_title=q.title,
         # the file's name, not its absolute path: a rerun elsewhere gives the same workbook
         input_file=Path(input_path).name if input_path else None,
-        input_sha256=_sha256(Path(input_path)) if input_path and Path(input_path).is_file() else None,
+        input_sha256=input_sha256,
         written_utc=(written.replace(tzinfo=dt.timezone.utc) if written is not None else
                      dt.datetime.now(dt.timezone.utc)).replace(microsecond=0).isoformat(),
-        version=skipwise.__version__, cases=len(c.index), items=len(c.items), weight=weight,
-        total_weight=float(w.sum()) if w is not None else None, by=by, case_ids=case_ids,
+        version=skipwise.__version__, cases=first.n, items=len(first.items), weight=weight,
+        total_weight=first.total_weight, by=by, case_ids=case_ids,
         faults_total=n_faults, faults_shown=len(faults),
-        notes=_weight_notes(weight, w, rates_all), labels=_status_meanings(c),
+        notes=_weight_notes(weight, first.zero_weight if weighted else None),
+        labels={s: status_label(s, q) for s in first.categories},
     )
+    w = weighted or None
+    shares = T.shares_from(first.categories, counts, first.counts_frame(True) if weighted else None)
 
     wb = house_workbook(write_only=True)
-    write_overview_sheet(wb, info, T.status_shares(c, fig), title=SHEETS[0])
+    write_overview_sheet(wb, info, shares, title=SHEETS[0])
     write_items_sheet(wb, items, title=SHEETS[1])
-    write_faults_sheet(wb, faults, n_faults, T.fault_counts(fig), case_ids=case_ids, title=SHEETS[2])
+    write_faults_sheet(wb, faults, n_faults, T.fault_counts(counts), case_ids=case_ids, title=SHEETS[2])
     write_patterns_sheet(wb, patterns, rates, title=SHEETS[3])
     write_subgroups_sheet(wb, subgroups, items, title=SHEETS[4])
-    comp_layout = write_completeness_sheet(wb, T.completeness_table(fig), T.completeness_summary(fig),
+    comp_layout = write_completeness_sheet(wb, T.completeness_table(first.cases), T.completeness_summary(first.cases),
                                            title=SHEETS[5])
     rate_col = T.ITEM_RATE_W if w is not None and T.ITEM_RATE_W in items.columns else T.ITEM_RATE
     write_charts_sheet(wb, worst_items(items, rate_col, base_col, min_base), comp_layout, wb[SHEETS[5]],
