@@ -4,7 +4,7 @@ VENV   := .venv
 BIN    := $(VENV)/bin
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test venv clean bench bench-all render
+.PHONY: demo test venv clean bench bench-all bench-scale render
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -32,6 +32,11 @@ bench: $(STAMP)
 bench-all: bench
 	$(BIN)/python benchmarks/bench_weighting.py
 	$(BIN)/python benchmarks/bench_impute.py
+
+# The dask engine on a tiled invented survey (5M x 100 at scale 1; SKIPWISE_BENCH_SCALE scales it), apart from
+# `make bench`: it starts a local cluster and needs several GB of disk for the parts (SKIPWISE_BENCH_TMP: where).
+bench-scale: $(STAMP)
+	$(BIN)/python benchmarks/bench_scale.py
 
 clean:
 	rm -rf $(VENV) out .pytest_cache .hypothesis

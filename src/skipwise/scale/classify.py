@@ -158,7 +158,7 @@ def classify_on_cluster(source: str | Path, q, out: Path, *, client, overwrite: 
 
     out = Path(out)
     parts = parquet_parts(source, partition_rows) if parts is None else parts
-    check_columns(read_part(Part(parts[0].path, parts[0].row_groups[:1], 0), meta, dtypes), q)
+    check_columns(read_part(Part(parts[0].path, (), 0), meta, dtypes), q)  # the columns only: no rows read
     if out.suffix.lower() in (".parquet", ".csv"):
         from skipwise.scale.single import classify_to_one_file
 
