@@ -27,3 +27,9 @@ def test_many_numeric_values_fall_in_bins_named_by_their_ends():
     assert labels == ["19\u201332", "33\u201346", "47\u201360", "61\u201374", "75\u201388"]
     assert codes.value_counts().tolist() == [14] * 5
     assert not any("(" in lab or "]" in lab for lab in labels)
+
+
+def test_a_grouping_column_with_every_value_missing_is_one_missing_group():
+    # found by tests/test_fuzz.py: no distinct values at all must not break the group numbers
+    codes, labels = group_codes(pd.Series([np.nan, np.nan]))
+    assert labels == [] and codes.isna().all()

@@ -141,6 +141,8 @@ class GroupSpec:
     def codes(self, series: pd.Series) -> pd.Series:
         """Group number per case (float, NaN where missing), as :func:`tables.group_codes` gives them."""
         pos = self.values.get_indexer(series)
+        if not len(self.group_of):  # every value missing: one group, the missing one
+            return pd.Series(np.full(len(series), np.nan), index=series.index)
         codes = np.where(pos >= 0, self.group_of[np.maximum(pos, 0)].astype(np.float64), np.nan)
         return pd.Series(codes, index=series.index)
 
