@@ -111,7 +111,7 @@ def test_missing_plan_file(tmp_path):
 
 
 def test_engine_key_read_and_checked_against_the_steps_it_supports(inputs):
-    # DESIGN §7: engine: {kind: dask, scheduler: ..., partition_rows: ...}; dask writes Parquet or CSV only
+    # docs/scale.md: engine: {kind: dask, scheduler: ..., partition_rows: ...}; dask writes Parquet or CSV only
     plan = load_run_plan(_write(inputs, """\
         format: 1
         data: in/data.csv

@@ -1,4 +1,4 @@
-"""The dask engine against the in-memory engine on the same rows (DESIGN: files larger than memory).
+"""The dask engine against the in-memory engine on the same rows (docs/scale.md).
 
 The reference is the in-memory classification of the whole file; identity means statuses cell
 for cell, counts exactly and the one set of item rates to 1e-9. Clusters bind to 127.0.0.1 only,
@@ -279,7 +279,7 @@ def _cells(path: Path) -> dict:
 
 @pytest.mark.parametrize("kind", ["parquet-row-groups", "sav", "csv"])
 def test_report_workbook_equals_the_in_memory_engine(survey, client, tmp_path, kind):
-    """DESIGN §7: formatted workbook cells equal (counts exactly, floats within 1e-9, same number format)."""
+    """docs/scale.md: formatted workbook cells equal (counts exactly, floats within 1e-9, same number format)."""
     import datetime as dt
 
     import pyarrow.parquet as pq

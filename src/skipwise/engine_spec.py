@@ -1,4 +1,4 @@
-"""The one definition of an engine choice: in-memory, dask, or auto (DESIGN §7).
+"""The one definition of an engine choice: in-memory, dask, or auto (docs/scale.md).
 
 Both the command line (``--engine``, ``--scheduler``, ``--partition-rows``) and
 the run plan (``engine: {kind: dask, scheduler: ..., partition_rows: ...}``)

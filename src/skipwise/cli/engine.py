@@ -1,4 +1,4 @@
-"""The engine options shared by the commands that can run on a cluster (DESIGN: files larger than memory)."""
+"""The engine options shared by the commands that can run on a cluster (docs/scale.md)."""
 
 from __future__ import annotations
 

@@ -141,7 +141,7 @@ def classify_on_cluster(source: str | Path, q, out: Path, *, client, overwrite: 
 
     ``out`` is a folder (one part per partition, ``part_format`` ``parquet`` or ``csv``)
     or one ``.parquet`` or ``.csv`` file, which the client writes from the parts
-    one part at a time (its fault listing is ``OUT.faults.csv``, DESIGN §8).
+    one part at a time (its fault listing is ``OUT.faults.csv``, as the in-memory engine names it).
     ``parts`` (default: :func:`~skipwise.scale.sources.parquet_parts` of ``source``) fixes the
     partitions; ``meta`` and ``dtypes`` are the whole file's metadata and column types when the
     parts were converted (:mod:`skipwise.scale.convert`), sent to the workers once; ``progress``

@@ -4,7 +4,7 @@ The workers write their parts into a scratch folder beside OUT (as for a
 folder OUT); the client then appends them in partition order to OUT's temporary
 file — a Parquet file through :class:`pyarrow.parquet.ParquetWriter` (each part's
 row groups become row groups of OUT), a CSV by copying the text after each
-part's header — and the fault listing to ``OUT.faults.csv`` (DESIGN §8).  Both
+part's header — and the fault listing to ``OUT.faults.csv`` (as the in-memory engine names it).  Both
 appear together or not at all (:func:`skipwise.publish.publish_files`).  The
 client holds one part at a time, never the file.
 """
