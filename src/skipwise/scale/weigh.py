@@ -36,6 +36,7 @@ from skipwise.weighting.pipeline import STAGES, ChainResult, Structure
 from skipwise.weighting.plan import WeightingPlan
 from skipwise.weighting.replicates import ReplicateDesign
 from skipwise.weighting.trim import check_cap, merge_starts, spread_factor, trim_cap, trim_loop
+from skipwise.weighting.weigh import WeighFigures
 
 __all__ = ["DaskWeighResult", "GATHER_BUDGET_ENV", "gather_budget", "ClusterChain", "prepare_on_cluster", "Dist",
            "Encoded"]
@@ -61,19 +62,10 @@ def refuse_gather(what: str, need: int, budget: int) -> SkipwiseError:
 
 
 @dataclass(frozen=True, kw_only=True)
-class DaskWeighResult:
+class DaskWeighResult(WeighFigures):
     """What the client keeps of a weighting run on a cluster: figures and tables, never the data."""
 
-    plan: WeightingPlan
-    chain: ChainResult
-    counts: dict[str, float]
-    counts_weighted: dict[str, float]
-    rates: dict[str, object]
-    rates_weighted: dict[str, object]
-    stage_summary: pd.DataFrame
-    design: ReplicateDesign | None
     totals: dict[str, float]
-    weight_columns: tuple[str, ...]
     estimates: pd.DataFrame = field(default_factory=pd.DataFrame)
     replicates: None = None
 

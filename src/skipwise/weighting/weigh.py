@@ -19,7 +19,7 @@ from skipwise.weighting.replicates import (
     ReplicateDesign, bootstrap_design, jackknife_design, replicate_standard_errors, run_replicates,
 )
 
-__all__ = ["WeighResult", "weigh", "CAUTIONS", "planned_weight_columns"]
+__all__ = ["WeighFigures", "WeighResult", "weigh", "CAUTIONS", "planned_weight_columns"]
 
 #: Shown in reports, the workbook and the command's help.
 CAUTIONS: tuple[str, ...] = (
@@ -33,11 +33,10 @@ CAUTIONS: tuple[str, ...] = (
 
 
 @dataclass(frozen=True, kw_only=True)
-class WeighResult:
-    """Everything ``skipwise weigh`` reports and writes."""
+class WeighFigures:
+    """What both engines' weighting runs report: the plan, the chain, outcome counts and rates."""
 
     plan: WeightingPlan
-    prepared: Prepared
     chain: ChainResult
     counts: dict[str, float]
     counts_weighted: dict[str, float]
@@ -45,10 +44,17 @@ class WeighResult:
     rates_weighted: dict[str, object]
     stage_summary: pd.DataFrame
     design: ReplicateDesign | None
+    weight_columns: tuple[str, ...]
+
+
+@dataclass(frozen=True, kw_only=True)
+class WeighResult(WeighFigures):
+    """Everything ``skipwise weigh`` reports and writes."""
+
+    prepared: Prepared
     replicates: np.ndarray | None
     estimates: pd.DataFrame
     data: pd.DataFrame
-    weight_columns: tuple[str, ...]
 
     @property
     def final(self) -> np.ndarray:
