@@ -164,3 +164,14 @@ def test_rr1_is_a_percent_from_the_standard_formula(books):
     over = wb["Overview"]
     total = next(r for r in over.iter_rows() if r[0].value == "Sum of base weights")[1]
     assert total.number_format.startswith("#,##0")
+
+
+def test_overview_labels_not_cut_off_by_their_values(books):
+    # A label in column A with its value in column B is cut off on screen and on paper when it is
+    # longer than column A (common practice of spreadsheet layout, no source).
+    ws = books["weighting"]["Overview"]
+    width = ws.column_dimensions["A"].width
+    labels = [r[0].value for r in ws.iter_rows(min_row=4) if isinstance(r[0].value, str)
+              and len(r) > 1 and r[1].value is not None]
+    assert any(label.startswith("e (") for label in labels)
+    assert all(len(label) <= width for label in labels), (width, max(labels, key=len))
