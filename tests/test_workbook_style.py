@@ -175,3 +175,13 @@ def test_overview_labels_not_cut_off_by_their_values(books):
               and len(r) > 1 and r[1].value is not None]
     assert any(label.startswith("e (") for label in labels)
     assert all(len(label) <= width for label in labels), (width, max(labels, key=len))
+
+
+def test_label_of_a_wrapped_text_sits_level_with_its_first_line(books):
+    # A label beside a wrapped, several-line text belongs at the top of the row, not below the text
+    # (common practice of spreadsheet layout, no source).
+    ws = books["item_report"]["Overview"]
+    notes = [r[0] for r in ws.iter_rows() if r[0].value == "Note"]
+    assert notes
+    assert all(c.alignment.vertical == "top" for c in notes)
+    assert all(r[1].alignment.wrap_text for r in ws.iter_rows() if r[0].value == "Note")

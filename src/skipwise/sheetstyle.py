@@ -68,6 +68,7 @@ _STYLES: dict[str, dict[str, Any]] = {
     "rotated": {"font": _font(bold=True, color="FFFFFF"), "fill": PatternFill("solid", fgColor=_COLOURS["slate"]),
                 "alignment": Alignment(text_rotation=90, horizontal="center", vertical="bottom")},
     "label": {"font": _font(bold=True)},
+    "label_top": {"font": _font(bold=True), "alignment": Alignment(vertical="top")},  # beside a wrapped text
     "text": {"font": _font()},
     "wrap": {"font": _font(), "alignment": Alignment(wrap_text=True, vertical="top")},
     "num": {"font": _font(), "alignment": Alignment(vertical="top")},
@@ -258,7 +259,7 @@ class SheetWriter:
     def labelled(self, label: str, text: str) -> None:
         """A label in column A and a long text beside it, wrapped in column B."""
         self._wrapped.append((self.next_row, 2, len(text)))
-        self._add([(label, None, "label"), (text, None, "wrap")])
+        self._add([(label, None, "label_top"), (text, None, "wrap")])
 
     def width(self, col: int, chars: float) -> None:
         """Fix the width of column ``col`` (1-based), overriding the measured one."""
