@@ -83,6 +83,17 @@ def test_demo_never_modifies_its_inputs(demo, tmp_path):
     assert hashlib.sha256(sav.read_bytes()).hexdigest() == before
 
 
+def test_the_runs_fault_listing_is_the_classify_commands_byte_for_byte(demo, tmp_path):
+    # One output, one writer: the package's fault listing has the bytes `skipwise classify` writes.
+    out, _, _ = demo
+    result = CliRunner().invoke(app, ["classify", str(out / "data/marrowby-2026.sav"), "-q",
+                                      "questionnaires/marrowby-2026.yaml", "-o", str(tmp_path / "x.parquet")])
+    assert result.exit_code == 0, result.output
+    mine = (tmp_path / "x.parquet.faults.csv").read_bytes()
+    assert mine.count(b"\n") > 100  # the demo has routing faults to compare
+    assert (out / "package/marrowby-2026_faults.csv").read_bytes() == mine
+
+
 def test_demo_codebook_xml_is_valid_ddi_and_its_frequencies_match_the_delivered_file(demo):
     # Outside references: the published DDI-Codebook 2.5 schema (validated with lxml) and the
     # delivered .sav read back with pyreadstat, counted with pandas.

@@ -187,15 +187,15 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
 
     with classify_progress(reporter, len(st.q.items), st.data.shape[0] * len(st.q.items)) as progress:
         st.cl = classify(st.data, st.q, progress=progress)
-    from skipwise.classify.export import fault_listing
+    from skipwise.classify.export import write_fault_listing
 
-    with _atomic(st.targets["faults"]) as tmp:
-        fault_listing(st.cl).to_csv(tmp, index=False)
+    with _atomic(st.targets["faults"]) as tmp:  # the same writer (and bytes) as `skipwise classify`
+        n_faults = write_fault_listing(st.cl, tmp)
     shares = st.cl.counts().sum(axis=0)
     total = max(int(shares.sum()), 1)
     reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
                   + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
-    reporter.info(f"{len(st.cl.faults):,} routing faults (the fault list names case ids)")
+    reporter.info(f"{n_faults:,} routing faults (the fault list names case ids)")
     from skipwise.classify.hints import invalid_hint
 
     hint = invalid_hint(st.cl, data=str(st.plan.data), questionnaire=str(st.plan.questionnaire))
