@@ -137,3 +137,19 @@ def test_estimates_use_answered_cells_only_with_a_questionnaire(tmp_path):
     book = load_workbook(tmp_path / "w_weights.xlsx", read_only=True)
     means = table(book, "Estimates", "Variable").set_index("Variable")
     assert_allclose(means.loc["score", "Estimate"], np.average(x[ok], weights=w[ok]), rtol=1e-9)
+
+
+def test_weigh_engine_auto_says_when_it_stays_in_memory(files, monkeypatch):
+    # DESIGN §7: --engine auto never changes the form of the output; weigh's dask output is a folder of
+    # parts, so a file OUT stays in memory, and over the budget the console says so.
+    tmp, data, plan = files
+    monkeypatch.setenv("SKIPWISE_MEMORY_BUDGET", "1KB")
+    out = tmp / "auto.sav"
+    result = runner.invoke(app, ["weigh", str(data), "--plan", str(plan), "-o", str(out), "--engine", "auto"])
+    assert result.exit_code == 0, result.output
+    assert "--engine auto" in result.output and "using the in-memory engine" in result.output
+    assert out.is_file()
+    monkeypatch.setenv("SKIPWISE_MEMORY_BUDGET", "100GB")
+    result = runner.invoke(app, ["weigh", str(data), "--plan", str(plan), "-o", str(tmp / "auto2.sav"),
+                                 "--engine", "auto"])
+    assert result.exit_code == 0 and "--engine auto" not in result.output, result.output

@@ -26,7 +26,9 @@ HELP = (
     "in-memory output), and every step is a pass of partial sums over the partitions (docs/scale.md)."
 )
 ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': weigh the partitions on a Dask "
-               "cluster; DATA may be a Parquet file, folder or glob and OUT names a folder of Parquet parts.")
+               "cluster; DATA may be a Parquet file, folder or glob and OUT names a folder of Parquet parts. 'auto': "
+               "the dask engine for a folder or glob of parts, else in memory (saying so when the data is over "
+               "the memory budget: a folder OUT needs an explicit --engine dask).")
 
 
 @app.command("weigh", help=HELP)
@@ -45,6 +47,12 @@ def weigh_command(
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
+    if engine is Engine.AUTO:
+        from skipwise.cli.engine import choose_engine
+
+        # the dask engine writes a folder of parts, which needs an explicit --engine dask: auto never
+        # changes the form of the output, so it says when the data is over the budget and stays in memory
+        engine = choose_engine(engine, data, output_allows=False, echo=typer.echo)
     if engine is Engine.DASK:
         try:
             _weigh_with_dask(data, plan, out, questionnaire=questionnaire, workbook=workbook, overwrite=overwrite,
