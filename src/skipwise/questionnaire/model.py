@@ -10,6 +10,7 @@ items in interview order.
 
 from __future__ import annotations
 
+import functools
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Mapping
@@ -168,11 +169,11 @@ class Questionnaire:
     def __contains__(self, name: object) -> bool:
         return name in self._by_name  # type: ignore[attr-defined]
 
-    @property
+    @functools.cached_property  # items never change (frozen): built once, not per call in loops
     def item_names(self) -> tuple[str, ...]:
         return tuple(it.name for it in self.items)
 
-    @property
+    @functools.cached_property
     def columns(self) -> tuple[str, ...]:
         """Every data column the questionnaire classifies, in interview order."""
         return tuple(c for it in self.items for c in it.columns)
