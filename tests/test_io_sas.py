@@ -14,9 +14,11 @@ No ``.sas7bdat`` (nor ``.sas7bcat``) sample file ships in any installed package 
 cannot write one.  ``tests/data/wave1.sas7bdat`` (16 KB, invented values) was made once with the
 ReadStat 1.1.8 command-line tool (Debian package ``readstat``: ``readstat wave1.sav
 wave1.sas7bdat``) from a ``.sav`` pyreadstat wrote; it is read here by skipwise and checked against
-pyreadstat's ``read_sas7bdat`` and pandas' ``read_sas`` (an independent SAS7BDAT reader).  ReadStat
-writes no format catalog, so a ``.sas7bcat`` is tested only where no genuine one is needed: its
-discovery beside the data and the errors for a damaged file and a missing catalog.
+pyreadstat's ``read_sas7bdat`` and pandas' ``read_sas`` (an independent SAS7BDAT reader).
+``tests/data/staff.sas7bdat`` with its format catalog ``staff.sas7bcat`` (invented values) was made
+once by ReadStat 1.1.8's C library (Debian package ``libreadstat-dev``; ``tests/data/staff_sas.c``,
+whose data file names the catalog's format ``YESNO`` on one variable); the labels skipwise reads are
+checked against pyreadstat's own ``read_sas7bcat`` and the values against pandas' ``read_sas``.
 """
 
 from __future__ import annotations
@@ -226,3 +228,21 @@ def test_sas_output_is_refused_by_the_writer(tmp_path):
         write_survey(pd.DataFrame({"a": [1]}), tmp_path / "a.xpt")
     assert "cannot carry value labels or missing-value definitions" in err.value.render()
     assert not (tmp_path / "a.xpt").exists()
+
+
+def test_a_genuine_format_catalog_gives_the_value_labels_by_format_name():
+    # Files written by ReadStat's C library (module docstring); references: pyreadstat's read_sas7bcat
+    # for the catalog and pandas' read_sas (its own SAS7BDAT reader) for the values.
+    data = Path(__file__).parent / "data" / "staff.sas7bdat"
+    assert catalog_for(data) == data.with_suffix(".sas7bcat")
+    _, cat = pyreadstat.read_sas7bcat(str(data.with_suffix(".sas7bcat")))
+    reference = {int(k): v for k, v in next(iter(cat.value_labels.values())).items()}
+    df = read_survey(data)
+    meta = get_meta(df)
+    assert meta.value_labels == {"mentor": reference} == {"mentor": {1: "Yes", 2: "No"}}
+    assert meta.column_labels["mentor"] == "Has a mentor at school"
+    assert meta.missing_values["mentor"] == [".R"]  # SAS special missing .R kept as its letter
+    plain = pd.read_sas(data)
+    answered = df["mentor"] != ".R"
+    np.testing.assert_array_equal(df.loc[answered, "mentor"].astype(float), plain.loc[answered, "mentor"])
+    assert plain["mentor"].isna().sum() == 1 and not answered.loc[plain["mentor"].isna()].any()

@@ -49,6 +49,11 @@ def _sas_label_key(k: object, numeric: bool) -> object:
     return normalize_value(k)
 
 
+def _format_name(fmt: object) -> str:
+    """A SAS format's name without width and decimals: "$SEXF." / "AGEGRP3." / "YESNO" -> "$SEXF" / "AGEGRP" / "YESNO"."""
+    return re.sub(r"\d*\.\d*$", "", str(fmt)).upper()
+
+
 def _catalog_labels(path: Path, catalog: Path, m, columns: list[str], encoding: str | None
                     ) -> dict[str, dict[object, str]]:
     """Value labels of ``columns`` from a SAS format catalog, by each variable's format name."""
@@ -60,12 +65,12 @@ def _catalog_labels(path: Path, catalog: Path, m, columns: list[str], encoding: 
         raise _unreadable(catalog, f"not a readable SAS format catalog ({exc})",
                           f"check the catalog belongs to {path.name}, or move it away to read the data "
                           "without value labels") from None
-    sets = {str(k).upper(): v for k, v in (cat.value_labels or {}).items()}
+    # one spelling for both sides: the catalog may name a set "YESNO." (ReadStat's reader keeps the dot)
+    sets = {_format_name(k): v for k, v in (cat.value_labels or {}).items()}
     types = dict(m.readstat_variable_types)
     out: dict[str, dict[object, str]] = {}
     for col in columns:
-        fmt = str(m.original_variable_types.get(col) or "")
-        name = re.sub(r"\d*\.\d*$", "", fmt).upper()  # "$SEXF." / "AGEGRP3." -> "$SEXF" / "AGEGRP"
+        name = _format_name(m.original_variable_types.get(col) or "")
         labels = sets.get(name) or sets.get(name.lstrip("$"))
         if labels:
             numeric = types.get(col) != "string"
