@@ -166,15 +166,23 @@ def test_rr1_is_a_percent_from_the_standard_formula(books):
     assert total.number_format.startswith("#,##0")
 
 
-def test_overview_labels_not_cut_off_by_their_values(books):
+@pytest.mark.parametrize("name", BOOKS)
+def test_labels_not_cut_off_by_their_values(books, name):
     # A label in column A with its value in column B is cut off on screen and on paper when it is
-    # longer than column A (common practice of spreadsheet layout, no source).
-    ws = books["weighting"]["Overview"]
-    width = ws.column_dimensions["A"].width
-    labels = [r[0].value for r in ws.iter_rows(min_row=4) if isinstance(r[0].value, str)
-              and len(r) > 1 and r[1].value is not None]
-    assert any(label.startswith("e (") for label in labels)
-    assert all(len(label) <= width for label in labels), (width, max(labels, key=len))
+    # longer than column A (common practice of spreadsheet layout, no source). Label cells: bold,
+    # unfilled, not wrapped (headers are filled, wrapped terms may run over several lines).
+    seen = []
+    for ws in books[name].worksheets:
+        width = ws.column_dimensions["A"].width
+        for r in ws.iter_rows(min_row=4, max_col=2):
+            a = r[0]
+            if (isinstance(a.value, str) and len(r) > 1 and r[1].value is not None and a.font.b
+                    and a.fill.fill_type is None and not a.alignment.wrap_text):
+                seen.append(a.value)
+                assert len(a.value) <= width, (ws.title, a.value, width)
+    assert seen
+    if name == "weighting":
+        assert "e (eligible share of unknown-eligibility cases)" in seen
 
 
 def test_label_of_a_wrapped_text_sits_level_with_its_first_line(books):

@@ -205,6 +205,7 @@ class SheetWriter:
         self._heights: dict[int, float] = {}
         self._need: dict[int, float] = {}
         self._fixed: dict[int, float] = {}
+        self._floor: dict[int, float] = {}  # a column is never narrower than the labels of pairs() in it
         self._main: TableRef | None = None
         self._freeze_col = 1
         self._charts: list[tuple[Any, str]] = []
@@ -272,6 +273,7 @@ class SheetWriter:
         for label, value, fmt in rows:
             self._add([(label, None, "label"), (value, fmt, "left")])
             self._measure(1, label)
+            self._floor[1] = max(self._floor.get(1, 0), len(str(label)) + 2)
             self._measure(2, value, fmt, cap=60)
 
     def table(self, df: pd.DataFrame, *, formats: dict[str, str] | None = None, headers: dict[str, str] | None = None,
@@ -394,6 +396,10 @@ class SheetWriter:
             setattr(cell, attr, val)
         return cell
 
+    def _width(self, j: int) -> float:
+        """Column ``j``'s width: the fixed one, else the measured one, never below its labels."""
+        return max(self._fixed.get(j, self._need.get(j, 10)), self._floor.get(j, 0))
+
     def close(self, *, print_rows: int | None = None, landscape: bool = True) -> None:
         """Set widths, heights, panes, filter and print setup, then write the rows.
 
@@ -402,16 +408,14 @@ class SheetWriter:
         ws = self.ws
         ncols = max((r.width if isinstance(r, _Stream) else len(r) for r in self._rows), default=1)
         for j in range(1, ncols + 1):
-            w = self._fixed.get(j, self._need.get(j, 10))
-            ws.column_dimensions[get_column_letter(j)].width = float(max(w, 4))
+            ws.column_dimensions[get_column_letter(j)].width = float(max(self._width(j), 4))
         for r, heads, rotated_len in self._headers:
-            k = max([math.ceil(len(h) / max(self._fixed.get(j, self._need.get(j, 10)) - 1.5, 1)) for j, h in heads]
+            k = max([math.ceil(len(h) / max(self._width(j) - 1.5, 1)) for j, h in heads]
                     or [1])
             self._heights[r] = max(13.0 * min(k, 5) + 4, 6.2 * rotated_len + 12 if rotated_len else 0)
         lines: dict[int, int] = {}
         for r, j, n in self._wrapped:
-            w = self._fixed.get(j, self._need.get(j, 10))
-            lines[r] = max(lines.get(r, 1), math.ceil(n / max(w - 1, 1)))
+            lines[r] = max(lines.get(r, 1), math.ceil(n / max(self._width(j) - 1, 1)))
         for r, k in lines.items():
             if k > 1:
                 self._heights.setdefault(r, 11.0 * k + 2)

@@ -4,7 +4,7 @@
 #include <stdio.h>
 static ssize_t w(const void *b, size_t n, void *ctx) { return fwrite(b, 1, n, (FILE *)ctx); }
 int main(void) {
-    /* catalog: two invented label sets */
+    /* catalog: one invented label set */
     FILE *fc = fopen("staff.sas7bcat", "wb");
     readstat_writer_t *c = readstat_writer_init();
     readstat_set_data_writer(c, w);
@@ -14,7 +14,7 @@ int main(void) {
     if (readstat_begin_writing_sas7bcat(c, fc) != READSTAT_OK) return 1;
     if (readstat_end_writing(c) != READSTAT_OK) return 2;
     readstat_writer_free(c); fclose(fc);
-    /* data file whose variables name those formats */
+    /* data file: mentor names the catalog's format YESNO; R is a SAS special missing value */
     FILE *fd = fopen("staff.sas7bdat", "wb");
     readstat_writer_t *d = readstat_writer_init();
     readstat_set_data_writer(d, w);

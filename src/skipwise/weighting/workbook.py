@@ -91,7 +91,7 @@ def _overview(wb, res: WeighResult) -> None:
     words = {"e": "e (eligible share of unknown-eligibility cases)", "e method": "How e was found"}
     rows = [(words.get(k, k[:1].upper() + k[1:]), v, _fmt_of(k, v)) for k, v in summary_rows(res)]
     s.pairs(rows)
-    s.width(1, max(36, max(len(label) for label, _, _ in rows) + 2))  # no label cut off by its value
+    s.width(1, 36)
     s.width(2, 16)
     if res.chain.notes:
         s.blank()
