@@ -129,16 +129,19 @@ def with_status_columns(data: pd.DataFrame, cl: Classification, meta: SurveyMeta
     numbers = status_numbers(cl)
     lookup = np.array([numbers[c] for c in cl.categories], dtype=dtype)
     labels = status_value_labels(numbers, cl.questionnaire)
-    new = {}
     chosen = [(j, name) for j, name in enumerate(cl.items) if items is None or name in items]
     check_generated(status_columns([name for _, name in chosen]), data.columns)
-    for j, name in chosen:
+    # One column-major block filled column by column, handed to pandas without a copy: the status
+    # columns exist once in memory (a dict of columns would be copied into a block by pandas).
+    block = np.empty((len(chosen), len(data)), dtype=dtype).T
+    for k, (j, name) in enumerate(chosen):
+        np.take(lookup, cl.codes[:, j], out=block[:, k])
         col = name + STATUS_SUFFIX
-        new[col] = lookup[cl.codes[:, j]]
         meta.column_labels[col] = f"skipwise status of {name}"
         meta.value_labels[col] = dict(labels)
         meta.measure[col] = "nominal"
-    out = pd.concat([data, pd.DataFrame(new, index=data.index)], axis=1)
+    new = pd.DataFrame(block, index=data.index, columns=[name + STATUS_SUFFIX for _, name in chosen], copy=False)
+    out = pd.concat([data, new], axis=1)
     out.attrs = {}
     return out, meta
 
