@@ -89,11 +89,13 @@ def test_fault_listing_in_parts_equals_the_whole_listing(tmp_path):
                             for k in "abc"},
                          "d": pd.Series(rng.choice(["yes", 'said "no", then', None, "x\ny"], n), dtype=object)})
     cl = classify(data, q)
-    parts = list(fault_listing_parts(cl, rows=40))
-    assert len(parts) > 2  # the listing really was cut
-    assert fault_count(cl) == sum(len(p) for p in parts)
-    write_fault_listing(cl, tmp_path / "parts.csv", rows=40)
+    for rows, cut in ((1, 4), (40, 3), (10**6, 1)):  # one item a part, a few items, one part
+        parts = list(fault_listing_parts(cl, rows=rows))
+        assert len(parts) >= cut if cut > 1 else len(parts) == 1  # the listing really was cut
+        assert fault_count(cl) == sum(len(p) for p in parts)
+        write_fault_listing(cl, tmp_path / f"parts{rows}.csv", rows=rows)
     whole = fault_listing(cl)  # builds the listing in one go
     assert len(whole) == fault_count(cl) and "resp" in whole.columns
     whole.to_csv(tmp_path / "whole.csv", index=False)
-    assert (tmp_path / "parts.csv").read_bytes() == (tmp_path / "whole.csv").read_bytes()
+    for rows in (1, 40, 10**6):
+        assert (tmp_path / f"parts{rows}.csv").read_bytes() == (tmp_path / "whole.csv").read_bytes()

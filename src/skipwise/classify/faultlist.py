@@ -165,19 +165,22 @@ def _nulls_are_nan() -> bool:
 
 
 def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ...], fault_codes: list[int],
-                  case_ids: np.ndarray, data: pd.DataFrame) -> pd.DataFrame:
+                  case_ids: np.ndarray, data: pd.DataFrame, which: np.ndarray | None = None) -> pd.DataFrame:
     """One row per fault cell, items in interview order and cases in file order within an item.
 
-    Reads only the item's own columns and the columns its rule reads, at the faulty rows.
+    Reads only the item's own columns and the columns its rule reads, at the faulty rows;
+    ``which`` (item positions, ascending) lists only those items' faults: the listing of a run of
+    items, a part of the whole one.
     """
     items = q.items
-    found = [(j, np.flatnonzero(isin_small(codes[:, j], fault_codes))) for j in range(len(items))]
+    positions = range(len(items)) if which is None else which
+    found = [(j, np.flatnonzero(isin_small(codes[:, j], fault_codes))) for j in positions]
     found = [(j, rows) for j, rows in found if rows.size]
     if not found:
         return pd.DataFrame({c: pd.Series(dtype=object) for c in FAULT_COLUMNS})
     total = sum(rows.size for _, rows in found)
     rows_all = np.concatenate([rows for _, rows in found])
-    which = np.repeat(np.arange(len(found), dtype=np.int32), [rows.size for _, rows in found])
+    owner = np.repeat(np.arange(len(found), dtype=np.int32), [rows.size for _, rows in found])
     status = np.empty(total, dtype=np.int32)
     values, inputs = _Texts(total), _Texts(total)
     names, rules = [], []
@@ -192,10 +195,10 @@ def fault_listing(q: Questionnaire, codes: np.ndarray, categories: tuple[str, ..
         at += rows.size
     rule_texts = np.asarray(rules, dtype=object)
     # (an item without a rule has no rule text: missing, as the listing always showed it)
-    rule = text_column(which, rule_texts) if _nulls_are_nan() else rule_texts[which]
+    rule = text_column(owner, rule_texts) if _nulls_are_nan() else rule_texts[owner]
     return pd.DataFrame({
         "case_id": case_ids[rows_all],
-        "item": text_column(which, np.asarray(names, dtype=object)),
+        "item": text_column(owner, np.asarray(names, dtype=object)),
         "status": text_column(status, np.asarray(categories, dtype=object)),
         "value": values.column(),
         "rule": rule,

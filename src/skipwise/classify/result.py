@@ -166,8 +166,12 @@ class Classification:
 
         Built on first use, column by column (:mod:`skipwise.classify.faultlist`).
         """
+        return self.fault_listing_of()
+
+    def fault_listing_of(self, which: np.ndarray | None = None) -> pd.DataFrame:
+        """:attr:`faults` of the items at positions ``which`` only (ascending; all when None)."""
         return fault_listing(self.questionnaire, self.codes, self.categories,
-                             [self.code(s) for s in S.FAULT_STATUSES], self.case_ids, self.data)
+                             [self.code(s) for s in S.FAULT_STATUSES], self.case_ids, self.data, which)
 
     # -- analysis views -----------------------------------------------------------------------
     def analysis_values(self, data: pd.DataFrame | None = None) -> pd.DataFrame:
