@@ -152,3 +152,32 @@ def test_listing_equals_reference_with_and_without_rules():
         cl = classify(frame, Q)
         assert len(cl.faults) == (1 if frame is only_a else 2)
         pd.testing.assert_frame_equal(cl.faults, reference_faults(cl))
+
+
+def test_number_codes_give_each_value_its_own_text():
+    # The coded texts (distinct numbers written once, taken back by codes) equal the text of every
+    # value written one by one (the previous implementation's _cell_text), whatever the numbers:
+    # whole and few apart (the offset table), a non-whole least value, NaN only, far apart, infinite.
+    from skipwise.classify.faultlist import _number_codes, _number_text
+
+    cases = [[3, 1, np.nan, 2, 3], [0.5, 1.5, 2.5], [np.nan, np.nan], [-7, -9, 4090 - 9],
+             [0, 5000, 1], [1.25, 2, np.nan], [np.inf, 1, -np.inf], [2**53, 2**53 - 1], [-0.0, 0.0, 1]]
+    for values in cases:
+        x = np.array(values, dtype=np.float64)
+        codes, uniques = _number_codes(x)
+        got = _number_text(np.asarray(uniques, dtype=np.float64))[codes]
+        want = _cell_text(pd.Series(x)).to_numpy(dtype=object)
+        assert list(got) == list(want), values
+
+
+def test_dense_codes_index_the_values_they_return():
+    # Both ways (the table of present values, and pandas' factorize for a wide span) give codes
+    # that take the values back exactly, with each distinct value once.
+    from skipwise.classify.faultlist import _dense_codes
+
+    rng = np.random.default_rng(4)
+    for span in (7, 10**9):
+        values = rng.integers(0, span, 500)
+        codes, distinct = _dense_codes(values, span)
+        assert np.array_equal(np.asarray(distinct)[codes], values)
+        assert len(distinct) == len(np.unique(values))

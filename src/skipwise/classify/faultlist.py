@@ -46,16 +46,18 @@ def cell_text(series: pd.Series) -> pd.Series:
 def _number_codes(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Codes and distinct numbers of ``x``: offsets from the least whole number where the numbers
     are whole and few apart (no hashing), else a factorization; NaN is a value of its own."""
-    nan = np.isnan(x)
-    finite = x[~nan] if nan.any() else x
-    if finite.size:
-        lo, hi = finite.min(), finite.max()
-        if np.isfinite(lo) and np.isfinite(hi) and hi - lo < 4096 and bool((np.floor(finite) == finite).all()):
+    if x.size:
+        lo, hi = np.fmin.reduce(x), np.fmax.reduce(x)  # NaN ignored (all NaN: NaN)
+        if np.isfinite(lo) and np.isfinite(hi) and hi - lo < 4096 and lo == np.floor(lo):
             span = int(hi - lo) + 1
-            codes = np.subtract(x, lo, out=np.empty_like(x))
-            codes[nan] = span
-            # every whole number lo..hi gets a text, used or not: at most 4,097 short texts
-            return codes.astype(np.int64), np.append(np.arange(span, dtype=np.float64) + lo, np.nan)
+            shifted = np.subtract(x, lo)
+            nan = np.isnan(shifted)
+            if nan.any():
+                shifted[nan] = span
+            codes = shifted.astype(np.int32)
+            if np.array_equal(codes, shifted):  # whole numbers only
+                # every whole number lo..hi gets a text, used or not: at most 4,097 short texts
+                return codes, np.append(np.arange(span, dtype=np.float64) + lo, np.nan)
     codes, uniques = pd.factorize(x, use_na_sentinel=False)
     return codes, uniques
 
@@ -70,6 +72,18 @@ def _coded_text(series: pd.Series, rows: np.ndarray) -> tuple[np.ndarray, np.nda
     text = cell_text(series.iloc[rows]).to_numpy(dtype=object)
     codes, uniques = pd.factorize(text, use_na_sentinel=False)
     return codes, np.asarray(uniques, dtype=object)
+
+
+def _dense_codes(values: np.ndarray, span: int) -> tuple[np.ndarray, np.ndarray]:
+    """Codes and distinct values of ``values`` (whole numbers in ``0..span-1``): a table of the values
+    present where ``span`` is small beside the number of values (no hashing), else a factorization."""
+    if span > 4 * values.size + 4096:
+        return pd.factorize(values)
+    present = np.zeros(span, dtype=np.intp)
+    present[values] = 1
+    combos = np.flatnonzero(present)
+    present[combos] = np.arange(combos.size)
+    return present[values], combos
 
 
 def _joined(data: pd.DataFrame, columns: list[str], rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -96,7 +110,7 @@ def _joined(data: pd.DataFrame, columns: list[str], rows: np.ndarray) -> tuple[n
     for (c, _), size in zip(parts[1:], sizes[1:]):
         combined *= size
         combined += c
-    codes, combos = pd.factorize(combined)
+    codes, combos = _dense_codes(combined, int(np.prod(np.array(sizes, dtype=np.int64))))
     texts = None
     for k in range(len(parts) - 1, -1, -1):  # the last column is the lowest digit
         digit = combos % sizes[k]
