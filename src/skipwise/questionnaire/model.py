@@ -178,8 +178,9 @@ class Questionnaire:
         """Every data column the questionnaire classifies, in interview order."""
         return tuple(c for it in self.items for c in it.columns)
 
-    @property
-    def column_owner(self) -> dict[str, str]:
+    @functools.cached_property  # looked up per column in loops: built once (a dict, so it pickles
+    def column_owner(self) -> dict[str, str]:  # with the questionnaire sent to dask workers): read it only
+        """The item that owns each data column (a set's option columns: the set)."""
         return {c: it.name for it in self.items for c in it.columns}
 
     @property
