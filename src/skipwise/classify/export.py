@@ -162,7 +162,7 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
     mapping = status_letters(cl) if stata else status_codes(cl)
     lookup = _by_code(cl, mapping, None)
     labels = status_value_labels(mapping, cl.questionnaire)
-    out = data.copy()
+    out = data.copy(deep=False)  # the columns replaced below are new arrays; the others are shared (copy on write)
     text_items = []
     answered = cl.code(S.ANSWERED)
     for j, name in enumerate(cl.items):
@@ -174,9 +174,13 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
         replace = codes != answered
         for col in item.columns:
             _check_no_collision(data[col], mapping, col, stata)
-            values = out[col].to_numpy(dtype=object, na_value=np.nan).copy()
-            if stata and values.dtype == object:  # numbers stored as text (a CSV column holding "Refused")
-                values[~replace] = column_views(data[col])[0][~replace]
+            stored = data[col]
+            if stata and stored.dtype == np.float64:  # the answers as Python floats, boxed once
+                values = np.asarray(stored.to_numpy(), dtype=object)
+            else:
+                values = stored.to_numpy(dtype=object, na_value=np.nan).copy()
+                if stata:  # answers as numbers (ints, numbers stored as text: a CSV column holding "Refused")
+                    values[~replace] = column_views(stored)[0][~replace]
             values[replace] = lookup[codes[replace]]
             # dtype=object: a column of letters only must not be inferred as text
             out[col] = pd.Series(values, index=out.index, dtype=object) if stata else \

@@ -19,12 +19,64 @@ import re
 import struct
 from pathlib import Path
 
-__all__ = ["name_label_sets"]
+__all__ = ["name_label_sets", "replace_value_labels"]
 
 _RELEASE = re.compile(rb"<release>(\d{3})</release>")
 _ORDER = re.compile(rb"<byteorder>(MSF|LSF)</byteorder>")
 _MAP_SLOTS = 14
 _LABEL_NAMES_SLOT, _VARIABLE_LABELS_SLOT, _VALUE_LABELS_SLOT, _END_SLOT = 6, 7, 11, 12
+
+
+def _map_of(fh) -> tuple[str, int, tuple[int, ...]] | None:
+    """Byte order, position of the map's offsets and the offsets of an open ``.dta`` of release 117-119."""
+    fh.seek(0)
+    head = fh.read(4096)
+    release, order = _RELEASE.search(head), _ORDER.search(head)
+    if release is None or order is None or int(release.group(1)) not in (117, 118, 119):
+        return None
+    endian = "<" if order.group(1) == b"LSF" else ">"
+    start = head.find(b"<map>")
+    if start < 0:
+        return None
+    offsets = struct.unpack(f"{endian}{_MAP_SLOTS}Q", head[start + 5: start + 5 + 8 * _MAP_SLOTS])
+    return endian, start + 5, offsets
+
+
+def replace_value_labels(path: str | Path, source: str | Path) -> bool:
+    """Put the ``<value_labels>`` element of ``source`` in place of that of ``path`` (both release 117-119).
+
+    The element holds every value-label table and follows the data, so only the end of ``path``
+    is rewritten, and the map's last two offsets (``</stata_dta>`` and the end of the file) move
+    by the difference in length.  Used to write the data of a large file with pyreadstat
+    declaring only the missing letters each column holds, and its label tables (letters included)
+    from a file without rows written with the same labels and every letter declared.  Returns
+    False, changing nothing, for another release.
+    """
+    with open(source, "rb") as fh:
+        found = _map_of(fh)
+        if found is None:
+            return False
+        offsets = found[2]
+        fh.seek(offsets[_VALUE_LABELS_SLOT])
+        tables = fh.read(offsets[_END_SLOT] - offsets[_VALUE_LABELS_SLOT])
+    with open(path, "r+b") as fh:
+        found = _map_of(fh)
+        if found is None:
+            return False
+        endian, at, offsets = found
+        fh.seek(offsets[_END_SLOT])
+        tail = fh.read()
+        fh.seek(offsets[_VALUE_LABELS_SLOT])
+        fh.write(tables)
+        fh.write(tail)
+        fh.truncate()
+        shift = len(tables) - (offsets[_END_SLOT] - offsets[_VALUE_LABELS_SLOT])
+        moved = list(offsets)
+        moved[_END_SLOT] += shift
+        moved[_END_SLOT + 1] += shift
+        fh.seek(at)
+        fh.write(struct.pack(f"{endian}{_MAP_SLOTS}Q", *moved))
+    return True
 
 
 def _field(name: bytes, width: int) -> bytes:

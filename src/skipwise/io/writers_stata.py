@@ -8,7 +8,7 @@ from pathlib import Path
 import pandas as pd
 
 from skipwise.errors import SkipwiseError
-from skipwise.io.dta_labels import name_label_sets
+from skipwise.io.dta_labels import name_label_sets, replace_value_labels
 from skipwise.io.meta import SurveyMeta, normalize_value
 from skipwise.io.writers_common import (
     EXT_LETTER, Job, check_names, note, prepare_columns, problem, split_numbers, stata_letter,
@@ -71,16 +71,62 @@ def prepare_dta(df: pd.DataFrame, meta: SurveyMeta, path: Path, fmt: str) -> Job
         raise SkipwiseError(problems)
 
     frame = _numbers_first(p.frame, [c for c, k in p.kinds.items() if k == "extmiss"])
+    cell_user, cell_labels = _cell_declarations(labels, user, p.letters)
+    column_labels = {c: lab for c, lab in meta.column_labels.items() if lab}
 
     def job(tmp: Path) -> None:
         pyreadstat.write_dta(
-            frame, str(tmp), file_label=meta.file_label or "",
-            column_labels={c: lab for c, lab in meta.column_labels.items() if lab},
-            variable_value_labels=labels or None, missing_user_values=user or None,
+            frame, str(tmp), file_label=meta.file_label or "", column_labels=column_labels,
+            variable_value_labels=cell_labels or None, missing_user_values=cell_user or None,
             variable_format=formats or None,
         )
+        if cell_labels != labels:  # the label tables with every letter, from a file without rows
+            tables = tmp.with_name(tmp.name + ".labels")
+            try:
+                named = [c for c in frame.columns if labels.get(c)]
+                pyreadstat.write_dta(pd.DataFrame({c: pd.Series([], dtype="float64") for c in named}),
+                                     str(tables), variable_value_labels={c: labels[c] for c in named},
+                                     missing_user_values={c: user[c] for c in named if c in user} or None)
+                if not replace_value_labels(tmp, tables):
+                    raise ValueError("the label tables could not be placed in the .dta file")
+            finally:
+                tables.unlink(missing_ok=True)
         name_label_sets(tmp)  # label sets named after their variable, not 'tenure5'
     return job
+
+
+def _cell_declarations(labels: dict[str, dict], user: dict[str, list[str]], held: dict[str, set[str]]
+                       ) -> tuple[dict[str, list[str]], dict[str, dict]]:
+    """The missing letters to declare to pyreadstat for writing the cells, and the labels that go with them.
+
+    A .dta file holds no declaration of missing letters: a cell is an extended missing value by
+    its stored number alone [memory: Stata manual, "missing values"; "dta" file format, section
+    on missing values], so the declaration only tells pyreadstat which cells to write as letters
+    and which label keys are letters.  pyreadstat compares every number of a column with each
+    letter declared on it, so the cells are written declaring only the letters the column holds
+    (``held``), with the labels of those letters and of the numbers; the full label tables (every
+    letter labelled) are then taken from a file without rows written with all of them declared,
+    which gives the same tables.  A column whose labels would be left empty keeps one labelled
+    letter, so the same columns carry a label set (and the sets keep pyreadstat's names).
+    """
+    cell_user: dict[str, list[str]] = {}
+    cell_labels: dict[str, dict] = {}
+    for col, letters in user.items():
+        kept = set(held.get(col, set())) & set(letters)
+        vl = labels.get(col)
+        if vl:
+            shown = {k: lab for k, lab in vl.items() if not isinstance(k, str) or k in kept}
+            if not shown:
+                first = next(k for k in vl if isinstance(k, str))
+                kept.add(first)
+                shown = {first: vl[first]}
+            cell_labels[col] = shown
+        if kept:
+            cell_user[col] = sorted(kept)
+    for col, vl in labels.items():
+        if col not in user:
+            cell_labels[col] = vl
+    return cell_user, cell_labels
 
 
 def _numbers_first(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
