@@ -350,3 +350,25 @@ def test_check_findings_equal_the_in_memory_engine(survey, client, tmp_path):
     assert mem.to_rows() == got.to_rows()
     text = " ".join(r["detail"] for r in got.to_rows())
     assert "2 case id(s) occur more than once (5 rows)" in text and "2 row(s) have a blank case id (rows 11, 1201)" in text
+
+
+def test_check_finds_a_duplicate_id_across_two_files_of_a_folder_as_in_memory(survey, client, tmp_path, monkeypatch):
+    """A Parquet folder whose two files share a case id: `check --engine dask` prints the in-memory engine's
+    finding on the whole file, word for word; the count is pandas' own (Series.duplicated(keep=False))."""
+    root, frame, _ = survey
+    data = frame.copy()
+    data.loc[1500, "case_id"] = data.loc[7, "case_id"]  # row 7 in the first file, row 1500 in the second
+    folder = tmp_path / "waves"
+    folder.mkdir()
+    write_survey(data.iloc[:1000].reset_index(drop=True), folder / "a.parquet")
+    write_survey(data.iloc[1000:].reset_index(drop=True), folder / "b.parquet")
+    write_survey(data, tmp_path / "whole.parquet")
+    monkeypatch.setenv("SKIPWISE_SCHEDULER", client.scheduler.address)
+    runner = CliRunner()
+    mem = runner.invoke(app, ["check", str(tmp_path / "whole.parquet"), "-q", str(DEMO_Q)])
+    dsk = runner.invoke(app, ["check", str(folder), "-q", str(DEMO_Q), "--engine", "dask"])
+    assert mem.exit_code == dsk.exit_code == 1, dsk.output
+    rows = int(data["case_id"].duplicated(keep=False).sum())
+    line = f"1 case id(s) occur more than once ({rows} rows): {data.loc[7, 'case_id']}"
+    assert rows == 2 and line in mem.stdout and line in dsk.stdout
+    assert dsk.stdout.splitlines()[:-2] == mem.stdout.splitlines()[:-2]  # the last lines name the input
