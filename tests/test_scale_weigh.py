@@ -262,3 +262,56 @@ def test_cli_weighs_on_the_cluster_and_refuses_what_it_does_not_do(data, client,
                               "--engine", "dask"])
     assert res.exit_code == 1 and "interview" in res.output and not (tmp_path / "e").exists()
     assert "--engine memory" in res.output
+
+
+@pytest.mark.parametrize("ext", [".sav", ".csv"])
+def test_a_chunked_sav_or_csv_weighs_as_in_memory(data, client, tmp_path, ext):
+    """A .sav written by pyreadstat (or a CSV by pandas), converted in chunks of 250 rows: the in-memory
+    engine's weights to 1e-9, its outcomes and its data cells in the whole file's column types (pandas' own
+    comparison; in the CSV the first chunks read 'age' as whole numbers, the last as decimals)."""
+    import pyreadstat
+
+    from skipwise.io import read_survey
+
+    _, frame = data
+    sav_frame = frame.copy()
+    sav_frame.loc[899, "age"] = 40.5   # whole numbers in the first chunks, a decimal in the last
+    src = tmp_path / f"sample{ext}"
+    if ext == ".sav":
+        pyreadstat.write_sav(sav_frame, str(src), row_compress=True)
+    else:
+        sav_frame.to_csv(src, index=False, float_format="%.17g")
+    plan_file = tmp_path / "plan.yaml"
+    plan_file.write_text(PLANS["rake-jkn"], encoding="utf-8")
+    before = src.read_bytes()
+    out = tmp_path / "weighted"
+    res = CliRunner().invoke(app, ["weigh", str(src), "-p", str(plan_file), "-o", str(out), "--engine", "dask",
+                                   "--scheduler", client.scheduler.address, "--partition-rows", "250"])
+    assert res.exit_code == 0, res.output
+    assert "weighted 900 cases in 4 partitions" in res.output
+    assert src.read_bytes() == before and not list(tmp_path.glob(".skipwise-parts-*"))  # scratch removed
+    mem = weigh(read_survey(src), load_plan(plan_file))
+    pieces = [read_survey(p) for p in sorted(out.glob("part-*.parquet"))]
+    assert [str(p["age"].dtype) for p in pieces] == ["float64"] * 4  # every part in the whole file's type
+    got = pd.concat(pieces, ignore_index=True)
+    assert list(got.columns) == list(mem.data.columns)
+    weights = list(mem.weight_columns[1:])
+    assert len(weights) > 5  # the stages and the replicates
+    np.testing.assert_allclose(got[weights].to_numpy(), mem.data[weights].to_numpy(), rtol=0, atol=1e-9)
+    assert (got["wt_outcome"].to_numpy() == mem.data["wt_outcome"].to_numpy()).all()
+    original = list(frame.columns)
+    pd.testing.assert_frame_equal(got[original], mem.data[original], check_dtype=True)
+
+
+def test_auto_with_a_folder_data_and_a_file_out_is_refused(data, tmp_path):
+    """DESIGN section 7: --engine auto never changes the form of the output. Only the dask engine reads a
+    folder of parts and its weigh writes a folder, so a file OUT is refused, before any work, writing nothing."""
+    root, _ = data
+    plan = tmp_path / "plan.yaml"
+    plan.write_text(PLANS["trim-spread"], encoding="utf-8")
+    for name in ("w.parquet", "w.sav"):
+        res = CliRunner().invoke(app, ["weigh", str(root / "parts"), "-p", str(plan), "-o", str(tmp_path / name),
+                                       "--engine", "auto", "--scheduler", "tcp://127.0.0.1:1"])
+        assert res.exit_code == 1 and "never changes the form of the output" in res.output, res.output
+        assert "--engine dask" in res.output and "Traceback" not in res.output
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["plan.yaml"]

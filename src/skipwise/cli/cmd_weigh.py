@@ -22,13 +22,16 @@ HELP = (
     "holds respondents' data — follow your organization's data protection rules and methodology "
     "standards.\n\n"
     "With --engine dask the weighting runs on a Dask cluster: DATA may be a Parquet file, folder or glob, "
+    "or one .sav, .zsav, .dta, .sas7bdat or .csv file (converted to Parquet parts in one pass first), "
     "OUT names a folder that receives one Parquet part per input partition (the same columns as the "
     "in-memory output), and every step is a pass of partial sums over the partitions (docs/scale.md)."
 )
 ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': weigh the partitions on a Dask "
-               "cluster; DATA may be a Parquet file, folder or glob and OUT names a folder of Parquet parts. 'auto': "
-               "the dask engine for a folder or glob of parts, else in memory (saying so when the data is over "
-               "the memory budget: a folder OUT needs an explicit --engine dask).")
+               "cluster; DATA may be a Parquet file, folder or glob, or one .sav, .zsav, .dta, .sas7bdat or .csv file "
+               "(converted to Parquet parts first), and OUT names a folder of Parquet parts. 'auto': the dask "
+               "engine for a folder or glob of parts and a folder OUT, else in memory (saying so when the data "
+               "is over the memory budget: auto never changes the form of the output, so a folder or glob DATA "
+               "with a file OUT is refused).")
 
 
 @app.command("weigh", help=HELP)
@@ -47,6 +50,17 @@ def weigh_command(
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
+    if engine is Engine.AUTO and out.suffix and _is_parts(data):
+        # only the dask engine reads a folder or glob of parts, and its weigh writes a folder: auto never
+        # changes the form of the output (DESIGN section 7), so a file OUT cannot be honoured
+        from skipwise.errors import Category, Problem, ProblemCode
+
+        fail(SkipwiseError(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(out),
+            message=f"--engine auto never changes the form of the output: DATA is a folder or glob of parts, "
+                    f"which only the dask engine reads, and the dask engine's weigh writes a folder of parts, "
+                    f"not a {out.suffix} file",
+            hint="name a folder for OUT (no suffix) and pass --engine dask, or weigh one file in memory")))
     if engine is Engine.AUTO:
         from skipwise.cli.engine import choose_engine
 
@@ -105,6 +119,11 @@ def weigh_command(
         typer.echo(f"caution: {text}")
 
 
+def _is_parts(data: Path) -> bool:
+    """DATA is a folder or a glob (of Parquet parts): what only the dask engine reads."""
+    return data.is_dir() or any(ch in str(data) for ch in "*?[")
+
+
 def _echo_result(res) -> None:
     from skipwise.weighting.workbook import summary_rows
 
@@ -124,11 +143,15 @@ def _echo_result(res) -> None:
 
 def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Optional[Path], workbook: Optional[Path],
                      overwrite: bool, scheduler: Optional[str], partition_rows: int) -> None:
-    """``skipwise weigh --engine dask``: Parquet parts in, weighted parts and the workbook out."""
+    """``skipwise weigh --engine dask``: partitions in, weighted Parquet parts and the workbook out.
+
+    DATA is Parquet (a file, folder or glob), or one SPSS, Stata, SAS or CSV file converted to
+    Parquet parts first in one pass (:func:`skipwise.cli.engine.dask_parts`, as classify does).
+    """
     from skipwise.errors import Category, Problem, ProblemCode
     from skipwise.io.atomic import check_writable
+    from skipwise.cli.engine import dask_parts
     from skipwise.scale import dask_client
-    from skipwise.scale.sources import parquet_parts
     from skipwise.scale.weigh_replicates import refuse_unsupported, weigh_on_cluster
     from skipwise.weighting.plan import load_plan
     from skipwise.weighting.weigh import CAUTIONS
@@ -150,16 +173,16 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
     if book.suffix.lower() != ".xlsx":
         raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
     check_writable(book, overwrite=overwrite, inputs=[data, plan])
-    parts = parquet_parts(data, partition_rows)
-    with dask_client(scheduler) as client:
-        bar: dict = {}
-        with contextlib.ExitStack() as stack:
-            def on_design(count: int) -> None:
-                bar["bar"] = stack.enter_context(typer.progressbar(length=count, label="    replicates"))
+    with dask_parts(data, out, partition_rows) as (parts, meta, dtypes):
+        with dask_client(scheduler) as client:
+            bar: dict = {}
+            with contextlib.ExitStack() as stack:
+                def on_design(count: int) -> None:
+                    bar["bar"] = stack.enter_context(typer.progressbar(length=count, label="    replicates"))
 
-            res = weigh_on_cluster(data, spec, out, client=client, parts=parts, overwrite=overwrite,
-                                   note=lambda text: typer.echo(f"note: {text}"), on_design=on_design,
-                                   progress=lambda _done: bar["bar"].update(1))
+                res = weigh_on_cluster(data, spec, out, client=client, parts=parts, overwrite=overwrite, meta=meta,
+                                       dtypes=dtypes, note=lambda text: typer.echo(f"note: {text}"),
+                                       on_design=on_design, progress=lambda _done: bar["bar"].update(1))
     write_workbook(res, book, overwrite=overwrite)
     typer.echo(f"weighted {res.totals['cases']:,} cases in {len(parts):,} partitions")
     _echo_result(res)

@@ -91,7 +91,8 @@ def plan_columns(plan: WeightingPlan) -> list[str]:
     return seen
 
 
-def _read(part, columns: list[str]) -> pd.DataFrame:
+def _read(part, columns: list[str], dtypes: dict[str, str] | None = None) -> pd.DataFrame:
+    """The ``columns`` of one partition (those present), in the whole file's types when ``dtypes`` is given."""
     import pyarrow.parquet as pq
 
     from skipwise.io.readers import parquet_frame
@@ -100,7 +101,12 @@ def _read(part, columns: list[str]) -> pd.DataFrame:
     present = [c for c in columns if c in pf.schema_arrow.names]
     table = (pf.read_row_groups(list(part.row_groups), columns=present) if part.row_groups
              else pf.schema_arrow.empty_table().select(present))
-    return parquet_frame(table, Path(part.path))
+    frame = parquet_frame(table, Path(part.path))
+    if dtypes:  # a converted file's chunks: every partition in the whole file's column types
+        from skipwise.scale.convert import harmonize
+
+        frame = harmonize(frame, dtypes)
+    return frame
 
 
 def _attempt(problems: list[Problem], fn, *args, **kwargs):
@@ -111,9 +117,14 @@ def _attempt(problems: list[Problem], fn, *args, **kwargs):
         return None
 
 
-def prepare_part(part, plan: WeightingPlan, offset: int) -> tuple[PartState, PartCensus]:
-    """Read one partition and encode it; ``offset`` is its first row's position in the file."""
-    frame = _read(part, plan_columns(plan))
+def prepare_part(part, plan: WeightingPlan, offset: int,
+                 dtypes: dict[str, str] | None = None) -> tuple[PartState, PartCensus]:
+    """Read one partition and encode it; ``offset`` is its first row's position in the file.
+
+    ``dtypes``: the whole file's column types when the partitions were converted
+    (:mod:`skipwise.scale.convert`).
+    """
+    frame = _read(part, plan_columns(plan), dtypes)
     frame.index = pd.RangeIndex(offset, offset + len(frame))  # case positions in the file, as in memory
     problems: list[Problem] = []
     n = len(frame)

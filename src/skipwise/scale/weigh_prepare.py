@@ -87,13 +87,17 @@ def _merge_problems(problems: list[Problem]) -> list[Problem]:
     return out
 
 
-def prepare_on_cluster(client, parts: list, plan: WeightingPlan) -> tuple[Dist, Encoded]:
-    """Read and encode every partition on the workers; check the merged census on the client."""
+def prepare_on_cluster(client, parts: list, plan: WeightingPlan,
+                       dtypes: dict[str, str] | None = None) -> tuple[Dist, Encoded]:
+    """Read and encode every partition on the workers; check the merged census on the client.
+
+    ``dtypes``: the whole file's column types of converted input (:mod:`skipwise.scale.convert`).
+    """
     from skipwise.scale.weigh_replicates import design_of
 
     offsets = np.concatenate([[0], np.cumsum([p.rows for p in parts])])
     plan_future = client.scatter(plan, broadcast=True)
-    pairs = [client.submit(wp.prepare_part, p, plan_future, int(offsets[i]), pure=False) for i, p in enumerate(parts)]
+    pairs = [client.submit(wp.prepare_part, p, plan_future, int(offsets[i]), dtypes, pure=False) for i, p in enumerate(parts)]
     census = client.gather([client.submit(wp.census_of, f, pure=False) for f in pairs])
     states = [client.submit(wp.state_of, f, pure=False) for f in pairs]
     problems = _merge_problems([p for c in census for p in c.problems])

@@ -150,12 +150,12 @@ def _prop_apply(state, w, codes, factor_of_class):
 
 # --- estimates with replicate standard errors: weighted sums per partition ---------------------
 
-def _estimate_sums(part, state, plan, final: np.ndarray, reps: list) -> dict:
+def _estimate_sums(part, state, plan, final: np.ndarray, reps: list, dtypes: dict[str, str] | None = None) -> dict:
     """Per estimate row: Σ w y and Σ w over valid respondents for the final and every replicate weight."""
     from skipwise.weighting.replicates import _estimate_columns
 
     est = plan.estimates
-    frame = wp._read(part, [*est.means, *est.proportions])
+    frame = wp._read(part, [*est.means, *est.proportions], dtypes)
     rows, y, valid = _estimate_columns(frame, state.respondent, est.means, est.proportions, est.exclude_values)
     w = np.column_stack([final, *reps])
     v = valid.astype(float)
@@ -164,13 +164,14 @@ def _estimate_sums(part, state, plan, final: np.ndarray, reps: list) -> dict:
     return {(r["variable"], r["category"], r["kind"]): (num[k], den[k], int(n[k])) for k, r in enumerate(rows)}
 
 
-def _estimates(client, parts: list, dist, plan, final: list, reps: list, design) -> pd.DataFrame:
+def _estimates(client, parts: list, dist, plan, final: list, reps: list, design,
+               dtypes: dict[str, str] | None = None) -> pd.DataFrame:
     """:func:`skipwise.weighting.replicates.replicate_standard_errors` from merged weighted sums."""
     from skipwise.weighting.replicates import replicate_variance
 
     plan_future = client.scatter(plan, broadcast=True)
     found = client.gather([client.submit(_estimate_sums, part, dist.states[i], plan_future, final[i],
-                                         [r[i] for r in reps], pure=False) for i, part in enumerate(parts)])
+                                         [r[i] for r in reps], dtypes, pure=False) for i, part in enumerate(parts)])
     merged: dict = {}
     for part in found:
         for key, (num, den, n) in part.items():
@@ -200,13 +201,17 @@ def _estimates(client, parts: list, dist, plan, final: list, reps: list, design)
 
 # --- the whole job -----------------------------------------------------------------------------
 
-def _write_part(part, state, index: int, staging: str, columns: dict, labels: dict[str, str]) -> dict:
-    """Read the partition whole, add the weight columns and write its part; returns rows and digest."""
+def _write_part(part, state, index: int, staging: str, columns: dict, labels: dict[str, str], meta=None,
+                dtypes: dict[str, str] | None = None) -> dict:
+    """Read the partition whole, add the weight columns and write its part; returns rows and digest.
+
+    ``meta`` and ``dtypes``: the whole file's metadata and column types of converted input.
+    """
     from skipwise.io import get_meta, write_survey
     from skipwise.scale.classify import _sha
     from skipwise.scale.sources import read_part
 
-    frame = read_part(part)
+    frame = read_part(part, meta, dtypes)
     from skipwise.weighting.outcomes import OUTCOME_NUMBERS, OUTCOME_VALUE_LABELS
 
     # the outcome category as its labelled number 1-8, as the in-memory engine delivers it
@@ -225,10 +230,14 @@ def _write_part(part, state, index: int, staging: str, columns: dict, labels: di
     return {"file": name, "rows": len(out), "sha256": _sha(target)}
 
 
-def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False,
-                     note: Callable[[str], None] | None = None, on_design: Callable[[int], None] | None = None,
-                     progress: Callable[[int], None] | None = None):
+def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False, meta=None,
+                     dtypes: dict[str, str] | None = None, note: Callable[[str], None] | None = None,
+                     on_design: Callable[[int], None] | None = None, progress: Callable[[int], None] | None = None):
     """Weigh every partition of ``source`` by ``plan`` on the cluster; write the weighted parts into ``out``.
+
+    ``meta`` and ``dtypes`` are the whole file's metadata and column types when the parts were
+    converted from one SPSS, Stata, SAS or CSV file (:func:`skipwise.scale.convert.convert_to_parts`):
+    every partition is read in those types and its part written with that metadata.
 
     Returns a :class:`skipwise.scale.weigh.DaskWeighResult` (figures and tables for the
     workbook and the console; the weights stay in the parts).
@@ -248,7 +257,7 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     names = list(pq.ParquetFile(parts[0].path).schema_arrow.names)
     check_generated(planned_weight_columns(plan, names), names)
     _check_parts_folder(Path(out), overwrite)
-    dist, enc = prepare_on_cluster(client, parts, plan)
+    dist, enc = prepare_on_cluster(client, parts, plan, dtypes)
     chain = ClusterChain(dist, enc, plan, note=note)
     stages, result = chain.run()
     p = plan.prefix
@@ -285,15 +294,16 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     estimates = None
     if design is not None and plan.estimates is not None:
         reps = [v for k, v in columns.items() if k.startswith(f"{p}rep")]
-        estimates = _estimates(client, parts, dist, plan, stages["final"], reps, design)
+        estimates = _estimates(client, parts, dist, plan, stages["final"], reps, design, dtypes)
     res = chain.result(stages, result, design, tuple(columns), estimates)
     labels = weight_labels(res)
+    meta_future = client.scatter(meta, broadcast=True) if meta is not None else None
     with PackagePublisher(Path(out)) as pub:
         futures = []
         for i, part in enumerate(parts):
             cols = {k: (None if v is None else v[i]) for k, v in columns.items()}
             futures.append(client.submit(_write_part, part, dist.states[i], i, str(pub.staging), cols, labels,
-                                         pure=False))
+                                         meta_future, dtypes, pure=False))
         written = client.gather(futures)
         listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
         (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
