@@ -372,3 +372,43 @@ def test_check_finds_a_duplicate_id_across_two_files_of_a_folder_as_in_memory(su
     line = f"1 case id(s) occur more than once ({rows} rows): {data.loc[7, 'case_id']}"
     assert rows == 2 and line in mem.stdout and line in dsk.stdout
     assert dsk.stdout.splitlines()[:-2] == mem.stdout.splitlines()[:-2]  # the last lines name the input
+
+
+def test_classify_gives_the_invalid_hint_from_the_counts_of_every_partition(client, tmp_path, monkeypatch):
+    """The in-memory engine's hint when more than 1 % of the cells are invalid (skipwise.classify.hints),
+    from the partitions' counts added up: the first file has no invalid cell, the second and third differ in
+    their worst item, so only the whole file's counts give the in-memory figures and order. The number of
+    invalid cells is pandas' own count of values outside [0, 10]."""
+    import textwrap
+
+    q = tmp_path / "q.yaml"
+    q.write_text(textwrap.dedent("""\
+        format: 1
+        survey: {name: t, case_id: id}
+        sections:
+          - name: s
+            items:
+              - {name: a, type: integer, range: [0, 10]}
+              - {name: b, type: integer, range: [0, 10]}
+        """))
+    n = 1200
+    frame = pd.DataFrame({"id": np.arange(1, n + 1), "a": np.ones(n, dtype=np.int64), "b": np.ones(n, dtype=np.int64)})
+    frame.loc[[410, 500, 610, 700, 790, 805, 830, 860, 890, 900, 950], "b"] = 99   # second file
+    frame.loc[[1000, 1010, 1020, 1030, 1040, 1050, 1060, 1070, 1080, 1090, 1100, 1110], "a"] = 99  # third file
+    frame.loc[[1120, 1150, 1190], "b"] = 99
+    folder = tmp_path / "waves"
+    folder.mkdir()
+    for i in range(3):
+        write_survey(frame.iloc[400 * i:400 * (i + 1)].reset_index(drop=True), folder / f"w-{i}.parquet")
+    write_survey(frame, tmp_path / "whole.parquet")
+    invalid = int((frame[["a", "b"]] > 10).to_numpy().sum())
+    assert invalid == 26 and invalid > 0.01 * 2 * n  # over 1 % of the file's cells
+    monkeypatch.setenv("SKIPWISE_SCHEDULER", client.scheduler.address)
+    runner = CliRunner()
+    mem = runner.invoke(app, ["classify", str(tmp_path / "whole.parquet"), "-q", str(q), "-o", str(tmp_path / "m.csv")])
+    dsk = runner.invoke(app, ["classify", str(folder), "-q", str(q), "-o", str(tmp_path / "d"), "--engine", "dask"])
+    assert mem.exit_code == dsk.exit_code == 0, dsk.output
+    hint = [line for line in mem.output.splitlines() if "are invalid" in line]
+    assert len(hint) == 1 and f"{invalid} of {2 * n:,} cells (1.1%) are invalid" in hint[0] and "most in b, a" in hint[0]
+    expected = hint[0].replace(str(tmp_path / "whole.parquet"), str(folder))
+    assert [line for line in dsk.output.splitlines() if "are invalid" in line] == [expected]

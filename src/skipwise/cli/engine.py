@@ -184,6 +184,11 @@ def classify_with_dask(data: Path, questionnaire: Path, out: Path, *, form: str,
     for status, count in shares.items():
         if count:
             typer.echo(f"  {status:<14} {int(count):>10,}  {100 * count / total:6.2f}%")
+    from skipwise.classify.hints import invalid_hint_of_counts
+
+    hint = invalid_hint_of_counts(res.counts, data=str(data), questionnaire=str(questionnaire))
+    if hint:  # from the merged counts: the text the in-memory engine prints for the whole file
+        typer.echo(hint)
     if suffix:
         from skipwise.classify.export import faults_path
 
