@@ -412,3 +412,19 @@ def test_classify_gives_the_invalid_hint_from_the_counts_of_every_partition(clie
     assert len(hint) == 1 and f"{invalid} of {2 * n:,} cells (1.1%) are invalid" in hint[0] and "most in b, a" in hint[0]
     expected = hint[0].replace(str(tmp_path / "whole.parquet"), str(folder))
     assert [line for line in dsk.output.splitlines() if "are invalid" in line] == [expected]
+
+
+def test_the_compression_of_an_spss_file_is_read_from_its_header(tmp_path):
+    """Files written by pyreadstat with its own options: none, row (bytecode) and zlib compression (the
+    SPSS header codes 0, 1 and 2); the conversion names the files that pyreadstat decompresses per chunk."""
+    import pyreadstat
+
+    from skipwise.scale.convert import sav_compression
+
+    frame = pd.DataFrame({"id": np.arange(50.0), "v": np.ones(50)})
+    for name, opts, code in (("plain.sav", {}, 0), ("rows.sav", {"row_compress": True}, 1),
+                             ("z.zsav", {"compress": True}, 2)):
+        pyreadstat.write_sav(frame, str(tmp_path / name), **opts)
+        assert sav_compression(tmp_path / name) == code, name
+    frame.to_csv(tmp_path / "d.csv", index=False)
+    assert sav_compression(tmp_path / "d.csv") == 0

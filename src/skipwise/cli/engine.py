@@ -135,7 +135,7 @@ def dask_parts(data: Path, out: Path, partition_rows: int):
 
     Yields ``(parts, meta, dtypes)``; a conversion's scratch folder is removed at the end.
     """
-    from skipwise.scale.convert import convert_to_parts, needs_conversion, scratch_folder
+    from skipwise.scale.convert import convert_to_parts, needs_conversion, sav_compression, scratch_folder
     from skipwise.scale.sources import parquet_parts
 
     if not needs_conversion(data):
@@ -143,8 +143,15 @@ def dask_parts(data: Path, out: Path, partition_rows: int):
         return
     with scratch_folder(out) as scratch:
         size = data.stat().st_size
-        typer.echo(f"converting {data.name} ({size / 1e6:,.1f} MB) to Parquet parts of {partition_rows:,} rows "
-                   "(one pass; the file is read once)", err=True)
+        if sav_compression(data):
+            # pyreadstat enters a compressed file at an offset by decompressing it from the start
+            typer.echo(f"converting {data.name} ({size / 1e6:,.1f} MB) to Parquet parts of {partition_rows:,} rows "
+                       "in one pass; the file is compressed, so each chunk is decompressed from the start of the "
+                       "file (the extra work grows with the square of the number of chunks: a larger "
+                       "--partition-rows makes fewer)", err=True)
+        else:
+            typer.echo(f"converting {data.name} ({size / 1e6:,.1f} MB) to Parquet parts of {partition_rows:,} rows "
+                       "(one pass; the file is read once)", err=True)
         done = [0]
 
         def tick(rows: int) -> None:

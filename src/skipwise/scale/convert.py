@@ -34,7 +34,8 @@ from skipwise.io.meta import SurveyMeta
 from skipwise.publish import clean_message
 from skipwise.scale.sources import Part, parquet_parts
 
-__all__ = ["CONVERTED_FORMATS", "Converted", "convert_to_parts", "needs_conversion", "scratch_folder", "harmonize"]
+__all__ = ["CONVERTED_FORMATS", "Converted", "convert_to_parts", "needs_conversion", "scratch_folder", "harmonize",
+           "sav_compression"]
 
 #: Input formats the dask engine converts to Parquet parts first.
 CONVERTED_FORMATS = {".sav": "sav", ".zsav": "zsav", ".dta": "dta", ".sas7bdat": "sas7bdat", ".csv": "csv"}
@@ -53,6 +54,27 @@ class Converted:
 def needs_conversion(path: str | Path) -> bool:
     """Whether the dask engine reads ``path`` through a conversion to Parquet parts first."""
     return Path(str(path)).suffix.lower() in CONVERTED_FORMATS and Path(str(path)).is_file()
+
+
+def sav_compression(path: str | Path) -> int:
+    """The compression an SPSS file's header declares: 0 none, 1 bytecode (.sav), 2 zlib (.zsav); 0 for others.
+
+    pyreadstat reads a chunk at an offset by decompressing the file from its start up to the offset
+    (only an uncompressed file is entered by a seek), so converting a compressed file in chunks decompresses
+    its first rows again for every chunk.  The header's layout code (2 or 3, at byte 64) tells the byte
+    order; the compression code is the 32-bit integer at byte 72.
+    """
+    path = Path(path)
+    if path.suffix.lower() not in (".sav", ".zsav"):
+        return 0
+    with open(path, "rb") as f:
+        head = f.read(76)
+    if len(head) < 76 or head[:4] not in (b"$FL2", b"$FL3"):
+        return 0
+    order = "<" if int.from_bytes(head[64:68], "little") in (2, 3) else ">"
+    import struct
+
+    return int(struct.unpack(order + "i", head[72:76])[0])
 
 
 @contextlib.contextmanager
