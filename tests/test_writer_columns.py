@@ -25,6 +25,8 @@ def test_split_numbers_equals_to_numeric_cell_by_cell(cells):
     num, rest, texts, codes = split_numbers(s)
     ref = pd.to_numeric(s, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
     np.testing.assert_array_equal(num, ref)
+    numeric = ~np.isnan(ref)  # -0.0 stays -0.0 (to_numeric itself may drop the sign of a zero)
+    assert list(np.signbit(num[numeric])) == [np.signbit(float(c)) for c in s[numeric]]
     np.testing.assert_array_equal(rest, (s.notna() & pd.isna(ref)).to_numpy())
     assert [texts[k] for k in codes[rest]] == [str(v) for v in s[rest]]
     objects = numbers_as_objects(s, num)
@@ -80,3 +82,68 @@ def test_dta_labels_of_letters_no_cell_holds_are_all_written(tmp_path):
                                               "c": "don't know"}
     assert info.variable_value_labels["r"] == {"a": "skipped", "c": "last letter"}
     assert info.variable_to_label == {"q": "q", "r": "r", "s": "s"}
+
+
+LETTER_COLUMN = st.lists(st.one_of(st.floats(-1e6, 1e6, allow_nan=False), st.sampled_from([0.0, -0.0, ".a", ".c", ".z"]),
+                                   st.none()), min_size=1, max_size=30)
+
+
+@settings(max_examples=examples(30), deadline=None)
+@given(LETTER_COLUMN)
+def test_dta_column_of_floats_and_letters_read_back_by_pandas(tmp_path_factory, cells):
+    # A recoded column (Python floats and letters) is written from its distinct values; pandas'
+    # own Stata reader (a reference outside the project) must see every cell as stored.
+    from skipwise.io import SurveyMeta, write_survey
+
+    path = tmp_path_factory.mktemp("dta") / "x.dta"
+    frame = pd.DataFrame({"q": pd.Series(cells + [1.0, ".a"], dtype=object)})  # always mixed
+    meta = SurveyMeta()
+    meta.missing_values["q"] = [".a", ".c", ".z"]
+    write_survey(frame, path, meta, overwrite=True)
+    back = pd.read_stata(path, convert_missing=True)["q"]
+    for stored, read in zip(frame["q"], back):
+        if stored is None:
+            assert str(read) == "."
+        elif isinstance(stored, str):
+            assert str(read) == stored
+        else:
+            assert read == stored and np.signbit(read) == np.signbit(stored)  # -0.0 stays -0.0
+
+
+def test_dta_column_with_hundreds_of_distinct_answers(tmp_path):
+    # more distinct values than an int8 index holds, next to the letters
+    from skipwise.io import SurveyMeta, write_survey
+
+    cells = [float(v) for v in range(300)] + [".b"] * 3
+    meta = SurveyMeta()
+    meta.missing_values["q"] = [".b"]
+    write_survey(pd.DataFrame({"q": pd.Series(cells, dtype=object)}), tmp_path / "x.dta", meta, overwrite=True)
+    back = pd.read_stata(tmp_path / "x.dta", convert_missing=True)["q"]
+    assert [float(v) for v in back[:300]] == cells[:300]
+    assert [str(v) for v in back[300:]] == [".b"] * 3
+
+
+def test_dta_categorical_of_numbers_and_letters_is_the_object_columns_file(tmp_path):
+    # A recoded column may come as a categorical (numbers first, then letters, some unused): the
+    # file must be the one written from the same cells as objects, byte for byte apart from the
+    # write time, and pandas' own Stata reader must see the cells (a reference outside the project).
+    from skipwise.io import SurveyMeta, write_survey
+
+    cells = [1.0, ".b", 2.5, None, ".a", 1.0, ".b", -3.0]
+    as_objects = pd.Series(cells, dtype=object)
+    as_categories = pd.Series(pd.Categorical(cells, categories=[1.0, 2.5, -3.0, 9.0, ".a", ".b", ".h"]))
+    letters_first = pd.Series(pd.Categorical(cells, categories=[".a", ".b", 1.0, 2.5, -3.0]))
+    meta = SurveyMeta()
+    meta.missing_values["q"] = [".a", ".b", ".h"]
+    meta.value_labels["q"] = {1: "one", ".a": "skipped", ".h": "left blank"}
+    files = []
+    for k, column in enumerate((as_objects, as_categories, letters_first)):
+        path = tmp_path / f"x{k}.dta"
+        write_survey(pd.DataFrame({"q": column}), path, meta, overwrite=True)
+        raw = bytearray(path.read_bytes())
+        at = raw.index(b"<timestamp>")
+        raw[at:at + 30] = b"\0" * 30  # the write time
+        files.append(bytes(raw))
+        back = pd.read_stata(path, convert_missing=True, convert_categoricals=False)["q"]
+        assert [str(v) for v in back] == ["1.0", ".b", "2.5", ".", ".a", "1.0", ".b", "-3.0"]
+    assert files[1] == files[0] and files[2] == files[0]

@@ -38,6 +38,7 @@ from skipwise.classify.result import Classification
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.generated import Generated, check_generated
 from skipwise.io import SurveyMeta, get_meta
+from skipwise.io.writers_common import signed_zeros
 from skipwise.questionnaire.model import ItemType
 
 __all__ = ["ExportForm", "status_numbers", "status_letters", "with_status_columns", "recoded_copy",
@@ -175,16 +176,19 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
         for col in item.columns:
             _check_no_collision(data[col], mapping, col, stata)
             stored = data[col]
-            if stata and stored.dtype == np.float64:  # the answers as Python floats, boxed once
-                values = np.asarray(stored.to_numpy(), dtype=object)
+            if stata and stored.dtype == np.float64:
+                values = _floats_with_letters(stored.to_numpy(), replace, lookup, codes)
             else:
                 values = stored.to_numpy(dtype=object, na_value=np.nan).copy()
                 if stata:  # answers as numbers (ints, numbers stored as text: a CSV column holding "Refused")
                     values[~replace] = column_views(stored)[0][~replace]
-            values[replace] = lookup[codes[replace]]
-            # dtype=object: a column of letters only must not be inferred as text
-            out[col] = pd.Series(values, index=out.index, dtype=object) if stata else \
-                pd.to_numeric(pd.Series(values, index=out.index), errors="coerce")
+                values[replace] = lookup[codes[replace]]
+            if not stata:
+                out[col] = pd.to_numeric(pd.Series(values, index=out.index), errors="coerce")
+            elif isinstance(values, pd.Categorical):
+                out[col] = pd.Series(values, index=out.index)
+            else:  # dtype=object: a column of letters only must not be inferred as text
+                out[col] = pd.Series(values, index=out.index, dtype=object)
             # Keep the file's own labels for real answers; drop those of the old codes.
             kept = {k: v for k, v in meta.value_labels.get(col, {}).items()
                     if not any(_same(k, c.value) for c in item.codes if c.kind.value != "substantive")}
@@ -196,6 +200,36 @@ def recoded_copy(data: pd.DataFrame, cl: Classification, fmt: str, meta: SurveyM
         out, meta = with_status_columns(out, cl, meta, items=text_items)
     out.attrs = {}
     return out, meta
+
+
+def _floats_with_letters(stored: np.ndarray, replace: np.ndarray, lookup: np.ndarray, codes: np.ndarray
+                         ) -> pd.Categorical | np.ndarray:
+    """A float column with its ``replace`` cells holding their status's letter, as a categorical.
+
+    The categories are the column's distinct numbers followed by the letters (``pd.factorize``
+    hashes the floats in C), so the column costs one small code per cell, and pyreadstat judges
+    it numeric by its first categories and writes it faster than an object column of the same
+    cells (the same bytes).  A column holding both ``0.0`` and ``-0.0`` (equal, so not two
+    categories) comes back as an object array keeping each cell's sign.
+    """
+    answers, distinct = pd.factorize(stored, use_na_sentinel=True)
+    letters = list(dict.fromkeys(v for v in lookup if v is not None))
+    letter_at = np.array([-1 if v is None else letters.index(v) for v in lookup], dtype=np.intp)
+    answers, other_zero = signed_zeros(answers, distinct, stored)
+    if other_zero is None:
+        at = letter_at[codes[replace]]
+        answers[replace] = np.where(at >= 0, at + len(distinct), -1)
+        categories = pd.Index(np.concatenate([distinct.astype(object), np.array(letters, dtype=object)]),
+                              dtype=object)
+        return pd.Categorical.from_codes(answers, dtype=pd.CategoricalDtype(categories))
+    distinct = np.append(distinct, other_zero)
+    table = np.empty(len(distinct) + len(lookup) + 1, dtype=object)
+    table[:len(distinct)] = distinct.astype(object)
+    table[len(distinct):-1] = lookup
+    table[-1] = np.nan  # a blank answered cell (none after classification; kept blank all the same)
+    at = np.where(answers < 0, len(table) - 1, answers)
+    at[replace] = codes[replace].astype(np.intp) + len(distinct)
+    return table[at]
 
 
 def _keeps_cells(item) -> bool:

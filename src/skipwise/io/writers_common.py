@@ -139,10 +139,15 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
     columns: dict = {}
     for col in df.columns:
         s = df[col].reset_index(drop=True)
-        if isinstance(s.dtype, pd.CategoricalDtype):
-            s = pd.Series(s.to_numpy(dtype=object), dtype=object)
         kind = "other"
-        if pd.api.types.is_timedelta64_dtype(s):  # durations are written as seconds
+        recoded = _letter_categorical(s, str(col), path, problems) if ext_missing_ok else None
+        if recoded is not None:  # numbers and letters as categories (a recoded column): written as it is
+            kind, s, out.letters[col] = "extmiss", recoded[0], recoded[1]
+        elif isinstance(s.dtype, pd.CategoricalDtype):
+            s = pd.Series(s.to_numpy(dtype=object), dtype=object)
+        if kind == "extmiss":
+            pass
+        elif pd.api.types.is_timedelta64_dtype(s):  # durations are written as seconds
             kind, s = "number", s.dt.total_seconds()
         elif pd.api.types.is_bool_dtype(s) or pd.api.types.is_numeric_dtype(s):
             kind, s = "number", pd.Series(_as_floats(s), copy=False)
@@ -171,9 +176,10 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                 kind, s = "datetime", pd.to_datetime(s)
             elif inferred in ("mixed", "mixed-integer"):
                 values = np.asarray(s.to_numpy(dtype=object), dtype=object)
-                fast = _floats_and_texts(values, numbers=False)  # floats and letters: one pass over the cells
+                fast = _floats_and_texts_table(values)  # floats and letters: the distinct values, once
                 if fast is not None:
-                    rest, text_codes, texts = fast[1], fast[2], [str(u) for u in fast[3]]
+                    cell_codes, table, is_text = fast
+                    texts = [str(u) for u in table[:-1][is_text]]
                 else:
                     num, rest, texts, codes = split_numbers(s)
                 odd = [t for t in texts if not EXT_LETTER.fullmatch(t)]
@@ -191,8 +197,8 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
                     kind = "extmiss"
                     bare = np.array([stata_letter(t, str(col), path, problems) for t in texts], dtype=object)
                     if fast is not None:  # the numbers are Python floats already: kept as they are
-                        mixed = values.copy()
-                        mixed[rest] = bare[text_codes]
+                        table[:-1][is_text] = bare
+                        mixed = table[cell_codes]
                     else:
                         mixed = numbers_as_objects(s, num)
                         mixed[rest] = bare[codes[rest]]
@@ -209,7 +215,10 @@ def prepare_columns(df: pd.DataFrame, meta: SurveyMeta, path: Path, problems: li
         out.kinds[col] = kind
         if kind == "text":
             _refuse_nul(s, str(col), path, problems)
-        columns[col] = s.to_numpy() if kind != "datetime" and kind != "date" else s.reset_index(drop=True)
+        if kind in ("datetime", "date") or isinstance(s.dtype, pd.CategoricalDtype):
+            columns[col] = s.reset_index(drop=True)
+        else:
+            columns[col] = s.to_numpy()
     _refuse_nul_labels(meta, [str(c) for c in df.columns], path, problems)
     if columns:  # one frame built at once, not one insertion per column, sharing the columns' arrays
         out.frame = pd.DataFrame(columns, index=pd.RangeIndex(len(df)), copy=False)
@@ -241,15 +250,22 @@ def split_numbers(s: pd.Series) -> tuple[np.ndarray, np.ndarray, list[str], np.n
     appearance) and, per row, the index of its text among them (meaningful where the mask is set).
     """
     values = np.asarray(s.to_numpy(dtype=object), dtype=object)
-    fast = _floats_and_texts(values)
-    if fast is not None:  # Python floats and texts only: the column converted at once, texts factorized
-        num, rest, text_codes, text_uniques = fast
-        position = np.full(len(values), -1, dtype=np.int64)
-        position[rest] = text_codes
-        return num, rest, [str(u) for u in text_uniques], position
+    fast = _floats_and_texts_table(values)
+    if fast is not None:  # Python floats and texts only: each distinct value converted once
+        codes, table, is_text = fast
+        numbers = np.full(len(table), np.nan)
+        numbers[:-1][~is_text] = table[:-1][~is_text].astype(np.float64)
+        text_at = np.full(len(table), -1, dtype=np.int64)
+        text_at[:-1][is_text] = np.arange(int(is_text.sum()))
+        position = text_at[codes]
+        return numbers[codes], position >= 0, [str(u) for u in table[:-1][is_text]], position
     codes, uniques = pd.factorize(values, use_na_sentinel=True)
     as_numbers = pd.to_numeric(pd.Series(uniques, dtype=object), errors="coerce").to_numpy(
         dtype=np.float64, na_value=np.nan)
+    codes, other_zero = signed_zeros(codes, as_numbers, values)
+    if other_zero is not None:
+        as_numbers = np.append(as_numbers, other_zero)
+        uniques = np.append(np.asarray(uniques, dtype=object), np.array([other_zero], dtype=object))
     num = np.append(as_numbers, np.nan)[codes]  # code -1 (blank) takes the appended NaN
     textual = np.flatnonzero(np.isnan(as_numbers))
     position = np.full(len(uniques) + 1, -1, dtype=np.int64)
@@ -273,29 +289,84 @@ def numbers_as_objects(s: pd.Series, num: np.ndarray) -> np.ndarray:
     return out
 
 
-def _floats_and_texts(values: np.ndarray, numbers: bool = True
-                      ) -> tuple[np.ndarray | None, np.ndarray, np.ndarray, list] | None:
-    """Numbers, no-number mask, text codes and distinct texts of an object array that holds Python
-    floats and texts only, no text being a number (a recoded column: answers and ``.a`` letters);
-    None for any other column.
+def _letter_categorical(s: pd.Series, col: str, path: Path, problems: list[Problem]
+                        ) -> tuple[pd.Series, set[str]] | None:
+    """A categorical column of floats and extended missing letters, numbers first, with pyreadstat's
+    bare letters (``"a"`` for ``".a"``) as categories, and the letters its cells hold; None for
+    any other column.
 
-    Each cell's type is read once (``map(type, ...)`` runs in C); the floats are converted at once
-    and only the texts are factorized, so no number is hashed or parsed (``numbers=False``: the
-    numbers are not wanted, None in their place).
+    Only the categories are looked at and renamed, and the cells' codes counted once: no cell is
+    converted.  pyreadstat judges a categorical by its first categories, so the numbers must come
+    first (a column of letters only has no numbers and is judged by what is left once the letters
+    declared missing are set aside: nothing, a numeric column).
     """
-    types = np.fromiter(map(type, values), dtype=object, count=len(values))
-    is_text = types == str
-    if not (is_text | (types == float)).all():
+    if not isinstance(s.dtype, pd.CategoricalDtype):
         return None
-    num = None
-    if numbers:
-        num = np.full(len(values), np.nan)
-        num[~is_text] = values[~is_text].astype(np.float64)
-    text_codes, text_uniques = pd.factorize(values[is_text])
-    as_numbers = pd.to_numeric(pd.Series(text_uniques, dtype=object), errors="coerce")
-    if as_numbers.notna().any():
+    categories = np.asarray(s.cat.categories, dtype=object)
+    kinds = np.fromiter(map(type, categories), dtype=object, count=len(categories))
+    is_text = kinds == str
+    if not (is_text | (kinds == float)).all() or (np.diff(is_text.astype(np.int8)) < 0).any():
+        return None  # something else than numbers then letters
+    texts = categories[is_text]
+    if not all(EXT_LETTER.fullmatch(t) for t in texts):
+        return None
+    bare = [stata_letter(t, col, path, problems) for t in texts]
+    if len(set(bare)) < len(bare):
+        return None  # ".A" and ".a": the general way says which cells
+    codes = s.cat.codes.to_numpy()
+    used = np.bincount(codes.astype(np.intp) + 1, minlength=len(categories) + 1)[1:] > 0
+    renamed = categories.copy()
+    renamed[is_text] = bare
+    held = {b for b, u in zip(bare, used[is_text]) if u}
+    return s.cat.rename_categories(pd.Index(renamed, dtype=object)), held
+
+
+def _floats_and_texts_table(values: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
+    """The distinct values of an object array that holds Python floats and texts only, no text
+    being a number (a recoded column: answers and ``.a`` letters); None for any other column.
+
+    Returns each cell's index into the table of distinct values, that table (an object array with
+    NaN appended, the index of blank cells) and the mask of its texts.  The cells are hashed once
+    (``pd.factorize``, in C) and only the distinct values are looked at, so ``table[codes]`` gives
+    the column back with every cell holding one shared object per distinct value.  Values that
+    compare equal share one entry (``1`` and ``1.0``: the first one seen; the number is the same).
+    """
+    codes, uniques = pd.factorize(values, use_na_sentinel=True)
+    kinds = np.fromiter(map(type, uniques), dtype=object, count=len(uniques))
+    is_text = kinds == str
+    if not (is_text | (kinds == float)).all():
+        return None
+    if pd.to_numeric(pd.Series(uniques[is_text], dtype=object), errors="coerce").notna().any():
         return None  # a text that is a number ("7"): the general way
-    return num, is_text, text_codes, list(text_uniques)
+    numbers = np.full(len(uniques), np.nan)
+    numbers[~is_text] = uniques[~is_text].astype(np.float64)
+    codes, other_zero = signed_zeros(codes, numbers, values)
+    extra = [] if other_zero is None else [other_zero]
+    table = np.empty(len(uniques) + len(extra) + 1, dtype=object)
+    table[:len(uniques)] = uniques
+    table[len(uniques):-1] = extra
+    table[-1] = np.nan
+    return codes, table, np.append(is_text, np.zeros(len(extra), dtype=bool))
+
+
+def signed_zeros(codes: np.ndarray, distinct: np.ndarray, values: np.ndarray) -> tuple[np.ndarray, float | None]:
+    """Codes in which the zeros of the sign the distinct zero lacks get a code of their own.
+
+    ``pd.factorize`` takes ``0.0`` and ``-0.0`` for one value (they compare equal), keeping the
+    first one seen; a file written from the distinct values keeps each cell's own sign.  ``distinct``
+    holds the distinct values as floats (NaN for texts), ``values`` the cells.  Returns the codes
+    (changed in place) and the zero of the other sign, whose code is ``len(distinct)``, or None.
+    """
+    zero = np.flatnonzero(distinct == 0)
+    if not zero.size:
+        return codes, None
+    k = zero[0]
+    cells = np.flatnonzero(codes == k)
+    flipped = cells[np.signbit(np.asarray(values[cells], dtype=np.float64)) != np.signbit(distinct[k])]
+    if not flipped.size:
+        return codes, None
+    codes[flipped] = len(distinct)
+    return codes, float(-distinct[k])
 
 
 _NUL_HINT = ("SPSS and Stata files end a text at a NUL character, so the rest would be lost without "

@@ -140,6 +140,8 @@ def _numbers_first(frame: pd.DataFrame, columns: list[str]) -> pd.DataFrame:
     out = frame
     for col in columns:
         s = frame[col]
+        if isinstance(s.dtype, pd.CategoricalDtype):
+            continue  # numbers and letters as categories: the numbers come first already
         first = s.iloc[:100]  # the head decides; most columns are settled without reading the rest
         if not split_numbers(first)[1][first.notna().to_numpy()].all():
             continue
