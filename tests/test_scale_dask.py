@@ -193,6 +193,11 @@ def test_single_file_outputs_csv_parts_and_auto_through_the_cli(survey, client, 
     res = runner.invoke(app, ["classify", str(root / "whole.parquet"), "-q", str(DEMO_Q), "-o",
                               str(tmp_path / "auto2.parquet"), "--engine", "auto"])
     assert res.exit_code == 0 and "--engine auto" not in res.output and "partitions" not in res.output
+    # DESIGN section 7: a folder OUT only with an explicit --engine dask, even for a folder DATA
+    res = runner.invoke(app, ["classify", str(root / "parts"), "-q", str(DEMO_Q), "-o", str(tmp_path / "folder"),
+                              "--engine", "auto"])
+    assert res.exit_code != 0 and "--engine dask" in res.output and "Traceback" not in res.output, res.output
+    assert not (tmp_path / "folder").exists() and not (tmp_path / "folder_faults").exists()
 
 
 def _run_memory(data: Path, out: Path) -> Path:

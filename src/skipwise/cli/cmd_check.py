@@ -56,7 +56,10 @@ def check_command(
     if engine is Engine.AUTO:
         from skipwise.cli.engine import choose_engine
 
-        engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
+        try:
+            engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
+        except SkipwiseError as err:
+            fail(err)
     try:
         q = load(questionnaire)
         if engine is Engine.DASK:

@@ -59,7 +59,10 @@ def classify_command(
 
         # a folder OUT needs an explicit --engine dask; auto never changes the form of the output
         allows = ExportForm(form) is ExportForm.COLUMNS and out.suffix.lower() in (".parquet", ".csv")
-        engine = choose_engine(engine, data, output_allows=allows, echo=typer.echo)
+        try:
+            engine = choose_engine(engine, data, output_allows=allows, echo=typer.echo)
+        except SkipwiseError as err:
+            fail(err)
     if engine is Engine.DASK:
         from skipwise.cli.engine import classify_with_dask
 

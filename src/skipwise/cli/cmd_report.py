@@ -63,7 +63,10 @@ def report_command(
     if engine is Engine.AUTO:
         from skipwise.cli.engine import choose_engine
 
-        engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
+        try:
+            engine = choose_engine(engine, data, output_allows=True, echo=typer.echo)
+        except SkipwiseError as err:
+            fail(err)
     if engine is Engine.DASK:
         from skipwise.cli.engine import report_with_dask
 

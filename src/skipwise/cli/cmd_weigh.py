@@ -66,7 +66,10 @@ def weigh_command(
 
         # the dask engine writes a folder of parts, which needs an explicit --engine dask: auto never
         # changes the form of the output, so it says when the data is over the budget and stays in memory
-        engine = choose_engine(engine, data, output_allows=False, echo=typer.echo)
+        try:
+            engine = choose_engine(engine, data, output_allows=False, echo=typer.echo)
+        except SkipwiseError as err:
+            fail(err)
     if engine is Engine.DASK:
         try:
             _weigh_with_dask(data, plan, out, questionnaire=questionnaire, workbook=workbook, overwrite=overwrite,

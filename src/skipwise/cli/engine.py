@@ -115,6 +115,11 @@ def choose_engine(engine: Engine, data: Path, *, output_allows: bool, echo) -> E
         return engine
     readable = data.is_dir() or any(ch in str(data) for ch in "*?[") or data.suffix.lower() in DASK_INPUTS
     if data.is_dir() or any(ch in str(data) for ch in "*?["):
+        if not output_allows:  # only the dask engine reads parts, and its output here is a folder
+            raise _usage("--engine auto never changes the form of the output (DESIGN section 7): DATA is a folder "
+                         "or glob of parts, which only the dask engine reads, and the output asked for is a "
+                         "folder of parts (or a form the dask engine does not write)",
+                         "pass --engine dask to write a folder of parts, or name a .parquet or .csv OUT", data)
         echo("--engine auto: DATA is a folder or a glob of parts; using the dask engine")
         return Engine.DASK
     need, budget = WORKING_FACTOR * data_size(data), memory_budget()
