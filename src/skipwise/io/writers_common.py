@@ -305,8 +305,8 @@ def _letter_categorical(s: pd.Series, col: str, path: Path, problems: list[Probl
     categories = np.asarray(s.cat.categories, dtype=object)
     kinds = np.fromiter(map(type, categories), dtype=object, count=len(categories))
     is_text = kinds == str
-    if not (is_text | (kinds == float)).all() or (np.diff(is_text.astype(np.int8)) < 0).any():
-        return None  # something else than numbers then letters
+    if not is_text.any() or not (is_text | (kinds == float)).all() or (np.diff(is_text.astype(np.int8)) < 0).any():
+        return None  # no letters (a numeric column), or something else than numbers then letters
     texts = categories[is_text]
     if not all(EXT_LETTER.fullmatch(t) for t in texts):
         return None
