@@ -147,3 +147,17 @@ def test_dta_categorical_of_numbers_and_letters_is_the_object_columns_file(tmp_p
         back = pd.read_stata(path, convert_missing=True, convert_categoricals=False)["q"]
         assert [str(v) for v in back] == ["1.0", ".b", "2.5", ".", ".a", "1.0", ".b", "-3.0"]
     assert files[1] == files[0] and files[2] == files[0]
+
+
+def test_dta_categorical_of_numbers_only_keeps_its_number_format(tmp_path):
+    # read back by pyreadstat (a reference outside the project): the display format is the one given
+    import pyreadstat
+    from skipwise.io import SurveyMeta, write_survey
+
+    meta = SurveyMeta()
+    meta.formats["q"] = "%9.2f"
+    frame = pd.DataFrame({"q": pd.Categorical([1.5, 2.0, None, 1.5])})
+    write_survey(frame, tmp_path / "x.dta", meta, overwrite=True)
+    back, info = pyreadstat.read_dta(str(tmp_path / "x.dta"))
+    assert info.original_variable_types["q"] == "%9.2f"
+    assert back["q"].tolist()[:2] == [1.5, 2.0] and np.isnan(back["q"].iloc[2])
