@@ -19,8 +19,9 @@ from __future__ import annotations
 import math
 import re
 import textwrap
+from copy import copy
 from dataclasses import dataclass
-from typing import Any, Iterable, Sequence
+from typing import Any, Callable, Iterable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -154,6 +155,83 @@ class _Stream:
 
 
 @dataclass(frozen=True)
+class Column:
+    """One column of a :meth:`SheetWriter.columns` block, a value per row.
+
+    ``kind`` "text": every value a str, written as a text cell (a leading ``=`` stays text, an empty
+    str is an empty text cell), unstyled.  ``kind`` "number": a numeric array, each value a number
+    cell (NaN and infinity an empty one) with the number format ``fmt``, or no cell where there is no
+    format and no finite value.
+    """
+
+    kind: str
+    values: np.ndarray
+    fmt: str | None = None
+
+
+@dataclass(frozen=True)
+class _Columns:
+    line: Callable[[int], list]
+    count: int
+    width: int
+    fast: np.ndarray
+    columns: tuple[Column, ...]
+
+
+@dataclass(frozen=True)
+class _Raw:
+    elements: list
+    first: int
+    count: int
+
+
+#: Rows of a column block turned into XML at a time.
+_RAW_CHUNK = 20_000
+
+
+def _raw_writer_ok(ws: Any) -> bool:
+    """Whether rows can be handed to this sheet as XML elements (openpyxl's streaming sheet over lxml)."""
+    try:
+        from openpyxl import LXML
+        from openpyxl.worksheet._write_only import WriteOnlyWorksheet
+    except ImportError:  # pragma: no cover - another openpyxl layout: the cell-by-cell path
+        return False
+    return (LXML and isinstance(ws, WriteOnlyWorksheet) and getattr(ws, "_rows", False) is None
+            and all(hasattr(ws, a) for a in ("_get_writer", "_values_to_row")))
+
+
+def _raw_rows(ws: Any):
+    """openpyxl's row writer of a streaming sheet (``WriteOnlyWorksheet._write_rows``), also taking
+    rows already made as XML elements (:class:`_Raw`): the same ``sheetData``, rows in order."""
+    xf = ws._writer.xf.send(True)
+    with xf.element("sheetData"):
+        row_idx = 1
+        try:
+            while True:
+                row = (yield)
+                if isinstance(row, _Raw):
+                    if row.first != row_idx:  # pragma: no cover - a bug here, never a wrong sheet
+                        raise RuntimeError(f"rows out of order: {row.first} where {row_idx} is next")
+                    xf.write(*row.elements)
+                    row_idx += row.count
+                else:
+                    ws._writer.write_row(xf, ws._values_to_row(row, row_idx), row_idx)
+                    row_idx += 1
+        except GeneratorExit:
+            pass
+    ws._writer.xf.send(None)
+
+
+def _xml_escape(text: pd.Series) -> pd.Series:
+    """Text content as XML (``&``, ``<``, ``>`` and carriage returns escaped, as lxml writes them)."""
+    for ch, ent in (("&", "&amp;"), ("<", "&lt;"), (">", "&gt;"), ("\r", "&#13;")):
+        has = text.str.contains(ch, regex=False)
+        if has.any():
+            text = text.where(~has, text.str.replace(ch, ent, regex=False))
+    return text
+
+
+@dataclass(frozen=True)
 class TableRef:
     """Where a table landed: its header row, first and last data rows and column numbers (1-based)."""
 
@@ -212,6 +290,7 @@ class SheetWriter:
         self._wrapped: list[tuple[int, int, int]] = []  # (row, column, characters) of wrapped cells
         self._last_table: TableRef | None = None
         self._headers: list[tuple[int, list[tuple[int, str]], int]] = []  # (row, [(column, text)], rotated)
+        self._styles: dict[tuple[str, str | None], Any] = {}  # (kind, number format) -> style array, made once
         self.line(title, "title")
         self._heights[1] = 20
         lines = [explanation] if isinstance(explanation, str) else list(explanation)
@@ -239,6 +318,18 @@ class SheetWriter:
         For long listings: nothing is buffered; values must already be safe (text never a formula).
         """
         self._rows.append(_Stream(rows, count, width))
+        self._n += count
+
+    def columns(self, line: Callable[[int], list], count: int, width: int, fast: np.ndarray,
+                columns: Sequence[Column]) -> None:
+        """``count`` rows given column by column: for long listings, written without a cell object per value.
+
+        ``line(i)`` gives row ``i`` as :meth:`stream` rows are (plain values or cells); rows where
+        ``fast`` is True are the ``columns`` (one :class:`Column` each, from column A), which must say
+        the same cells as ``line`` would.  Where the rows cannot be handed to the sheet as XML
+        (a normal workbook), every row is ``line(i)``.
+        """
+        self._rows.append(_Columns(line, count, width, np.asarray(fast, dtype=bool), tuple(columns)))
         self._n += count
 
     def blank(self) -> None:
@@ -378,23 +469,117 @@ class SheetWriter:
         if spec is None:
             return None
         value, fmt, kind = spec
-        style = _STYLES[kind]
         if kind in ("mark", "unmarked"):
             cell = WriteOnlyCell(self.ws, value=MARK if kind == "mark" else "")
             cell.data_type = "s"
+            fmt = None
         else:
             v = plain(value)
             cell = WriteOnlyCell(self.ws, value=None)
             if isinstance(v, str):
                 cell.value = clean_text(v)
                 cell.data_type = "s"
+                fmt = None
             else:
                 cell.value = v
-                if fmt and v is not None:
-                    cell.number_format = fmt
-        for attr, val in style.items():
+                if v is None:
+                    fmt = None
+        key = (kind, fmt or None)
+        shared = self._styles.get(key)
+        if shared is not None:  # the style made once per sheet, then shared by its cells
+            cell._style = copy(shared)
+            return cell
+        if fmt:
+            cell.number_format = fmt
+        for attr, val in _STYLES[kind].items():
             setattr(cell, attr, val)
+        self._styles[key] = copy(cell._style)
         return cell
+
+    def _style_id(self, fmt: str | None) -> int | None:
+        """The workbook's style number of a cell with only the number format ``fmt`` (None: unstyled)."""
+        if not fmt:
+            return None
+        cell = WriteOnlyCell(self.ws, value=None)
+        cell.number_format = fmt
+        return cell.style_id if cell.has_style else None
+
+    def _column_cells(self, col: int, column: Column, rownum: np.ndarray) -> tuple[list, np.ndarray]:
+        """Each row's cell of one column as pieces of XML text (columns of a row-major join; '' for no
+        cell), and the rows the column can give."""
+        letter = get_column_letter(col)
+        n = len(rownum)
+        if column.kind == "text":
+            values = pd.Series(column.values, dtype=object)
+            ok = np.ones(n, dtype=bool)
+            if pd.api.types.infer_dtype(values, skipna=False) != "string":
+                ok = values.map(type).to_numpy() == str
+                values = values.where(ok, "")
+            text = values.astype(str)
+            empty = (text == "").to_numpy()
+            keep = (text.str.strip() != text).to_numpy()
+            body = _xml_escape(text).to_numpy(dtype=object)
+            opening = np.where(empty, '" t="inlineStr"/>',
+                               np.where(keep, '" t="inlineStr"><is><t xml:space="preserve">',
+                                        '" t="inlineStr"><is><t>'))
+            closing = np.where(empty, "", "</t></is></c>")
+            return [f'<c r="{letter}', rownum, opening.astype(object), body, closing.astype(object)], ok
+        values = np.asarray(column.values)
+        if values.dtype.kind not in "iuf":
+            return [np.full(n, "", dtype=object)], np.zeros(n, dtype=bool)
+        sid = self._style_id(column.fmt)
+        attr = '" t="n"' if sid is None else f'" s="{sid}" t="n"'
+        finite = np.isfinite(values) if values.dtype.kind == "f" else np.ones(n, dtype=bool)
+        text = np.full(n, "", dtype=object)
+        if finite.any():
+            text[finite] = np.char.mod("%.16g", values[finite]).astype(object)
+        if finite.all():
+            return [f'<c r="{letter}', rownum, attr + "><v>", text, "</v></c>"], np.ones(n, dtype=bool)
+        there = finite | (sid is not None)  # an empty number cell only where it has a format
+        return [np.where(there, f'<c r="{letter}', ""), np.where(there, rownum, ""),
+                np.where(finite, attr + "><v>", np.where(there, attr + "/>", "")), text,
+                np.where(finite, "</v></c>", "")], np.ones(n, dtype=bool)
+
+    def _write_columns(self, block: _Columns, first_row: int, raw: bool) -> None:
+        ws = self.ws
+        if not raw:
+            for i in range(block.count):
+                ws.append(block.line(i))
+            return
+        from lxml import etree
+
+        rownum = np.arange(first_row, first_row + block.count).astype(str).astype(object)
+        fast = block.fast.copy()
+        for r in ws.row_dimensions:  # a row with its own height or style goes through openpyxl
+            if first_row <= r < first_row + block.count:
+                fast[r - first_row] = False
+        pieces: list = ['<row r="', rownum, '">']
+        for j, column in enumerate(block.columns, start=1):
+            parts, ok = self._column_cells(j, column, rownum)
+            pieces += parts
+            fast &= ok
+        pieces.append("</row>")
+        i = 0
+        slow = np.flatnonzero(~fast)
+        while i < block.count:
+            if not fast[i]:
+                ws.append(block.line(i))
+                i += 1
+                continue
+            nxt = slow[np.searchsorted(slow, i)] if len(slow) and slow[-1] > i else block.count
+            end = min(nxt, i + _RAW_CHUNK)
+            grid = np.empty((end - i, len(pieces)), dtype=object)  # rows x pieces, joined row-major
+            for k, piece in enumerate(pieces):
+                grid[:, k] = piece if isinstance(piece, str) else piece[i:end]
+            text = "".join(grid.ravel().tolist())
+            try:
+                root = etree.fromstring(f"<rows>{text}</rows>")
+            except (etree.XMLSyntaxError, ValueError, UnicodeError):  # text XML cannot hold: openpyxl says so
+                for k in range(i, end):
+                    ws.append(block.line(k))
+            else:
+                ws._rows.send(_Raw(list(root), first_row + i, end - i))
+            i = end
 
     def _width(self, j: int) -> float:
         """Column ``j``'s width: the fixed one, else the measured one, never below its labels."""
@@ -406,7 +591,7 @@ class SheetWriter:
         ``print_rows`` limits the print area to that many rows of the main table.
         """
         ws = self.ws
-        ncols = max((r.width if isinstance(r, _Stream) else len(r) for r in self._rows), default=1)
+        ncols = max((r.width if isinstance(r, (_Stream, _Columns)) else len(r) for r in self._rows), default=1)
         for j in range(1, ncols + 1):
             ws.column_dimensions[get_column_letter(j)].width = float(max(self._width(j), 4))
         for r, heads, rotated_len in self._headers:
@@ -447,9 +632,20 @@ class SheetWriter:
         ws.oddFooter.center.size = 8
         for chart, anchor in self._charts:
             ws.add_chart(chart, anchor)
+        raw = any(isinstance(row, _Columns) for row in self._rows) and _raw_writer_ok(ws)
+        if raw:  # openpyxl's own row writer, also taking rows made as XML
+            ws._get_writer()
+            ws._rows = _raw_rows(ws)
+            next(ws._rows)
+        r = 1
         for row in self._rows:
             if isinstance(row, _Stream):
                 for values in row.rows:
                     ws.append(values)
+                r += row.count
+            elif isinstance(row, _Columns):
+                self._write_columns(row, r, raw)
+                r += row.count
             else:
                 ws.append([self._cell(s) for s in row])
+                r += 1

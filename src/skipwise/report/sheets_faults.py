@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from openpyxl.cell import WriteOnlyCell
+from openpyxl.cell.cell import ERROR_CODES
 from openpyxl.utils import get_column_letter
 
 from skipwise import sheetstyle as st
@@ -95,25 +96,37 @@ def write_faults_sheet(wb: Any, rows: pd.DataFrame, total: int, counts: pd.DataF
     ws = s.ws
     numeric_ids = case_ids and rows["case_id"].dtype.kind in "biuf"
 
-    def lines():
-        # Rows here are faults (capped), not respondents; the sheet API takes one row at a time.
-        for i in range(n_lines):
-            if i < shown:
-                if formula_like[i]:
-                    line = [text_cell(ws, columns[k][i]) if isinstance(columns[k][i], str)
-                            else st.plain(columns[k][i]) for k in keys]
-                else:
-                    line = [st.plain(columns[k][i]) for k in keys]
-                if numeric_ids:
-                    line[0] = id_cell(ws, line[0])
+    def line(i: int) -> list:
+        # Rows here are faults (capped), not respondents: one row, cell by cell, where the columns cannot say it.
+        if i < shown:
+            if formula_like[i]:
+                row = [text_cell(ws, columns[k][i]) if isinstance(columns[k][i], str)
+                       else st.plain(columns[k][i]) for k in keys]
             else:
-                line = [None] * n_list
-            if i < len(counts):
-                line.append(None)
-                line += [text_cell(ws, count_values[i, 0])] + [int_cell(ws, v) for v in count_values[i, 1:]]
-            yield line
+                row = [st.plain(columns[k][i]) for k in keys]
+            if numeric_ids:
+                row[0] = id_cell(ws, row[0])
+        else:
+            row = [None] * n_list
+        if i < len(counts):
+            row.append(None)
+            row += [text_cell(ws, count_values[i, 0])] + [int_cell(ws, v) for v in count_values[i, 1:]]
+        return row
 
-    s.stream(lines(), n_lines, len(head_names))
+    # The listing column by column; row by row (line) only beside the counts, and where a stored text
+    # would read as a formula or an error value as a plain value.
+    fast = np.zeros(n_lines, dtype=bool)
+    fast[len(counts):shown] = True
+    listing = []
+    for k in keys:
+        if k == "case_id" and numeric_ids and rows[k].dtype.kind != "b":
+            listing.append(st.Column("number", rows[k].to_numpy(), "0"))
+        elif k == "case_id" and numeric_ids:
+            fast[:] = False
+        else:
+            listing.append(st.Column("text", columns[k]))
+            fast[:shown] &= ~formula_like & ~np.isin(columns[k], ERROR_CODES)
+    s.columns(line, n_lines, len(head_names), fast, listing)
     s.close(print_rows=print_rows)
     if ref.last_row >= ref.first_row:
         s.ws.auto_filter.ref = f"A{ref.header_row}:{get_column_letter(n_list)}{ref.header_row + max(shown, 1)}"
