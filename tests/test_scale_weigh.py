@@ -309,7 +309,7 @@ def test_auto_with_a_folder_data_and_a_file_out_is_refused(data, tmp_path):
     root, _ = data
     plan = tmp_path / "plan.yaml"
     plan.write_text(PLANS["trim-spread"], encoding="utf-8")
-    for name in ("w.parquet", "w.sav"):
+    for name in ("w.parquet", "w.sav", "w"):  # "w": a folder OUT needs an explicit --engine dask
         res = CliRunner().invoke(app, ["weigh", str(root / "parts"), "-p", str(plan), "-o", str(tmp_path / name),
                                        "--engine", "auto", "--scheduler", "tcp://127.0.0.1:1"])
         assert res.exit_code == 1 and "never changes the form of the output" in res.output, res.output

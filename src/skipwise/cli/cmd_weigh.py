@@ -28,10 +28,10 @@ HELP = (
 )
 ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': weigh the partitions on a Dask "
                "cluster; DATA may be a Parquet file, folder or glob, or one .sav, .zsav, .dta, .sas7bdat or .csv file "
-               "(converted to Parquet parts first), and OUT names a folder of Parquet parts. 'auto': the dask "
-               "engine for a folder or glob of parts and a folder OUT, else in memory (saying so when the data "
-               "is over the memory budget: auto never changes the form of the output, so a folder or glob DATA "
-               "with a file OUT is refused).")
+               "(converted to Parquet parts first), and OUT names a folder of Parquet parts. 'auto': in memory "
+               "(saying so when the data is over the memory budget): auto never changes the form of the output, "
+               "and the dask engine's weigh writes a folder, which needs an explicit --engine dask; a folder or "
+               "glob DATA, which only the dask engine reads, is refused with --engine auto.")
 
 
 @app.command("weigh", help=HELP)

@@ -32,7 +32,8 @@ ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': wor
                "cluster; DATA may be a Parquet file, a folder or a glob of Parquet files, or one .sav, .zsav, "
                ".dta, .sas7bdat or .csv file (converted to Parquet parts in one pass first). 'auto': dask when "
                "the file would not fit the memory budget ($SKIPWISE_MEMORY_BUDGET, default: the memory "
-               "available) and the output allows it; it says so, and never changes the form of the output.")
+               "available) and the output allows it; it says so, and never changes the form of the output (a "
+               "folder or glob DATA goes to dask, and a folder OUT needs an explicit --engine dask).")
 SCHEDULER_HELP = ("Address of a running Dask scheduler (e.g. tcp://10.0.0.5:8786); default: $SKIPWISE_SCHEDULER, "
                   "else a local cluster on this machine, started and stopped by the command.")
 PARTITION_HELP = "Rows per partition at most, where a file's row groups allow splitting it (dask engine)."
