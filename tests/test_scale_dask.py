@@ -384,18 +384,10 @@ def test_classify_gives_the_invalid_hint_from_the_counts_of_every_partition(clie
     from the partitions' counts added up: the first file has no invalid cell, the second and third differ in
     their worst item, so only the whole file's counts give the in-memory figures and order. The number of
     invalid cells is pandas' own count of values outside [0, 10]."""
-    import textwrap
+    from test_invalid_hint import Q  # the same two-item questionnaire as the in-memory hint's tests
 
     q = tmp_path / "q.yaml"
-    q.write_text(textwrap.dedent("""\
-        format: 1
-        survey: {name: t, case_id: id}
-        sections:
-          - name: s
-            items:
-              - {name: a, type: integer, range: [0, 10]}
-              - {name: b, type: integer, range: [0, 10]}
-        """))
+    q.write_text(Q)
     n = 1200
     frame = pd.DataFrame({"id": np.arange(1, n + 1), "a": np.ones(n, dtype=np.int64), "b": np.ones(n, dtype=np.int64)})
     frame.loc[[410, 500, 610, 700, 790, 805, 830, 860, 890, 900, 950], "b"] = 99   # second file
