@@ -24,10 +24,13 @@ test: $(STAMP)
 
 # The speed table's workloads (benchmarks/README.md); SKIPWISE_BENCH_SCALE scales the cases.
 BENCH_TABLE := classify faults cli_sav recoded_dta report little pmm
+bench: SHELL := /bin/bash
 bench: $(STAMP)
-	@for b in $(BENCH_TABLE); do echo "== benchmarks/bench_$$b.py"; \
-	  $(BIN)/python benchmarks/bench_$$b.py | tee -a .bench.log || exit 1; done; \
-	echo "== summary"; grep '^RESULT' .bench.log; rm -f .bench.log
+	@set -o pipefail; rm -f .bench.log; start=$$(date +%s); for b in $(BENCH_TABLE); do echo "== benchmarks/bench_$$b.py"; t=$$(date +%s); \
+	  $(BIN)/python benchmarks/bench_$$b.py | tee -a .bench.log || exit 1; \
+	  echo "   (bench_$$b.py took $$(( $$(date +%s) - t )) s)" | tee -a .bench.log; done; \
+	echo "== summary"; grep -e '^RESULT' -e 'took' .bench.log; \
+	echo "make bench took $$(( $$(date +%s) - start )) s"; rm -f .bench.log
 
 bench-all: bench
 	$(BIN)/python benchmarks/bench_weighting.py

@@ -3,11 +3,14 @@
 Figure: wall time and peak memory (largest resident set) of the command in a child process on
 bench_classify's routed survey of 1,000,000 x 200 (stored values that follow the routing, about
 3.7 M routing faults: the speed issue's file; bench_faults.py times the listing of the 60 M-fault
-worst case).  Floors measured in the same run: pyreadstat's read of the
-input .sav, and pyreadstat's write of the command's result frame (the data plus 200 status
-columns).  Targets: at most 1.2x (read + write floors); peak at most 2x the frame in memory, or
-the reader's own peak where that is higher (pyreadstat's read_sav alone, in a child process of
-its own, peaks above 2x the frame it returns).
+worst case).  Floors measured in the same run, after the command, in one child process of their
+own: pyreadstat's read of the input .sav, and pyreadstat's write of the command's result frame
+(the data plus 200 status columns, made by the API between the two timed calls).  Targets: at
+most 1.2x (read + write floors); peak at most 2x the frame in memory, or the reader's own peak where that is higher (pyreadstat's read_sav alone, in a child process of
+its own, peaks above 2x the frame it returns; the floors' child measures that peak right after
+its read).  The input .sav is set-up, written before the clock starts by ``_sav.write_numeric_sav``
+(the bytes pyreadstat writes, checked against pyreadstat on a slice, in seconds instead of two
+minutes).
 Also printed: the CPU seconds of the command and of the floors (the figures to compare on a
 shared machine) and the size of the fault listing the command writes beside the data (the floors
 write no listing).
@@ -28,16 +31,33 @@ from pathlib import Path
 import numpy as np
 import pyreadstat
 
-from _common import children_peak_mb, cpu_of, result, scaled
+from _common import children_peak_mb, result, scaled
+from _sav import write_numeric_sav
 from bench_classify import routed_survey
+
+#: The floors' child process: argv = input .sav, questionnaire, floor .sav.  It prints five numbers:
+#: the read's wall and CPU seconds, its own peak (MB) right after the read (the reader's peak),
+#: and the write's wall and CPU seconds.
+FLOORS = """
+import resource, sys, time
+from pathlib import Path
+import pyreadstat
+
+def timed(fn):
+    w, c = time.perf_counter(), time.process_time()
+    out = fn()
+    return time.perf_counter() - w, time.process_time() - c, out
+
+read, read_cpu, (data, _) = timed(lambda: pyreadstat.read_sav(sys.argv[1], user_missing=True))
+peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024     # skipwise not imported yet
 from skipwise.classify import classify
 from skipwise.classify.export import with_status_columns
 from skipwise.questionnaire import loads_questionnaire
-
-
-#: A child process that reads the file as the command does and prints its own peak (MB).
-READER_PEAK = ("import resource, sys, pyreadstat; pyreadstat.read_sav(sys.argv[1], user_missing=True); "
-               "print(resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024)")
+res, _ = with_status_columns(data, classify(data, loads_questionnaire(Path(sys.argv[2]).read_text())))
+del data
+write, write_cpu, _ = timed(lambda: pyreadstat.write_sav(res, sys.argv[3]))
+print(read, read_cpu, peak, write, write_cpu)
+"""
 
 
 def _children_cpu() -> float:
@@ -57,13 +77,8 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         src, qfile, out = Path(tmp) / "big.sav", Path(tmp) / "q.yaml", Path(tmp) / "out.sav"
         qfile.write_text(text)
-        pyreadstat.write_sav(data, str(src))
+        write_numeric_sav(data, src)
         del data
-        read, read_cpu, (data, _) = cpu_of(lambda: pyreadstat.read_sav(str(src), user_missing=True))
-        res, _ = with_status_columns(data, classify(data, loads_questionnaire(text)))
-        del data
-        write, write_cpu, _ = cpu_of(lambda: pyreadstat.write_sav(res, str(Path(tmp) / "floor.sav")))
-        del res
         skipwise = [sys.executable, "-m", "skipwise"]
         c0 = _children_cpu()
         t0 = time.perf_counter()
@@ -75,10 +90,11 @@ def main() -> None:
         if done.returncode != 0:
             print(done.stdout, done.stderr)
             raise SystemExit("the command failed")
-        peak = children_peak_mb()
-        reader = subprocess.run([sys.executable, "-c", READER_PEAK, str(src)], capture_output=True, text=True,
-                                check=True)
-        reader_peak = float(reader.stdout.split()[-1])
+        peak = children_peak_mb()                       # before the floors' child runs
+        out.unlink()
+        floors = subprocess.run([sys.executable, "-c", FLOORS, str(src), str(qfile), str(Path(tmp) / "floor.sav")],
+                                capture_output=True, text=True, check=True)
+        read, read_cpu, reader_peak, write, write_cpu = map(float, floors.stdout.split()[-5:])
     floor = read + write
     limit = max(2 * frame_mb, reader_peak)
     print(f"classify .sav -> .sav : {secs:.1f} s, peak {peak:,.0f} MB ({peak / frame_mb:.2f}x the {frame_mb:,.0f} MB frame)")

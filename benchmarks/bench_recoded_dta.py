@@ -41,17 +41,29 @@ from skipwise.questionnaire import loads_questionnaire
 
 
 def pyreadstat_form(out: pd.DataFrame) -> tuple[pd.DataFrame, dict[str, list[str]]]:
-    """The recoded frame as pyreadstat writes it: bare letters, and the letters each column holds."""
+    """The recoded frame as pyreadstat writes it: bare letters, and the letters each column holds.
+
+    The cells are object arrays (numbers and bare letters); a categorical column of the recoded
+    frame is stripped in its categories and then expanded, so no Python code runs per cell.
+    """
     columns, letters = {}, {}
     for col in out.columns:
-        values = out[col].to_numpy()
-        if values.dtype == object:
-            is_letter = np.fromiter(map(type, values), dtype=object, count=len(values)) == str
+        values = out[col]
+        codes = None
+        if isinstance(values.dtype, pd.CategoricalDtype):
+            cells = np.append(np.array(values.cat.categories, dtype=object), np.nan)
+            codes = values.cat.codes.to_numpy()            # -1 (a gap) takes the appended NaN
+        else:
+            cells = values.to_numpy()
+        if cells.dtype == object:
+            is_letter = np.fromiter(map(type, cells), dtype=object, count=len(cells)) == str
             if is_letter.any():
-                values = values.copy()
-                values[is_letter] = [v[1:] for v in values[is_letter]]
-                letters[col] = sorted(set(values[is_letter]))
-        columns[col] = values
+                cells = cells.copy()
+                cells[is_letter] = [v[1:] for v in cells[is_letter]]
+                used = np.zeros(len(cells), dtype=bool)
+                used[np.unique(codes) if codes is not None else slice(None)] = True
+                letters[col] = sorted(set(cells[is_letter & used]))
+        columns[col] = cells if codes is None else cells[codes]
     return pd.DataFrame(columns, copy=False), letters
 
 
