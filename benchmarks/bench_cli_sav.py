@@ -6,11 +6,11 @@ bench_classify's routed survey of 1,000,000 x 200 (stored values that follow the
 worst case).  Floors measured in the same run, after the command, in one child process of their
 own: pyreadstat's read of the input .sav, and pyreadstat's write of the command's result frame
 (the data plus 200 status columns, made by the API between the two timed calls).  Targets: at
-most 1.2x (read + write floors); peak at most 2x the frame in memory, or the reader's own peak where that is higher (pyreadstat's read_sav alone, in a child process of
-its own, peaks above 2x the frame it returns; the floors' child measures that peak right after
-its read).  The input .sav is set-up, written before the clock starts by ``_sav.write_numeric_sav``
-(the bytes pyreadstat writes, checked against pyreadstat on a slice, in seconds instead of two
-minutes).
+most 1.2x (read + write floors); peak at most 2x the frame in memory, or the reader's own peak
+where that is higher (pyreadstat's read_sav alone peaks above 2x the frame it returns; the
+floors' child measures that peak right after its read, before it imports skipwise).  The input
+.sav is set-up, written before the clock starts by ``_sav.write_numeric_sav`` (the bytes
+pyreadstat writes, checked against pyreadstat on a slice, in seconds instead of two minutes).
 Also printed: the CPU seconds of the command and of the floors (the figures to compare on a
 shared machine) and the size of the fault listing the command writes beside the data (the floors
 write no listing).
