@@ -15,7 +15,9 @@ import pytest
 from openpyxl import load_workbook
 
 from sheetread import table
-from skipwise.sheetstyle import FONT_NAME, MARK, PCT
+from openpyxl.utils import get_column_letter
+
+from skipwise.sheetstyle import FONT_NAME, MARK, MIN_PRINT_SCALE, PAGE_WIDTH_UNITS, PCT, pages_wide
 
 BOOKS = ("item_report", "diagnostics", "weighting")
 FONTS = {FONT_NAME, "Liberation Sans"}
@@ -65,7 +67,13 @@ def test_print_setup_and_panes(books, name):
     for ws in books[name]:
         ps = ws.page_setup
         assert ps.orientation == "landscape", ws.title
-        assert ps.fitToWidth == 1 and ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+        assert ws.sheet_properties.pageSetUpPr.fitToPage, ws.title
+        widths = [ws.column_dimensions[get_column_letter(j)].width for j in range(1, ws.max_column + 1)]
+        # one page wide unless that would print below the smallest readable scale
+        assert (ps.fitToWidth == 1) == (sum(widths) <= PAGE_WIDTH_UNITS[True] / MIN_PRINT_SCALE), ws.title
+        assert sum(widths) / ps.fitToWidth <= PAGE_WIDTH_UNITS[True] / MIN_PRINT_SCALE, ws.title
+        if ps.fitToWidth > 1:
+            assert ps.pageOrder == "overThenDown", ws.title
         assert "&A" in ws.oddFooter.center.text and "&P" in ws.oddFooter.center.text, ws.title
         if ws.auto_filter.ref:
             header_row = int(re.match(r"[A-Z]+(\d+):", ws.auto_filter.ref).group(1))
@@ -193,3 +201,18 @@ def test_label_of_a_wrapped_text_sits_level_with_its_first_line(books):
     assert notes
     assert all(c.alignment.vertical == "top" for c in notes)
     assert all(r[1].alignment.wrap_text for r in ws.iter_rows() if r[0].value == "Note")
+
+
+def test_wide_items_sheet_prints_on_readable_pages_with_its_key_columns(books):
+    ws = books["item_report"]["Items"]  # 39 columns, about 560 width units: 27% on one page
+    assert ws.page_setup.fitToWidth >= 2
+    assert ws.print_title_cols == "$A:$B"  # section and item on every page
+    assert ws.freeze_panes.startswith("C")
+
+
+def test_pages_wide_by_hand():
+    # room per page at the smallest scale: 150 / 0.6 = 250 units
+    assert pages_wide([10] * 25, 2, 150.0) == (1, 0)  # 250 units fit
+    assert pages_wide([10] * 26, 2, 150.0) == (2, 2)  # (260 - 20) / (250 - 20) = 1.04 -> 2
+    assert pages_wide([10] * 60, 2, 150.0) == (3, 2)  # (600 - 20) / 230 = 2.52 -> 3
+    assert pages_wide([130, 200], 1, 150.0) == (2, 0)  # a 130-unit key column is not repeated: 330 / 250

@@ -6,7 +6,9 @@ explanation of what its numbers are and over which denominator, and a source
 line where a published method is used; tables get human headers, a number
 format on every numeric cell, column widths that fit their headers, a frozen
 header row, an auto filter and print titles; every sheet prints landscape,
-one page wide, with the sheet name and page number in the footer.
+one page wide (or, for a table too wide to be read at that scale, as few pages
+wide as keep the print readable, with its key columns repeated on each page),
+with the sheet name and page number in the footer.
 
 Rows are buffered and written when the sheet is closed, so the same code
 serves openpyxl's normal and streaming (write-only) workbooks: column widths,
@@ -89,6 +91,29 @@ _ILLEGAL = re.compile(r"[\000-\010\013\014\016-\037]")
 SHORT_SHEET_ROWS = 40
 #: Characters of explanation per printed line (landscape A4 at the usual scale).
 LINE_CHARS = 125
+#: Column-width units across the printable width of an A4 page at 100% (11.69 or 8.27 in less the
+#: sheets' 0.4 in margins, at about 0.073 in per unit of the default font): landscape, portrait.
+PAGE_WIDTH_UNITS = {True: 150.0, False: 102.0}
+#: The smallest print scale a reader can still read at arm's length (common practice, no source).
+MIN_PRINT_SCALE = 0.6
+
+
+def pages_wide(widths: Sequence[float], repeated: int, page_units: float) -> tuple[int, int]:
+    """How many pages wide a table prints so that its scale stays at or above ``MIN_PRINT_SCALE``.
+
+    ``widths`` are the column widths, the first ``repeated`` of which are the table's key columns;
+    ``page_units`` is the width of one page at 100%.  Returns the number of pages (one when the
+    table fits at the smallest readable scale) and how many key columns print again on every
+    page (none when they would take half a page or more).
+    """
+    room = page_units / MIN_PRINT_SCALE
+    total = float(sum(widths))
+    if total <= room:
+        return 1, 0
+    titles = float(sum(widths[:repeated]))
+    if titles >= room / 2:
+        repeated, titles = 0, 0.0
+    return math.ceil((total - titles) / (room - titles)), repeated
 
 
 def clean_text(value: object) -> str:
@@ -620,8 +645,14 @@ class SheetWriter:
         ps = ws.page_setup
         ps.orientation = "landscape" if landscape else "portrait"
         ps.paperSize = "9"  # A4
-        ps.fitToWidth = 1
-        # a short sheet prints on one page; a long one one page wide, as many pages tall as it needs
+        ps.fitToWidth, repeated = pages_wide([max(self._width(j), 4) for j in range(1, ncols + 1)],
+                                             self._freeze_col - 1 if main is not None else 0,
+                                             PAGE_WIDTH_UNITS[landscape])
+        if ps.fitToWidth > 1:  # each row's pages follow one another, the key columns on every page
+            ps.pageOrder = "overThenDown"
+        if repeated:
+            ws.print_title_cols = f"A:{get_column_letter(repeated)}"
+        # a short sheet prints on one page; a long one as many pages tall as it needs
         ps.fitToHeight = 1 if self._n <= SHORT_SHEET_ROWS and print_rows is None else 0
         ws.sheet_properties.pageSetUpPr.fitToPage = True
         ws.print_options.gridLines = False

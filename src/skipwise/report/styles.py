@@ -177,11 +177,3 @@ def frame_rows(ws: Any, frame: Any, formats: dict[str, str] | None = None, *, wr
             else:
                 row.append(value_cell(ws, v, fmt))
         yield row
-
-
-def printable(ws) -> None:
-    """Landscape, one page wide: so the workbook also prints and converts to PDF legibly."""
-    ws.page_setup.orientation = "landscape"
-    ws.page_setup.fitToWidth = 1
-    ws.page_setup.fitToHeight = 0
-    ws.sheet_properties.pageSetUpPr.fitToPage = True
