@@ -239,7 +239,7 @@ def test_bad_data_problems_are_collected_over_all_partitions(data, client, tmp_p
     assert "margin variable 'regoin' is not a column of the data" in text and "region" in text
 
 
-def test_cli_weighs_on_the_cluster_and_refuses_what_it_does_not_do(data, client, tmp_path):
+def test_cli_weighs_on_the_cluster_and_refuses_what_it_cannot_do(data, client, tmp_path):
     root, frame = data
     plan = tmp_path / "plan.yaml"
     plan.write_text(PLANS["trim-spread"], encoding="utf-8")
@@ -260,8 +260,9 @@ def test_cli_weighs_on_the_cluster_and_refuses_what_it_does_not_do(data, client,
                      encoding="utf-8")
     res = runner.invoke(app, ["weigh", str(root / "parts"), "-p", str(split), "-o", str(tmp_path / "e"),
                               "--engine", "dask"])
+    # as in memory: an interview split needs the questionnaire (the share of items answered)
     assert res.exit_code == 1 and "interview" in res.output and not (tmp_path / "e").exists()
-    assert "--engine memory" in res.output
+    assert "pass -q QUESTIONNAIRE" in res.output and "Traceback" not in res.output
 
 
 @pytest.mark.parametrize("ext", [".sav", ".csv"])

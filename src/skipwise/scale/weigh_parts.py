@@ -59,6 +59,8 @@ class PartCensus:
     unmapped: dict = field(default_factory=dict)
     bad_base: int = 0
     bad_base_ids: tuple = ()
+    bad_share: int = 0                     # interviews split without a usable share answered
+    bad_share_ids: tuple = ()
     counts: dict = field(default_factory=dict)
     counts_weighted: dict = field(default_factory=dict)
     elig_keys: list = field(default_factory=list)
@@ -117,19 +119,59 @@ def _attempt(problems: list[Problem], fn, *args, **kwargs):
         return None
 
 
-def prepare_part(part, plan: WeightingPlan, offset: int,
-                 dtypes: dict[str, str] | None = None) -> tuple[PartState, PartCensus]:
+def _classified(part, plan: WeightingPlan, offset: int, q, meta, dtypes) -> tuple[pd.DataFrame, pd.Series]:
+    """The plan's columns of one partition and its cases' share answered, by the in-memory classifier.
+
+    Classification is row-local, so each case's share of applicable items answered is the one
+    the in-memory engine finds classifying the whole file.  The whole partition is read (the
+    questionnaire's items too); only the plan's columns are kept.
+    """
+    from skipwise.classify import classify
+    from skipwise.scale.sources import read_part
+
+    whole = read_part(part, meta, dtypes)
+    whole.index = pd.RangeIndex(offset, offset + len(whole))
+    cl = classify(whole, q)
+    keep = [c for c in plan_columns(plan) if c in whole.columns]
+    return whole[keep], cl.cases["share_answered"]
+
+
+def _split(outcome: np.ndarray, share: pd.Series, plan: WeightingPlan, census: dict) -> np.ndarray:
+    """The plan's interview split on one partition; cases without a usable share are counted, not split."""
+    from skipwise.weighting.outcomes import bad_shares
+    from skipwise.weighting.pipeline import split_interviews
+
+    sel = pd.Series(outcome).isin(plan.dispositions.split.applies_to).to_numpy()
+    bad = bad_shares(share[sel])
+    if bad.any():
+        census["bad_share"] = int(bad.sum())
+        census["bad_share_ids"] = tuple(v.item() if hasattr(v, "item") else v for v in share.index[sel][bad][:5])
+        return outcome
+    return split_interviews(outcome, share, plan)
+
+
+def prepare_part(part, plan: WeightingPlan, offset: int, dtypes: dict[str, str] | None = None, q=None,
+                 meta=None) -> tuple[PartState, PartCensus]:
     """Read one partition and encode it; ``offset`` is its first row's position in the file.
 
-    ``dtypes``: the whole file's column types when the partitions were converted
-    (:mod:`skipwise.scale.convert`).
+    ``dtypes``, ``meta``: the whole file's column types and metadata when the partitions were
+    converted (:mod:`skipwise.scale.convert`).  ``q``: the questionnaire, when given the
+    partition is classified and the plan's interview split applied from each case's share
+    of applicable items answered.
     """
-    frame = _read(part, plan_columns(plan), dtypes)
-    frame.index = pd.RangeIndex(offset, offset + len(frame))  # case positions in the file, as in memory
+    share = None
+    if q is not None:
+        frame, share = _classified(part, plan, offset, q, meta, dtypes)
+    else:
+        frame = _read(part, plan_columns(plan), dtypes)
+        frame.index = pd.RangeIndex(offset, offset + len(frame))  # case positions in the file, as in memory
     problems: list[Problem] = []
     n = len(frame)
     outcome, no_disp, unmapped = disposition_outcomes(frame[plan.dispositions.column], plan) \
         if plan.dispositions.column in frame.columns else (np.full(n, None, dtype=object), 0, {})
+    split_census: dict = {}
+    if plan.dispositions.split is not None and share is not None:
+        outcome = _split(outcome, share, plan, split_census)
     respondent = np.isin(outcome, respondent_categories(plan))
     eligible = np.isin(outcome, ELIGIBLE)
     unknown = np.isin(outcome, UNKNOWN)
@@ -141,10 +183,11 @@ def prepare_part(part, plan: WeightingPlan, offset: int,
     ids = (frame[plan.case_id] if plan.case_id and plan.case_id in frame.columns else frame.index.to_series())[bad]
     census = dict(rows=n, no_disposition=no_disp, unmapped=unmapped, bad_base=int(bad.sum()),
                   bad_base_ids=tuple(v.item() if hasattr(v, "item") else v for v in ids.iloc[:5]),
-                  respondents=int(respondent.sum()), eligible=int(eligible.sum()), unknown=int(unknown.sum()))
+                  respondents=int(respondent.sum()), eligible=int(eligible.sum()), unknown=int(unknown.sum()),
+                  **split_census)
     state = dict(n=n, outcome=outcome, respondent=respondent, eligible=eligible, known=known, unknown=unknown,
                  base=base)
-    if not no_disp and not unmapped and not bad.any():
+    if not no_disp and not unmapped and not bad.any() and not split_census:
         cats = pd.Series(outcome, dtype=object)
         census["counts"] = count_outcomes(cats)
         census["counts_weighted"] = count_outcomes(cats, base)

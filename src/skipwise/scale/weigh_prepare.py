@@ -87,17 +87,21 @@ def _merge_problems(problems: list[Problem]) -> list[Problem]:
     return out
 
 
-def prepare_on_cluster(client, parts: list, plan: WeightingPlan,
-                       dtypes: dict[str, str] | None = None) -> tuple[Dist, Encoded]:
+def prepare_on_cluster(client, parts: list, plan: WeightingPlan, dtypes: dict[str, str] | None = None, *,
+                       questionnaire=None, meta=None) -> tuple[Dist, Encoded]:
     """Read and encode every partition on the workers; check the merged census on the client.
 
-    ``dtypes``: the whole file's column types of converted input (:mod:`skipwise.scale.convert`).
+    ``dtypes``, ``meta``: the whole file's column types and metadata of converted input
+    (:mod:`skipwise.scale.convert`).  ``questionnaire``: every partition is classified on its
+    worker (for the plan's interview split).
     """
     from skipwise.scale.weigh_replicates import design_of
+    from skipwise.weighting.outcomes import bad_share_problem
 
     offsets = np.concatenate([[0], np.cumsum([p.rows for p in parts])])
-    plan_future = client.scatter(plan, broadcast=True)
-    pairs = [client.submit(wp.prepare_part, p, plan_future, int(offsets[i]), dtypes, pure=False) for i, p in enumerate(parts)]
+    plan_future, q_future, meta_future = client.scatter([plan, questionnaire, meta], broadcast=True)
+    pairs = [client.submit(wp.prepare_part, p, plan_future, int(offsets[i]), dtypes, q_future, meta_future,
+                           pure=False) for i, p in enumerate(parts)]
     census = client.gather([client.submit(wp.census_of, f, pure=False) for f in pairs])
     states = [client.submit(wp.state_of, f, pure=False) for f in pairs]
     problems = _merge_problems([p for c in census for p in c.problems])
@@ -106,6 +110,9 @@ def prepare_on_cluster(client, parts: list, plan: WeightingPlan,
         for k, v in c.unmapped.items():
             unmapped[k] = unmapped.get(k, 0) + v
     problems += disposition_problems(plan, sum(c.no_disposition for c in census), unmapped)
+    bad_share = sum(c.bad_share for c in census)
+    if bad_share:  # counted over the file, the first cases in file order, as the in-memory engine names them
+        problems.append(bad_share_problem(bad_share, [i for c in census for i in c.bad_share_ids][:5]))
     bad = sum(c.bad_base for c in census)
     if bad:
         column, what, upper = base_source(plan.base_probability, plan.base_weight)

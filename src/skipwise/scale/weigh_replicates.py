@@ -61,16 +61,15 @@ def design_of(plan, census: list) -> tuple[object, list]:
     return design, unit_map
 
 
-def refuse_unsupported(plan) -> None:
-    """What the dask engine does not do yet, refused before any work."""
-    problems = []
-    if plan.dispositions.split is not None:
-        problems.append(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="interview_split",
-                                file=plan.file, line=plan.line("dispositions", "interview_split"),
-                                message="the dask engine does not split interviews by the share of items answered",
-                                hint="use --engine memory, or remove interview_split from the plan"))
-    if problems:
-        raise SkipwiseError(problems)
+def refuse_unsupported(plan, questionnaire=None) -> None:
+    """What the dask engine cannot do with this plan, refused before any work.
+
+    An interview split needs the share of items answered, so the questionnaire (as in memory).
+    """
+    if plan.dispositions.split is not None and questionnaire is None:
+        from skipwise.weighting.pipeline import no_share_problem
+
+        raise SkipwiseError(no_share_problem(plan))
 
 
 # --- response propensity: the model matrix is gathered ----------------------------------------
@@ -232,12 +231,15 @@ def _write_part(part, state, index: int, staging: str, columns: dict, labels: di
 
 def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False, meta=None,
                      dtypes: dict[str, str] | None = None, note: Callable[[str], None] | None = None,
-                     on_design: Callable[[int], None] | None = None, progress: Callable[[int], None] | None = None):
+                     on_design: Callable[[int], None] | None = None, progress: Callable[[int], None] | None = None,
+                     questionnaire=None):
     """Weigh every partition of ``source`` by ``plan`` on the cluster; write the weighted parts into ``out``.
 
     ``meta`` and ``dtypes`` are the whole file's metadata and column types when the parts were
     converted from one SPSS, Stata, SAS or CSV file (:func:`skipwise.scale.convert.convert_to_parts`):
     every partition is read in those types and its part written with that metadata.
+    ``questionnaire``: every partition is classified on its worker, as ``weigh -q`` classifies the
+    file in memory; the plan's interview split uses each case's share of applicable items answered.
 
     Returns a :class:`skipwise.scale.weigh.DaskWeighResult` (figures and tables for the
     workbook and the console; the weights stay in the parts).
@@ -253,11 +255,16 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
 
     import pyarrow.parquet as pq
 
-    refuse_unsupported(plan)
+    refuse_unsupported(plan, questionnaire)
     names = list(pq.ParquetFile(parts[0].path).schema_arrow.names)
     check_generated(planned_weight_columns(plan, names), names)
     _check_parts_folder(Path(out), overwrite)
-    dist, enc = prepare_on_cluster(client, parts, plan, dtypes)
+    if questionnaire is not None:
+        from skipwise.classify import check_columns
+        from skipwise.scale.sources import Part, read_part
+
+        check_columns(read_part(Part(parts[0].path, (), 0), meta, dtypes), questionnaire)  # columns only, no rows
+    dist, enc = prepare_on_cluster(client, parts, plan, dtypes, questionnaire=questionnaire, meta=meta)
     chain = ClusterChain(dist, enc, plan, note=note)
     stages, result = chain.run()
     p = plan.prefix

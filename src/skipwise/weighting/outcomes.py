@@ -22,7 +22,7 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 
 __all__ = [
     "OUTCOME_CATEGORIES", "OUTCOME_NUMBERS", "OUTCOME_VALUE_LABELS", "REQUIRED_COUNTS", "E_METHOD_GIVEN", "E_METHOD_ESTIMATED",
-    "outcome_rates", "interview_outcome", "count_outcomes",
+    "outcome_rates", "interview_outcome", "count_outcomes", "bad_shares", "bad_share_problem",
 ]
 
 #: Categories a disposition can map to, in the standard's order.
@@ -177,16 +177,27 @@ def interview_outcome(share_answered: pd.Series, *, breakoff_below: float = 0.5,
             code=ProblemCode.BAD_VALUE, category=Category.USAGE, item="interview_split",
             message=f"cut-points must satisfy 0 <= breakoff_below ({breakoff_below}) <= "
                     f"complete_above ({complete_above}) <= 1"))
-    share = pd.to_numeric(share_answered, errors="coerce").to_numpy(dtype=float)
-    bad = np.isnan(share) | (share < 0) | (share > 1)
+    share, bad = _shares(share_answered)
     if bad.any():
-        ids = list(share_answered.index[bad][:5])
-        raise SkipwiseError(Problem(
-            code=ProblemCode.BAD_DATA, category=Category.DATA, item="share_answered",
-            message=f"{int(bad.sum())} case(s) have no share of items answered between 0 and 1 "
-                    f"(first: {ids})"))
+        raise SkipwiseError(bad_share_problem(int(bad.sum()), list(share_answered.index[bad][:5])))
     out = np.where(share > complete_above, "I", np.where(share < breakoff_below, "breakoff", "P"))
     return pd.Series(out, index=share_answered.index, dtype=object, name="interview_outcome")
+
+
+def _shares(share_answered: pd.Series) -> tuple[np.ndarray, np.ndarray]:
+    share = pd.to_numeric(share_answered, errors="coerce").to_numpy(dtype=float)
+    return share, np.isnan(share) | (share < 0) | (share > 1)
+
+
+def bad_shares(share_answered: pd.Series) -> np.ndarray:
+    """Row-local: the cases whose share answered is missing or outside 0..1 (:func:`interview_outcome` refuses them)."""
+    return _shares(share_answered)[1]
+
+
+def bad_share_problem(count: int, first_ids: list) -> Problem:
+    """The problem of ``count`` cases without a usable share answered (``first_ids``: the first five cases)."""
+    return Problem(code=ProblemCode.BAD_DATA, category=Category.DATA, item="share_answered",
+                   message=f"{count} case(s) have no share of items answered between 0 and 1 (first: {first_ids})")
 
 
 def count_outcomes(categories: pd.Series, weights: np.ndarray | pd.Series | None = None) -> dict[str, float]:

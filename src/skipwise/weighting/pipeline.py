@@ -23,7 +23,7 @@ from skipwise.weighting.propensity import PropensityFit, fit_propensity, propens
 from skipwise.weighting.trim import TrimResult, trim_weights
 
 __all__ = ["disposition_outcomes", "disposition_problems", "respondent_categories", "Prepared", "ChainResult", "Structure", "prepare", "run_chain", "chain_weights", "outcome_categories",
-           "STAGES"]
+           "STAGES", "no_share_problem", "split_interviews"]
 
 ELIGIBLE = ("I", "P", "R", "NC", "O")
 UNKNOWN = ("UH", "UO")
@@ -93,17 +93,32 @@ def outcome_categories(frame: pd.DataFrame, plan: WeightingPlan, share_answered:
     out = pd.Series(outcomes, index=frame.index, dtype=object, name="outcome")
     if spec.split is not None:
         if share_answered is None:
-            raise SkipwiseError(Problem(code=ProblemCode.MISSING_KEY, category=Category.USAGE,
-                                        item="interview_split", file=plan.file,
-                                        line=plan.line("dispositions", "interview_split"),
-                                        message="the plan splits interviews by share of items answered, "
-                                                "but no questionnaire (share answered) was given",
-                                        hint="pass -q QUESTIONNAIRE or remove interview_split"))
-        sel = out.isin(spec.split.applies_to).to_numpy()
+            raise SkipwiseError(no_share_problem(plan))
         share = share_answered if share_answered.index.equals(frame.index) else share_answered.reindex(frame.index)
-        split = interview_outcome(share[sel], breakoff_below=spec.split.breakoff_below,
-                                  complete_above=spec.split.complete_above)
-        out[sel] = split.replace({"breakoff": spec.split.breakoff_to}).to_numpy()
+        out[:] = split_interviews(out.to_numpy(), share, plan)
+    return out
+
+
+def no_share_problem(plan: WeightingPlan) -> Problem:
+    """The plan splits interviews, but no share answered (no questionnaire) was given."""
+    return Problem(code=ProblemCode.MISSING_KEY, category=Category.USAGE, item="interview_split", file=plan.file,
+                   line=plan.line("dispositions", "interview_split"),
+                   message="the plan splits interviews by share of items answered, "
+                           "but no questionnaire (share answered) was given",
+                   hint="pass -q QUESTIONNAIRE or remove interview_split")
+
+
+def split_interviews(outcome: np.ndarray, share: pd.Series, plan: WeightingPlan) -> np.ndarray:
+    """Row-local: the plan's interview split applied to the outcome categories (``share`` aligned with them).
+
+    The cases of the categories the split applies to become complete, partial or the
+    category a break-off counts as (``breakoff_to``); every other case is kept.
+    """
+    split = plan.dispositions.split
+    out = np.array(outcome, dtype=object)
+    sel = pd.Series(out).isin(split.applies_to).to_numpy()  # (an unmapped disposition: None)
+    parts = interview_outcome(share[sel], breakoff_below=split.breakoff_below, complete_above=split.complete_above)
+    out[sel] = parts.replace({"breakoff": split.breakoff_to}).to_numpy()
     return out
 
 

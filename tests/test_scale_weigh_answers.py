@@ -1,0 +1,154 @@
+"""``weigh`` with a questionnaire on the dask engine: the interview split, estimates from answered cells.
+
+The reference is the in-memory engine on the same rows (itself checked against published formulas
+in tests/test_weighting_*.py): ``weigh -q`` in memory classifies the whole file, splits interviews by
+each case's share of applicable items answered and estimates from answered cells only. Identity
+(docs/scale.md): counts exactly, weights and estimates within 1e-9, the workbook's cells equal.
+Invented data; the cluster is test_scale_weigh's (2 workers on 127.0.0.1, free ports, stopped at the end).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+pytest.importorskip("distributed")
+
+from skipwise.classify import classify  # noqa: E402
+from skipwise.errors import SkipwiseError  # noqa: E402
+from skipwise.io import write_survey  # noqa: E402
+from skipwise.questionnaire import load_questionnaire  # noqa: E402
+from skipwise.scale.sources import parquet_parts  # noqa: E402
+from skipwise.scale.weigh_replicates import weigh_on_cluster  # noqa: E402
+from skipwise.weighting.plan import load_plan  # noqa: E402
+from skipwise.weighting.weigh import weigh  # noqa: E402
+from skipwise.weighting.workbook import write_workbook  # noqa: E402
+from test_scale_weigh import HEAD, MARGINS, _assert_same_workbook, _parts, client, make_frame  # noqa: E402,F401
+
+QUESTIONNAIRE = """\
+format: 1
+survey: {name: ponds, title: Invented pond visits, case_id: rid}
+context: [dispo]
+codes:
+  - {value: -9, reason: refused, kind: nonresponse}
+sections:
+  - name: visits
+    asked_if: dispo in [110, 120]
+    items:
+      - {name: q1, type: integer, range: [0, 9]}
+      - {name: q2, type: integer, range: [0, 9], asked_if: q1 >= 5}
+      - {name: q3, type: number, range: [0, 100]}
+      - {name: q4, type: integer, range: [1, 3]}
+      - {name: q5, type: integer, range: [0, 9], optional: true}
+"""
+SPLIT = "  interview_split: {breakoff_below: 0.5, complete_above: 0.8, breakoff_to: R}\n"
+PLANS = {
+    # the split feeds classes, raking, trimming and a stratified jackknife
+    "split-rake-jkn": HEAD.replace("  column: dispo\n", "  column: dispo\n" + SPLIT) + """\
+nonresponse: {method: classes, classes: [region, agegrp], min_respondents: 30}
+calibration:
+  method: rake
+""" + MARGINS + """\
+trimming: {median_multiple: 2.5}
+replicates: {method: jackknife, psu: psu, strata: stratum}
+""",
+    # partials do not respond; break-offs count as other eligible; bootstrap replicates
+    "split-partials-out": HEAD.replace("  column: dispo\n", "  column: dispo\n  partials_count_as_respondents: false\n"
+                                       + SPLIT.replace("breakoff_to: R", "breakoff_to: O")) + """\
+nonresponse: {method: classes, classes: [region]}
+replicates: {method: bootstrap, psu: psu, count: 5, seed: 4}
+""",
+}
+
+
+def answers_frame(n: int = 900, seed: int = 11) -> pd.DataFrame:
+    """test_scale_weigh's invented sample file with five answered items: refusals, blanks, off-route and
+    out-of-range answers, so the share answered spreads over the cut-points."""
+    frame = make_frame(n, seed)
+    rng = np.random.default_rng(seed + 1)
+    asked = frame["dispo"].isin([110, 120]).to_numpy()
+
+    def item(values: np.ndarray, p_refused: float, p_blank: float) -> np.ndarray:
+        u = rng.uniform(size=n)
+        out = np.where(u < p_refused, -9.0, np.where(u < p_refused + p_blank, np.nan, values.astype(float)))
+        return np.where(asked, out, np.nan)
+
+    q1 = item(rng.integers(0, 10, n), 0.15, 0.15)
+    q2 = item(rng.integers(0, 10, n), 0.1, 0.1)
+    q2 = np.where((q1 >= 5) | (rng.uniform(size=n) < 0.1), q2, np.nan)  # a few answers off route
+    q3 = item(np.round(rng.uniform(0, 120, n), 1), 0.2, 0.2)           # some above the range: invalid
+    q4 = item(rng.integers(1, 4, n), 0.3, 0.2)
+    q5 = item(rng.integers(0, 10, n), 0.0, 0.5)
+    return frame.assign(q1=q1, q2=q2, q3=q3, q4=q4, q5=q5)
+
+
+@pytest.fixture(scope="module")
+def answers(tmp_path_factory):
+    root = tmp_path_factory.mktemp("answers")
+    frame = answers_frame()
+    (root / "parts").mkdir()
+    for i, rows in enumerate(np.split(np.arange(len(frame)), [250, 610])):  # uneven: PSUs span parts
+        write_survey(frame.iloc[rows].reset_index(drop=True), root / "parts" / f"s-{i}.parquet")
+    qfile = root / "q.yaml"
+    qfile.write_text(QUESTIONNAIRE, encoding="utf-8")
+    return root, frame, load_questionnaire(qfile)
+
+
+def _in_memory(frame: pd.DataFrame, plan, q):
+    """What ``skipwise weigh -q`` does in memory (cli/cmd_weigh.py): classify the whole file, then weigh."""
+    from skipwise.pipeline.steps import answered_values
+
+    cl = classify(frame, q)
+    return weigh(frame, plan, share_answered=cl.cases["share_answered"],
+                 estimate_values=answered_values(cl, frame, plan))
+
+
+@pytest.mark.parametrize("name", list(PLANS))
+def test_interview_split_on_partitions_equals_the_in_memory_engine(answers, client, tmp_path, name):
+    root, frame, q = answers
+    plan = load_plan(text=PLANS[name])
+    mem = _in_memory(frame, plan, q)
+    # the split changes something: partials and break-offs among the dispositions mapped to I
+    assert 0 < mem.counts["P"] and mem.counts["I"] < (frame["dispo"] == 110).sum()
+    res = weigh_on_cluster(root / "parts", plan, tmp_path / "out", client=client,
+                           parts=parquet_parts(root / "parts"), questionnaire=q)
+    got = _parts(tmp_path / "out")
+    assert list(got.columns) == list(mem.data.columns)
+    assert res.counts == mem.counts and res.counts_weighted == pytest.approx(mem.counts_weighted, rel=1e-12)
+    assert (got["wt_outcome"].to_numpy() == mem.data["wt_outcome"].to_numpy()).all()
+    weights = list(mem.weight_columns[1:])
+    np.testing.assert_allclose(got[weights].to_numpy(), mem.data[weights].to_numpy(), rtol=0, atol=1e-9)
+    write_workbook(mem, tmp_path / "mem.xlsx")
+    write_workbook(res, tmp_path / "dask.xlsx")
+    _assert_same_workbook(tmp_path / "mem.xlsx", tmp_path / "dask.xlsx")
+
+
+def test_split_without_a_questionnaire_or_a_share_is_refused_as_in_memory(answers, client, tmp_path):
+    root, frame, q = answers
+    plan = load_plan(text=PLANS["split-partials-out"])
+    with pytest.raises(SkipwiseError) as mem_err:
+        weigh(frame, plan)
+    with pytest.raises(SkipwiseError) as err:
+        weigh_on_cluster(root / "parts", plan, tmp_path / "o", client=client, parts=parquet_parts(root / "parts"))
+    assert str(err.value) == str(mem_err.value) and "-q QUESTIONNAIRE" in str(err.value)
+    # dispositions 120 are outside the section's universe: no applicable item, no share answered
+    narrow = load_questionnaire(_write(tmp_path / "narrow.yaml",
+                                       QUESTIONNAIRE.replace("dispo in [110, 120]", "dispo == 110")))
+    with pytest.raises(SkipwiseError) as mem_err:
+        _in_memory(frame, plan, narrow)
+    with pytest.raises(SkipwiseError) as err:
+        weigh_on_cluster(root / "parts", plan, tmp_path / "o", client=client, parts=parquet_parts(root / "parts"),
+                         questionnaire=narrow)
+    n_partial = int((frame["dispo"] == 120).sum())
+    assert f"{n_partial} case(s) have no share of items answered" in str(mem_err.value)
+    # counted over every partition, the first five cases in file order, as the in-memory engine says
+    assert mem_err.value.problems[0].message in [p.message for p in err.value.problems]
+    assert not (tmp_path / "o").exists()
+
+
+def _write(path: Path, text: str) -> Path:
+    path.write_text(text, encoding="utf-8")
+    return path
