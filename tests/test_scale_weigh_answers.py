@@ -54,6 +54,12 @@ calibration:
 """ + MARGINS + """\
 trimming: {median_multiple: 2.5}
 replicates: {method: jackknife, psu: psu, strata: stratum}
+estimates: {means: [q3, age], proportions: [q4, q2]}
+""",
+    # no split: -q only makes the estimates use answered cells (q3 above its range is invalid)
+    "answered-estimates": HEAD + """nonresponse: {method: classes, classes: [region]}
+replicates: {method: jackknife, psu: psu}
+estimates: {means: [q3, q1], proportions: [q4]}
 """,
     # partials do not respond; break-offs count as other eligible; bootstrap replicates
     "split-partials-out": HEAD.replace("  column: dispo\n", "  column: dispo\n  partials_count_as_respondents: false\n"
@@ -111,8 +117,9 @@ def test_interview_split_on_partitions_equals_the_in_memory_engine(answers, clie
     root, frame, q = answers
     plan = load_plan(text=PLANS[name])
     mem = _in_memory(frame, plan, q)
-    # the split changes something: partials and break-offs among the dispositions mapped to I
-    assert 0 < mem.counts["P"] and mem.counts["I"] < (frame["dispo"] == 110).sum()
+    if plan.dispositions.split is not None:
+        # the split changes something: partials and break-offs among the dispositions mapped to I
+        assert 0 < mem.counts["P"] and mem.counts["I"] < (frame["dispo"] == 110).sum()
     res = weigh_on_cluster(root / "parts", plan, tmp_path / "out", client=client,
                            parts=parquet_parts(root / "parts"), questionnaire=q)
     got = _parts(tmp_path / "out")
@@ -121,6 +128,20 @@ def test_interview_split_on_partitions_equals_the_in_memory_engine(answers, clie
     assert (got["wt_outcome"].to_numpy() == mem.data["wt_outcome"].to_numpy()).all()
     weights = list(mem.weight_columns[1:])
     np.testing.assert_allclose(got[weights].to_numpy(), mem.data[weights].to_numpy(), rtol=0, atol=1e-9)
+    pd.testing.assert_frame_equal(got[list(frame.columns)], mem.data[list(frame.columns)], check_dtype=False)
+    assert res.estimates.empty == mem.estimates.empty
+    if name == "split-rake-jkn":
+        # a proportion's category missing from a partition still has that partition's cases in its denominator
+        q2 = classify(frame, q).analysis_values()["q2"].where(mem.prepared.respondent)
+        per_part = [set(q2.iloc[rows].dropna()) for rows in np.split(np.arange(len(frame)), [250, 610])]
+        assert any(set(q2.dropna()) - found for found in per_part)
+    if not mem.estimates.empty:  # from answered cells only: not the estimates of every stored value
+        pd.testing.assert_frame_equal(res.estimates, mem.estimates, check_exact=False, rtol=0, atol=1e-9)
+        stored = weigh(frame, load_plan(text=PLANS[name].replace(SPLIT, "")), share_answered=None) \
+            if plan.dispositions.split is None else None
+        if stored is not None:
+            q3 = lambda e: e.set_index("variable").loc["q3", "estimate"]  # noqa: E731
+            assert abs(q3(stored.estimates) - q3(res.estimates)) > 1.0  # invalid values above 100 left out
     write_workbook(mem, tmp_path / "mem.xlsx")
     write_workbook(res, tmp_path / "dask.xlsx")
     _assert_same_workbook(tmp_path / "mem.xlsx", tmp_path / "dask.xlsx")
@@ -152,3 +173,36 @@ def test_split_without_a_questionnaire_or_a_share_is_refused_as_in_memory(answer
 def _write(path: Path, text: str) -> Path:
     path.write_text(text, encoding="utf-8")
     return path
+
+
+def test_cli_weighs_with_a_questionnaire_as_in_memory(answers, client, tmp_path):
+    """``weigh -q --engine dask`` against ``weigh -q`` in memory (the reference) on the same rows: the same
+    weights, outcomes and workbook cells; the questionnaire and the data are left as they were."""
+    from typer.testing import CliRunner
+
+    from skipwise.cli import app
+
+    root, frame, _ = answers
+    plan = _write(tmp_path / "plan.yaml", PLANS["split-rake-jkn"])
+    whole = tmp_path / "whole.parquet"
+    write_survey(frame, whole)
+    runner = CliRunner()
+    mem = runner.invoke(app, ["weigh", str(whole), "-p", str(plan), "-o", str(tmp_path / "mem.parquet"),
+                              "-q", str(root / "q.yaml")])
+    assert mem.exit_code == 0, mem.output
+    before = (root / "q.yaml").read_bytes()
+    res = runner.invoke(app, ["weigh", str(root / "parts"), "-p", str(plan), "-o", str(tmp_path / "w"),
+                              "-q", str(root / "q.yaml"), "--engine", "dask", "--scheduler", client.scheduler.address])
+    assert res.exit_code == 0, res.output
+    assert "weighted 900 cases in 3 partitions" in res.output and "estimates (replicate standard errors)" in res.output
+    assert (root / "q.yaml").read_bytes() == before
+    want = pd.read_parquet(tmp_path / "mem.parquet")
+    got = _parts(tmp_path / "w")
+    assert list(got.columns) == list(want.columns)
+    weights = [c for c in want.columns if c.startswith("wt_") and c != "wt_outcome"]
+    np.testing.assert_allclose(got[weights].to_numpy(), want[weights].to_numpy(), rtol=0, atol=1e-9)
+    assert (got["wt_outcome"].to_numpy() == want["wt_outcome"].to_numpy()).all()
+    _assert_same_workbook(tmp_path / "mem_weights.xlsx", tmp_path / "w_weights.xlsx")
+    # the estimate lines of the console too (same figures, printed to 4 places)
+    assert [ln for ln in mem.output.splitlines() if " se " in ln] == [ln for ln in res.output.splitlines()
+                                                                       if " se " in ln]

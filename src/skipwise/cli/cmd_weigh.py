@@ -150,6 +150,7 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
 
     DATA is Parquet (a file, folder or glob), or one SPSS, Stata, SAS or CSV file converted to
     Parquet parts first in one pass (:func:`skipwise.cli.engine.dask_parts`, as classify does).
+    With ``-q`` every partition is classified on its worker (interview split, answered cells).
     """
     from skipwise.errors import Category, Problem, ProblemCode
     from skipwise.io.atomic import check_writable
@@ -167,15 +168,17 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
     if out.suffix:
         raise usage("with the dask engine OUT names a folder (it receives one Parquet part per partition)",
                     "leave out the suffix, e.g. -o weighted, or use --engine memory for a single file")
-    if questionnaire is not None:
-        raise usage("the dask engine does not use a questionnaire in weigh (no interview split, no estimates)",
-                    "leave out -q, or use --engine memory")
     spec = load_plan(plan)
-    refuse_unsupported(spec)
+    q = None
+    if questionnaire is not None:
+        from skipwise.questionnaire import load_questionnaire
+
+        q = load_questionnaire(questionnaire)
+    refuse_unsupported(spec, q)
     book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.name + "_weights.xlsx"))
     if book.suffix.lower() != ".xlsx":
         raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
-    check_writable(book, overwrite=overwrite, inputs=[data, plan])
+    check_writable(book, overwrite=overwrite, inputs=[data, plan, *([questionnaire] if questionnaire else [])])
     with dask_parts(data, out, partition_rows) as (parts, meta, dtypes):
         with dask_client(scheduler) as client:
             bar: dict = {}
@@ -185,7 +188,8 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
 
                 res = weigh_on_cluster(data, spec, out, client=client, parts=parts, overwrite=overwrite, meta=meta,
                                        dtypes=dtypes, note=lambda text: typer.echo(f"note: {text}"),
-                                       on_design=on_design, progress=lambda _done: bar["bar"].update(1))
+                                       on_design=on_design, progress=lambda _done: bar["bar"].update(1),
+                                       questionnaire=q)
     write_workbook(res, book, overwrite=overwrite)
     typer.echo(f"weighted {res.totals['cases']:,} cases in {len(parts):,} partitions")
     _echo_result(res)

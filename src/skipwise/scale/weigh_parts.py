@@ -47,6 +47,7 @@ class PartState:
     x: np.ndarray | None = None
     unit: np.ndarray | None = None      # local PSU codes until :func:`remap` makes them global
     x_prop: pd.DataFrame | None = None  # propensity covariates of the eligible cases (gathered)
+    answered: pd.DataFrame | None = None  # with a questionnaire: the estimate items' answered values
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -119,21 +120,27 @@ def _attempt(problems: list[Problem], fn, *args, **kwargs):
         return None
 
 
-def _classified(part, plan: WeightingPlan, offset: int, q, meta, dtypes) -> tuple[pd.DataFrame, pd.Series]:
-    """The plan's columns of one partition and its cases' share answered, by the in-memory classifier.
+def _classified(part, plan: WeightingPlan, offset: int, q, meta,
+                dtypes) -> tuple[pd.DataFrame, pd.Series, pd.DataFrame | None]:
+    """One partition classified by the in-memory classifier: the plan's columns, each case's share
+    answered and the estimate items' answered values (NaN for every other status; None without
+    estimates or replicates, which alone make estimates).
 
-    Classification is row-local, so each case's share of applicable items answered is the one
-    the in-memory engine finds classifying the whole file.  The whole partition is read (the
-    questionnaire's items too); only the plan's columns are kept.
+    Classification is row-local, so each case's statuses and share of applicable items answered
+    are the ones the in-memory engine finds classifying the whole file.  The whole partition is
+    read (the questionnaire's items too); only the plan's columns and the answered values are kept.
     """
     from skipwise.classify import classify
+    from skipwise.pipeline.steps import answered_values
     from skipwise.scale.sources import read_part
 
     whole = read_part(part, meta, dtypes)
     whole.index = pd.RangeIndex(offset, offset + len(whole))
     cl = classify(whole, q)
+    values = answered_values(cl, whole, plan) if plan.estimates is not None and plan.replicates is not None \
+        else None
     keep = [c for c in plan_columns(plan) if c in whole.columns]
-    return whole[keep], cl.cases["share_answered"]
+    return whole[keep], cl.cases["share_answered"], values
 
 
 def _split(outcome: np.ndarray, share: pd.Series, plan: WeightingPlan, census: dict) -> np.ndarray:
@@ -157,11 +164,12 @@ def prepare_part(part, plan: WeightingPlan, offset: int, dtypes: dict[str, str] 
     ``dtypes``, ``meta``: the whole file's column types and metadata when the partitions were
     converted (:mod:`skipwise.scale.convert`).  ``q``: the questionnaire, when given the
     partition is classified and the plan's interview split applied from each case's share
-    of applicable items answered.
+    of applicable items answered, and the estimates use the answered cells only (as ``weigh -q``
+    does in memory).
     """
-    share = None
+    share = answered = None
     if q is not None:
-        frame, share = _classified(part, plan, offset, q, meta, dtypes)
+        frame, share, answered = _classified(part, plan, offset, q, meta, dtypes)
     else:
         frame = _read(part, plan_columns(plan), dtypes)
         frame.index = pd.RangeIndex(offset, offset + len(frame))  # case positions in the file, as in memory
@@ -186,7 +194,7 @@ def prepare_part(part, plan: WeightingPlan, offset: int, dtypes: dict[str, str] 
                   respondents=int(respondent.sum()), eligible=int(eligible.sum()), unknown=int(unknown.sum()),
                   **split_census)
     state = dict(n=n, outcome=outcome, respondent=respondent, eligible=eligible, known=known, unknown=unknown,
-                 base=base)
+                 base=base, answered=answered)
     if not no_disp and not unmapped and not bad.any() and not split_census:
         cats = pd.Series(outcome, dtype=object)
         census["counts"] = count_outcomes(cats)

@@ -155,12 +155,20 @@ def _estimate_sums(part, state, plan, final: np.ndarray, reps: list, dtypes: dic
 
     est = plan.estimates
     frame = wp._read(part, [*est.means, *est.proportions], dtypes)
+    if state.answered is not None:  # with a questionnaire: answered cells only, as weigh -q in memory
+        frame = frame.assign(**{c: state.answered[c].to_numpy() for c in state.answered.columns
+                                if c in frame.columns})
     rows, y, valid = _estimate_columns(frame, state.respondent, est.means, est.proportions, est.exclude_values)
     w = np.column_stack([final, *reps])
     v = valid.astype(float)
     num, den = (y * v).T @ w, v.T @ w
     n = (valid & (final > 0)[:, None]).sum(axis=0)
-    return {(r["variable"], r["category"], r["kind"]): (num[k], den[k], int(n[k])) for k, r in enumerate(rows)}
+    out = {(r["variable"], r["category"], r["kind"]): (num[k], den[k], int(n[k])) for k, r in enumerate(rows)}
+    for k, r in enumerate(rows):
+        # a proportion's denominator is its variable's valid cases, also in partitions lacking the category
+        if r["kind"] == "proportion":
+            out[(r["variable"], "", "valid")] = (den[k], den[k], int(n[k]))
+    return out
 
 
 def _estimates(client, parts: list, dist, plan, final: list, reps: list, design,
@@ -186,11 +194,12 @@ def _estimates(client, parts: list, dist, plan, final: list, reps: list, design,
     columns = ["variable", "category", "kind", "n", "estimate", "se", "replicates", "method"]
     if not keys:
         return pd.DataFrame(columns=columns)
+    totals = [merged[(k[0], "", "valid")] if k[2] == "proportion" else merged[k] for k in keys]
     num = np.array([merged[k][0] for k in keys])
-    den = np.array([merged[k][1] for k in keys])
+    den = np.array([t[1] for t in totals])
     ratio = num / den
     table = pd.DataFrame([{"variable": k[0], "category": k[1], "kind": k[2]} for k in keys])
-    table["n"] = np.array([merged[k][2] for k in keys], dtype=np.int64)
+    table["n"] = np.array([t[2] for t in totals], dtype=np.int64)
     table["estimate"] = ratio[:, 0]
     table["se"] = np.sqrt(replicate_variance(ratio[:, 1:].T, design))
     table["replicates"] = design.count
