@@ -306,11 +306,12 @@ def test_a_chunked_sav_or_csv_weighs_as_in_memory(data, client, tmp_path, ext):
 
 def test_auto_with_a_folder_data_and_a_file_out_is_refused(data, tmp_path):
     """DESIGN section 7: --engine auto never changes the form of the output. Only the dask engine reads a
-    folder of parts and its weigh writes a folder, so a file OUT is refused, before any work, writing nothing."""
+    folder of parts and it writes no .sav, so that OUT is refused, before any work, writing nothing (a
+    .parquet OUT: tests/test_scale_weigh_files.py)."""
     root, _ = data
     plan = tmp_path / "plan.yaml"
     plan.write_text(PLANS["trim-spread"], encoding="utf-8")
-    for name in ("w.parquet", "w.sav", "w"):  # "w": a folder OUT needs an explicit --engine dask
+    for name in ("w.sav", "w"):  # "w": a folder OUT needs an explicit --engine dask
         res = CliRunner().invoke(app, ["weigh", str(root / "parts"), "-p", str(plan), "-o", str(tmp_path / name),
                                        "--engine", "auto", "--scheduler", "tcp://127.0.0.1:1"])
         assert res.exit_code == 1 and "never changes the form of the output" in res.output, res.output

@@ -140,8 +140,8 @@ def test_estimates_use_answered_cells_only_with_a_questionnaire(tmp_path):
 
 
 def test_weigh_engine_auto_says_when_it_stays_in_memory(files, monkeypatch):
-    # DESIGN §7: --engine auto never changes the form of the output; weigh's dask output is a folder of
-    # parts, so a file OUT stays in memory, and over the budget the console says so.
+    # DESIGN §7: --engine auto never changes the form of the output; the dask engine writes no .sav,
+    # so a .sav OUT stays in memory, and over the budget the console says so.
     tmp, data, plan = files
     monkeypatch.setenv("SKIPWISE_MEMORY_BUDGET", "1KB")
     out = tmp / "auto.sav"

@@ -24,14 +24,15 @@ HELP = (
     "With --engine dask the weighting runs on a Dask cluster: DATA may be a Parquet file, folder or glob, "
     "or one .sav, .zsav, .dta, .sas7bdat or .csv file (converted to Parquet parts in one pass first), "
     "OUT names a folder that receives one Parquet part per input partition (the same columns as the "
-    "in-memory output), and every step is a pass of partial sums over the partitions (docs/scale.md)."
+    "in-memory output) or a .parquet or .csv file (the in-memory engine's files, joined from the parts), "
+    "and every step is a pass of partial sums over the partitions (docs/scale.md)."
 )
 ENGINE_HELP = ("'memory' (default): read the whole file into memory. 'dask': weigh the partitions on a Dask "
                "cluster; DATA may be a Parquet file, folder or glob, or one .sav, .zsav, .dta, .sas7bdat or .csv file "
-               "(converted to Parquet parts first), and OUT names a folder of Parquet parts. 'auto': in memory "
-               "(saying so when the data is over the memory budget): auto never changes the form of the output, "
-               "and the dask engine's weigh writes a folder, which needs an explicit --engine dask; a folder or "
-               "glob DATA, which only the dask engine reads, is refused with --engine auto.")
+               "(converted to Parquet parts first), and OUT names a folder of Parquet parts or a .parquet or .csv "
+               "file. 'auto': dask when the data is over the memory budget (or is a folder or glob) and OUT is a "
+               ".parquet or .csv file, else in memory: auto never changes the form of the output, so a folder OUT "
+               "needs an explicit --engine dask, and a folder or glob DATA with another OUT is refused.")
 
 
 @app.command("weigh", help=HELP)
@@ -50,24 +51,14 @@ def weigh_command(
     scheduler: Annotated[Optional[str], typer.Option("--scheduler", help=SCHEDULER_HELP)] = None,
     partition_rows: Annotated[int, typer.Option("--partition-rows", min=1, help=PARTITION_HELP)] = 250_000,
 ) -> None:
-    if engine is Engine.AUTO and out.suffix and _is_parts(data):
-        # only the dask engine reads a folder or glob of parts, and its weigh writes a folder: auto never
-        # changes the form of the output (DESIGN section 7), so a file OUT cannot be honoured
-        from skipwise.errors import Category, Problem, ProblemCode
-
-        fail(SkipwiseError(Problem(
-            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(out),
-            message=f"--engine auto never changes the form of the output: DATA is a folder or glob of parts, "
-                    f"which only the dask engine reads, and the dask engine's weigh writes a folder of parts, "
-                    f"not a {out.suffix} file",
-            hint="name a folder for OUT (no suffix) and pass --engine dask, or weigh one file in memory")))
     if engine is Engine.AUTO:
         from skipwise.cli.engine import choose_engine
 
-        # the dask engine writes a folder of parts, which needs an explicit --engine dask: auto never
-        # changes the form of the output, so it says when the data is over the budget and stays in memory
+        # the dask engine writes a .parquet or .csv OUT in the form the in-memory engine does; a folder OUT
+        # needs an explicit --engine dask and other forms stay in memory: auto never changes the form of the output
         try:
-            engine = choose_engine(engine, data, output_allows=False, echo=typer.echo)
+            engine = choose_engine(engine, data, output_allows=out.suffix.lower() in (".parquet", ".csv"),
+                                   echo=typer.echo)
         except SkipwiseError as err:
             fail(err)
     if engine is Engine.DASK:
@@ -122,11 +113,6 @@ def weigh_command(
         typer.echo(f"caution: {text}")
 
 
-def _is_parts(data: Path) -> bool:
-    """DATA is a folder or a glob (of Parquet parts): what only the dask engine reads."""
-    return data.is_dir() or any(ch in str(data) for ch in "*?[")
-
-
 def _echo_result(res) -> None:
     from skipwise.weighting.workbook import summary_rows
 
@@ -146,7 +132,8 @@ def _echo_result(res) -> None:
 
 def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Optional[Path], workbook: Optional[Path],
                      overwrite: bool, scheduler: Optional[str], partition_rows: int) -> None:
-    """``skipwise weigh --engine dask``: partitions in, weighted Parquet parts and the workbook out.
+    """``skipwise weigh --engine dask``: partitions in; weighted Parquet parts (or one .parquet or .csv
+    file joined from them) and the workbook out.
 
     DATA is Parquet (a file, folder or glob), or one SPSS, Stata, SAS or CSV file converted to
     Parquet parts first in one pass (:func:`skipwise.cli.engine.dask_parts`, as classify does).
@@ -156,7 +143,8 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
     from skipwise.io.atomic import check_writable
     from skipwise.cli.engine import dask_parts
     from skipwise.scale import dask_client
-    from skipwise.scale.weigh_replicates import refuse_unsupported, weigh_on_cluster
+    from skipwise.scale.weigh_replicates import (SINGLE_FILE_FORMS, refuse_unsupported, single_file_targets,
+                                                 weigh_on_cluster)
     from skipwise.weighting.plan import load_plan
     from skipwise.weighting.weigh import CAUTIONS
     from skipwise.weighting.workbook import write_workbook
@@ -165,9 +153,12 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
         return SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(out),
                                      message=message, hint=hint))
 
-    if out.suffix:
-        raise usage("with the dask engine OUT names a folder (it receives one Parquet part per partition)",
-                    "leave out the suffix, e.g. -o weighted, or use --engine memory for a single file")
+    single = out.suffix.lower() in SINGLE_FILE_FORMS
+    if out.suffix and not single:
+        raise usage("the dask engine writes Parquet or CSV only: OUT names a folder (one Parquet part per "
+                    "partition), a .parquet or a .csv file",
+                    f"name a folder (e.g. -o weighted), a .parquet or a .csv OUT, or use --engine memory for a "
+                    f"{out.suffix} file")
     spec = load_plan(plan)
     q = None
     if questionnaire is not None:
@@ -175,10 +166,13 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
 
         q = load_questionnaire(questionnaire)
     refuse_unsupported(spec, q)
-    book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.name + "_weights.xlsx"))
+    # the workbook's default name as in memory: OUT's stem (a folder OUT: its name) and _weights.xlsx
+    book = workbook or (Path(spec.workbook) if spec.workbook else out.with_name(out.stem + "_weights.xlsx"))
     if book.suffix.lower() != ".xlsx":
         raise SkipwiseError(f"the diagnostics workbook {book} must end in .xlsx")
-    check_writable(book, overwrite=overwrite, inputs=[data, plan, *([questionnaire] if questionnaire else [])])
+    inputs = [data, plan, *([questionnaire] if questionnaire else [])]
+    for target in [*(single_file_targets(out) if single else []), book]:
+        check_writable(target, overwrite=overwrite, inputs=inputs)
     with dask_parts(data, out, partition_rows) as (parts, meta, dtypes):
         with dask_client(scheduler) as client:
             bar: dict = {}
@@ -193,6 +187,7 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
     write_workbook(res, book, overwrite=overwrite)
     typer.echo(f"weighted {res.totals['cases']:,} cases in {len(parts):,} partitions")
     _echo_result(res)
-    typer.echo(f"wrote {out}/ ({len(parts):,} parts) and {book}")
+    shown = ", ".join(map(str, single_file_targets(out))) if single else f"{out}/ ({len(parts):,} parts)"
+    typer.echo(f"wrote {shown} and {book}")
     for text in CAUTIONS[:2]:
         typer.echo(f"caution: {text}")

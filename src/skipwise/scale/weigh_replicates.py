@@ -24,7 +24,8 @@ from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.scale import weigh_parts as wp
 from skipwise.weighting.replicates import bootstrap_units, jackknife_units, stratum_fractions
 
-__all__ = ["design_of", "propensity_step", "weigh_on_cluster", "refuse_unsupported", "REPLICATE_THREADS"]
+__all__ = ["design_of", "propensity_step", "weigh_on_cluster", "refuse_unsupported", "REPLICATE_THREADS",
+           "SINGLE_FILE_FORMS", "single_file_targets"]
 
 #: Replicates whose passes the client keeps in flight at once.
 REPLICATE_THREADS = 8
@@ -210,8 +211,9 @@ def _estimates(client, parts: list, dist, plan, final: list, reps: list, design,
 # --- the whole job -----------------------------------------------------------------------------
 
 def _write_part(part, state, index: int, staging: str, columns: dict, labels: dict[str, str], meta=None,
-                dtypes: dict[str, str] | None = None) -> dict:
-    """Read the partition whole, add the weight columns and write its part; returns rows and digest.
+                dtypes: dict[str, str] | None = None, forms: tuple[str, ...] = ("parquet",)) -> dict:
+    """Read the partition whole, add the weight columns and write its part in each of ``forms``
+    (``parquet``, ``csv``); returns the first part's name, rows and digest.
 
     ``meta`` and ``dtypes``: the whole file's metadata and column types of converted input.
     """
@@ -232,10 +234,65 @@ def _write_part(part, state, index: int, staging: str, columns: dict, labels: di
         outcome = col.endswith("outcome")
         meta = meta.with_column(col, label=label, measure="nominal" if outcome else "scale",
                                 value_labels=OUTCOME_VALUE_LABELS if outcome else None)
-    name = f"part-{index:05d}.parquet"
-    target = Path(staging) / name
-    write_survey(out, target, meta, overwrite=True)
-    return {"file": name, "rows": len(out), "sha256": _sha(target)}
+    for form in forms:
+        write_survey(out, Path(staging) / f"part-{index:05d}.{form}", meta, overwrite=True)
+    name = f"part-{index:05d}.{forms[0]}"
+    return {"file": name, "rows": len(out), "sha256": _sha(Path(staging) / name)}
+
+
+#: The single-file OUTs of the dask engine's weigh, and what each is written with (beside it: its Parquet).
+SINGLE_FILE_FORMS = (".parquet", ".csv")
+
+
+def single_file_targets(out: Path) -> list[Path]:
+    """The files a single-file OUT means, as in memory: OUT, and for a CSV OUT the ``.parquet`` beside it."""
+    return [out] + ([out.with_suffix(".parquet")] if out.suffix.lower() == ".csv" else [])
+
+
+def _check_out(source, out: Path, overwrite: bool) -> None:
+    if out.suffix.lower() in SINGLE_FILE_FORMS:
+        from skipwise.publish import check_writable
+
+        inputs = [Path(str(source))] if Path(str(source)).is_file() else []
+        for target in single_file_targets(out):
+            check_writable(target, overwrite=overwrite, inputs=inputs)
+        return
+    if out.suffix:
+        raise SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(out),
+                                    message="the dask engine writes Parquet or CSV only: OUT names a folder (one "
+                                            "Parquet part per partition), a .parquet or a .csv file",
+                                    hint="name a folder, a .parquet or a .csv OUT, or use --engine memory for "
+                                         f"a {out.suffix} file"))
+    from skipwise.scale.classify import _check_parts_folder
+
+    _check_parts_folder(out, overwrite)
+
+
+def _publish(client, submit, source, out: Path, overwrite: bool) -> None:
+    """Write the weighted parts and publish them: a folder of parts, or one file (and its Parquet) joined
+    by the client from the parts one at a time (:mod:`skipwise.scale.single`); all or nothing."""
+    if out.suffix.lower() in SINGLE_FILE_FORMS:
+        from skipwise.publish import publish_files
+        from skipwise.scale.convert import scratch_folder
+        from skipwise.scale.single import join_csv, join_parquet
+
+        targets = single_file_targets(out)
+        forms = tuple(t.suffix.lower().lstrip(".") for t in targets)
+        with scratch_folder(out) as scratch:
+            written = client.gather(submit(str(scratch), forms))
+            with publish_files(targets, overwrite=overwrite) as temps:
+                for form, tmp in zip(forms, temps):
+                    names = [scratch / (Path(w["file"]).stem + "." + form) for w in written]
+                    (join_parquet if form == "parquet" else join_csv)(names, tmp)
+        return
+    from skipwise.publish import PackagePublisher
+    from skipwise.scale.classify import PART_MANIFEST
+
+    with PackagePublisher(out) as pub:
+        written = client.gather(submit(str(pub.staging), ("parquet",)))
+        listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
+        (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
+        pub.publish()
 
 
 def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False, meta=None,
@@ -243,6 +300,9 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
                      on_design: Callable[[int], None] | None = None, progress: Callable[[int], None] | None = None,
                      questionnaire=None):
     """Weigh every partition of ``source`` by ``plan`` on the cluster; write the weighted parts into ``out``.
+
+    ``out`` is a folder (one Parquet part per partition), or one ``.parquet`` or ``.csv`` file (with,
+    for a CSV, the ``.parquet`` beside it, as the in-memory engine writes), joined from the parts.
 
     ``meta`` and ``dtypes`` are the whole file's metadata and column types when the parts were
     converted from one SPSS, Stata, SAS or CSV file (:func:`skipwise.scale.convert.convert_to_parts`):
@@ -255,8 +315,6 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     """
     from skipwise.generated import check_generated
     from skipwise.pipeline.steps import weight_labels
-    from skipwise.publish import PackagePublisher
-    from skipwise.scale.classify import PART_MANIFEST, _check_parts_folder
     from skipwise.scale.weigh import ClusterChain
     from skipwise.scale.weigh_prepare import prepare_on_cluster
     from skipwise.weighting.pipeline import STAGES
@@ -267,7 +325,8 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     refuse_unsupported(plan, questionnaire)
     names = list(pq.ParquetFile(parts[0].path).schema_arrow.names)
     check_generated(planned_weight_columns(plan, names), names)
-    _check_parts_folder(Path(out), overwrite)
+    out = Path(out)
+    _check_out(source, out, overwrite)
     if questionnaire is not None:
         from skipwise.classify import check_columns
         from skipwise.scale.sources import Part, read_part
@@ -314,14 +373,11 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     res = chain.result(stages, result, design, tuple(columns), estimates)
     labels = weight_labels(res)
     meta_future = client.scatter(meta, broadcast=True) if meta is not None else None
-    with PackagePublisher(Path(out)) as pub:
-        futures = []
-        for i, part in enumerate(parts):
-            cols = {k: (None if v is None else v[i]) for k, v in columns.items()}
-            futures.append(client.submit(_write_part, part, dist.states[i], i, str(pub.staging), cols, labels,
-                                         meta_future, dtypes, pure=False))
-        written = client.gather(futures)
-        listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
-        (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
-        pub.publish()
+
+    def submit(staging: str, forms: tuple[str, ...]) -> list:
+        return [client.submit(_write_part, part, dist.states[i], i, staging,
+                              {k: (None if v is None else v[i]) for k, v in columns.items()}, labels, meta_future,
+                              dtypes, forms, pure=False) for i, part in enumerate(parts)]
+
+    _publish(client, submit, source, out, overwrite)
     return res
