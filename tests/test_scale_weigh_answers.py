@@ -206,3 +206,32 @@ def test_cli_weighs_with_a_questionnaire_as_in_memory(answers, client, tmp_path)
     # the estimate lines of the console too (same figures, printed to 4 places)
     assert [ln for ln in mem.output.splitlines() if " se " in ln] == [ln for ln in res.output.splitlines()
                                                                        if " se " in ln]
+
+
+def test_a_chunked_sav_with_a_questionnaire_weighs_as_in_memory(answers, client, tmp_path):
+    """One .sav (pyreadstat's writer, refusals declared as user-missing) converted in chunks of 250 rows and
+    classified partition by partition, against ``weigh -q`` of the same .sav in memory (the reference)."""
+    import pyreadstat
+    from typer.testing import CliRunner
+
+    from skipwise.cli import app
+
+    root, frame, _ = answers
+    src = tmp_path / "sample.sav"
+    pyreadstat.write_sav(frame, str(src), row_compress=True,
+                         missing_ranges={c: [-9] for c in ("q1", "q2", "q3", "q4", "q5")})
+    plan = _write(tmp_path / "plan.yaml", PLANS["split-rake-jkn"])
+    runner = CliRunner()
+    args = ["-p", str(plan), "-q", str(root / "q.yaml")]
+    mem = runner.invoke(app, ["weigh", str(src), *args, "-o", str(tmp_path / "mem.parquet")])
+    assert mem.exit_code == 0, mem.output
+    res = runner.invoke(app, ["weigh", str(src), *args, "-o", str(tmp_path / "dask.parquet"), "--engine", "dask",
+                              "--scheduler", client.scheduler.address, "--partition-rows", "250"])
+    assert res.exit_code == 0, res.output
+    assert "weighted 900 cases in 4 partitions" in res.output
+    want, got = pd.read_parquet(tmp_path / "mem.parquet"), pd.read_parquet(tmp_path / "dask.parquet")
+    assert list(got.columns) == list(want.columns)
+    weights = [c for c in want.columns if c.startswith("wt_") and c != "wt_outcome"]
+    np.testing.assert_allclose(got[weights].to_numpy(), want[weights].to_numpy(), rtol=0, atol=1e-9)
+    assert (got["wt_outcome"].to_numpy() == want["wt_outcome"].to_numpy()).all()
+    _assert_same_workbook(tmp_path / "mem_weights.xlsx", tmp_path / "dask_weights.xlsx")
