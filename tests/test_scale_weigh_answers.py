@@ -235,3 +235,18 @@ def test_a_chunked_sav_with_a_questionnaire_weighs_as_in_memory(answers, client,
     np.testing.assert_allclose(got[weights].to_numpy(), want[weights].to_numpy(), rtol=0, atol=1e-9)
     assert (got["wt_outcome"].to_numpy() == want["wt_outcome"].to_numpy()).all()
     _assert_same_workbook(tmp_path / "mem_weights.xlsx", tmp_path / "dask_weights.xlsx")
+
+
+def test_a_category_only_some_partitions_hold_has_the_in_memory_proportion(client, tmp_path):
+    """Without -q too: a proportion's denominator counts every partition's valid cases, also where the
+    category does not occur (the in-memory engine's estimate on the same rows is the reference)."""
+    frame = make_frame().assign(rare=lambda f: np.where(np.arange(len(f)) // 20 == 35, "y", "x"))  # rows 700-719
+    for i, rows in enumerate(np.split(np.arange(len(frame)), [250, 610])):
+        write_survey(frame.iloc[rows].reset_index(drop=True), tmp_path / f"s-{i}.parquet")
+    plan = load_plan(text=HEAD + "nonresponse: {method: classes, classes: [region]}\n"
+                                 "replicates: {method: jackknife, psu: psu}\nestimates: {proportions: [rare]}\n")
+    mem = weigh(frame, plan)
+    res = weigh_on_cluster(tmp_path, plan, tmp_path / "out", client=client, parts=parquet_parts(tmp_path))
+    assert list(mem.estimates["category"]) == ["x", "y"]
+    pd.testing.assert_frame_equal(res.estimates, mem.estimates, check_exact=False, rtol=0, atol=1e-9)
+    assert res.estimates["estimate"].sum() == pytest.approx(1.0, abs=1e-12)  # the shares of one variable
