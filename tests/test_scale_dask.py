@@ -425,3 +425,19 @@ def test_the_compression_of_an_spss_file_is_read_from_its_header(tmp_path):
         assert sav_compression(tmp_path / name) == code, name
     frame.to_csv(tmp_path / "d.csv", index=False)
     assert sav_compression(tmp_path / "d.csv") == 0
+
+
+def test_the_conversion_says_what_a_sas_file_costs_in_chunks(tmp_path, capsys):
+    """A .sas7bdat is not read once in chunks (docs/scale.md, benchmarks/bench_chunk_reread.py): the console
+    says so and how to pay less, as for a compressed .sav; a .csv is read once."""
+    from skipwise.cli.engine import dask_parts
+
+    sas = Path(__file__).parent / "data" / "staff.sas7bdat"
+    frame = pd.DataFrame({"id": np.arange(20.0), "v": np.ones(20)})
+    frame.to_csv(tmp_path / "d.csv", index=False)
+    for data, said, not_said in ((sas, "a larger --partition-rows", "read once"),
+                                 (tmp_path / "d.csv", "read once", "--partition-rows")):
+        with dask_parts(data, tmp_path / f"out_{data.stem}", 10) as (parts, _meta, _dtypes):
+            assert len(parts) >= 1
+        err = capsys.readouterr().err
+        assert said in err and not_said not in err, err

@@ -155,6 +155,12 @@ def dask_parts(data: Path, out: Path, partition_rows: int):
                        "in one pass; the file is compressed, so each chunk is decompressed from the start of the "
                        "file (the extra work grows with the square of the number of chunks: a larger "
                        "--partition-rows makes fewer)", err=True)
+        elif data.suffix.lower() == ".sas7bdat":
+            # measured in docs/scale.md: each chunk costs more the larger the file (benchmarks/bench_chunk_reread.py)
+            typer.echo(f"converting {data.name} ({size / 1e6:,.1f} MB) to Parquet parts of {partition_rows:,} rows "
+                       "in one pass; pyreadstat enters each chunk of a .sas7bdat at a cost that grows with the file "
+                       "(the extra work grows with the square of the number of chunks: a larger --partition-rows "
+                       "makes fewer)", err=True)
         else:
             typer.echo(f"converting {data.name} ({size / 1e6:,.1f} MB) to Parquet parts of {partition_rows:,} rows "
                        "(one pass; the file is read once)", err=True)
