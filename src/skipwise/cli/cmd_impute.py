@@ -65,8 +65,14 @@ def impute_command(
         with typer.progressbar(length=spec.spec.m, label="imputations") as bar:
             res = impute_skipaware(frame, q, spec.spec, progress=bar.update)
         meta = imputation_meta(frame, res, spec.output)
-        for done, path in zip(imputed_frames(res, spec.output), paths):
-            write_survey(done, path, meta, overwrite=overwrite)
+        from skipwise.cli.common import echo_warnings
+        from skipwise.io.atomic import publish_files
+
+        # the M completed files appear together or not at all (never a mix of two runs' imputations)
+        with publish_files(paths, overwrite=overwrite) as temps:
+            with echo_warnings({str(t): str(p) for t, p in zip(temps, paths)}):
+                for done, tmp in zip(imputed_frames(res, spec.output), temps):
+                    write_survey(done, tmp, meta, overwrite=True)
     except SkipwiseError as err:
         fail(err)
         return

@@ -100,10 +100,15 @@ def weigh_command(
         res = weigh_with_progress(frame, spec, share_answered=share, reporter=EchoReporter(),
                                   estimate_values=values)
         meta = weight_meta(res)
-        write_survey(res.data, out, meta, overwrite=overwrite)
-        if parquet != out:
-            write_survey(res.data, parquet, meta, overwrite=overwrite)
-        write_workbook(res, book, overwrite=overwrite)
+        from skipwise.cli.common import echo_warnings
+        from skipwise.io.atomic import publish_files
+
+        # the weighted file(s) and the workbook appear together or not at all
+        with publish_files(targets, overwrite=overwrite) as temps:
+            with echo_warnings({str(t): str(p) for t, p in zip(temps, targets)}):
+                for tmp in temps[:-1]:
+                    write_survey(res.data, tmp, meta, overwrite=True)
+            write_workbook(res, temps[-1], overwrite=True)
     except SkipwiseError as err:
         fail(err)
         return
@@ -183,8 +188,8 @@ def _weigh_with_dask(data: Path, plan: Path, out: Path, *, questionnaire: Option
                 res = weigh_on_cluster(data, spec, out, client=client, parts=parts, overwrite=overwrite, meta=meta,
                                        dtypes=dtypes, note=lambda text: typer.echo(f"note: {text}"),
                                        on_design=on_design, progress=lambda _done: bar["bar"].update(1),
-                                       questionnaire=q)
-    write_workbook(res, book, overwrite=overwrite)
+                                       questionnaire=q,
+                                       beside=[(book, lambda r, tmp: write_workbook(r, tmp, overwrite=True))])
     typer.echo(f"weighted {res.totals['cases']:,} cases in {len(parts):,} partitions")
     _echo_result(res)
     shown = ", ".join(map(str, single_file_targets(out))) if single else f"{out}/ ({len(parts):,} parts)"

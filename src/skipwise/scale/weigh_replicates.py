@@ -12,10 +12,11 @@ the weighted parts.
 
 from __future__ import annotations
 
+import functools
 import json
 from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
-from typing import Callable
+from typing import Callable, Sequence
 
 import numpy as np
 import pandas as pd
@@ -268,11 +269,19 @@ def _check_out(source, out: Path, overwrite: bool) -> None:
     _check_parts_folder(out, overwrite)
 
 
-def _publish(client, submit, source, out: Path, overwrite: bool) -> None:
+def _publish(client, submit, source, out: Path, overwrite: bool,
+             beside: Sequence[tuple[Path, Callable[[Path], None]]] = ()) -> None:
     """Write the weighted parts and publish them: a folder of parts, or one file (and its Parquet) joined
-    by the client from the parts one at a time (:mod:`skipwise.scale.single`); all or nothing."""
+    by the client from the parts one at a time (:mod:`skipwise.scale.single`); all or nothing.
+
+    ``beside``: further files (the workbook) as (path, writer of a temporary path), published with
+    the data: with a single-file OUT in the same all-or-nothing step; with a folder OUT written
+    first and renamed into place right after the folder, only if the folder was published.
+    """
+    from skipwise.publish import publish_files
+
+    extra = [path for path, _ in beside]
     if out.suffix.lower() in SINGLE_FILE_FORMS:
-        from skipwise.publish import publish_files
         from skipwise.scale.convert import scratch_folder
         from skipwise.scale.single import join_csv, join_parquet
 
@@ -280,25 +289,30 @@ def _publish(client, submit, source, out: Path, overwrite: bool) -> None:
         forms = tuple(t.suffix.lower().lstrip(".") for t in targets)
         with scratch_folder(out) as scratch:
             written = client.gather(submit(str(scratch), forms))
-            with publish_files(targets, overwrite=overwrite) as temps:
+            with publish_files([*targets, *extra], overwrite=overwrite) as temps:
                 for form, tmp in zip(forms, temps):
                     names = [scratch / (Path(w["file"]).stem + "." + form) for w in written]
                     (join_parquet if form == "parquet" else join_csv)(names, tmp)
+                for (_, write), tmp in zip(beside, temps[len(targets):]):
+                    write(tmp)
         return
     from skipwise.publish import PackagePublisher
     from skipwise.scale.classify import PART_MANIFEST
 
-    with PackagePublisher(out) as pub:
-        written = client.gather(submit(str(pub.staging), ("parquet",)))
-        listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
-        (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
-        pub.publish()
+    with publish_files(extra, overwrite=overwrite) as temps:
+        for (_, write), tmp in zip(beside, temps):
+            write(tmp)
+        with PackagePublisher(out) as pub:
+            written = client.gather(submit(str(pub.staging), ("parquet",)))
+            listing = {"tool": "skipwise weigh --engine dask", "source": str(source), "outputs": written}
+            (pub.staging / PART_MANIFEST).write_text(json.dumps(listing, indent=2), encoding="utf-8")
+            pub.publish()
 
 
 def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite: bool = False, meta=None,
                      dtypes: dict[str, str] | None = None, note: Callable[[str], None] | None = None,
                      on_design: Callable[[int], None] | None = None, progress: Callable[[int], None] | None = None,
-                     questionnaire=None):
+                     questionnaire=None, beside: Sequence[tuple[Path, Callable]] = ()):
     """Weigh every partition of ``source`` by ``plan`` on the cluster; write the weighted parts into ``out``.
 
     ``out`` is a folder (one Parquet part per partition), or one ``.parquet`` or ``.csv`` file (with,
@@ -309,6 +323,8 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
     every partition is read in those types and its part written with that metadata.
     ``questionnaire``: every partition is classified on its worker, as ``weigh -q`` classifies the
     file in memory; the plan's interview split uses each case's share of applicable items answered.
+    ``beside``: (path, writer) pairs of further outputs made from the result, each writer called as
+    ``writer(result, temporary_path)`` and published with the data (the workbook of ``weigh``).
 
     Returns a :class:`skipwise.scale.weigh.DaskWeighResult` (figures and tables for the
     workbook and the console; the weights stay in the parts).
@@ -379,5 +395,6 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
                               {k: (None if v is None else v[i]) for k, v in columns.items()}, labels, meta_future,
                               dtypes, forms, pure=False) for i, part in enumerate(parts)]
 
-    _publish(client, submit, source, out, overwrite)
+    _publish(client, submit, source, out, overwrite,
+             [(path, functools.partial(write, res)) for path, write in beside])
     return res
