@@ -61,7 +61,12 @@ def status_numbers(cl: Classification) -> dict[str, int]:
     Reasons come in the order of their numbers, so the value labels written from this mapping are
     in the same order in every run (the questionnaire's mapping follows no fixed order).
     """
-    reasons = sorted(cl.questionnaire.reason_numbers.items(), key=lambda kv: kv[1])
+    return questionnaire_status_numbers(cl.questionnaire)
+
+
+def questionnaire_status_numbers(q) -> dict[str, int]:
+    """:func:`status_numbers` from the questionnaire alone (every classification of ``q`` has these)."""
+    reasons = sorted(q.reason_numbers.items(), key=lambda kv: kv[1])
     return {**S.STATUS_NUMBERS, **dict(reasons)}
 
 

@@ -27,7 +27,8 @@ def file_date(path: str | Path) -> date:
 def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=None, classification=None,
                    weight_prefix: str | None = None, weight: str | None = None, weight_labels: Mapping[str, str] | None = None,
                    design=None, study: Mapping[str, str] | None = None, produced: date | None = None,
-                   min_base: int | None = None) -> CodebookInput:
+                   min_base: int | None = None, rows: int | None = None, summaries=None, rates=None
+                   ) -> CodebookInput:
     """A :class:`~skipwise.ddi.write.CodebookInput` for ``frame`` (the data file as delivered).
 
     ``weight_prefix`` marks the weight columns (``wt_``); replicate columns are
@@ -35,8 +36,12 @@ def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=N
     when present) gives the weighted frequencies; ``design`` is the
     :class:`~skipwise.weighting.replicates.ReplicateDesign` the replicates were
     made with (its method and scale factors are documented).
+
+    Without the data in memory (the dask engine), ``frame`` holds the columns and their types
+    only, ``rows`` the number of cases, ``summaries`` every column's merged figures
+    (:mod:`skipwise.scale.colstats`) and ``rates`` the merged item rates; ``classification`` is None.
     """
-    from skipwise.classify.export import status_numbers
+    from skipwise.classify.export import questionnaire_status_numbers, status_numbers
 
     meta = get_meta(frame) if meta is None else meta
     cols = [str(c) for c in frame.columns]
@@ -57,6 +62,19 @@ def codebook_input(frame: pd.DataFrame, questionnaire, *, file_name: str, meta=N
         formula = (replicate_formula(method, len(replicates), coef) if design is not None
                    else f"{len(replicates)} replicate weights; see the weighting plan for the method.")
         rep = ReplicateGroup(columns=replicates, method=method, formula=formula)
+    if classification is None and summaries is not None:
+        numbers = questionnaire_status_numbers(questionnaire)
+        from skipwise.classify.delivery import status_value_labels
+
+        fmt = (meta.source_format or Path(file_name).suffix.lstrip(".")).lower()
+        return CodebookInput(
+            questionnaire=questionnaire, frame=frame, meta=meta, file_name=file_name,
+            file_format=FORMAT_NAMES.get(fmt, fmt or "data file"),
+            statuses=pd.DataFrame(columns=list(questionnaire.item_names)), status_numbers=numbers,
+            status_labels=status_value_labels({s: s for s in numbers}, questionnaire),
+            weight=weight, weight_columns=weights, replicates=rep,
+            study=study_metadata(getattr(questionnaire, "study", None), study), produced=produced, rates=rates,
+            rows=rows, summaries=summaries)
     rates = None
     if classification is not None:
         from skipwise.rates import DEFAULT_MIN_BASE, item_rates

@@ -16,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 from skipwise import __version__
-from skipwise.ddi.write import CodebookInput, _frequencies, _labels, answered_values, item_categories
+from skipwise.ddi.write import (CodebookInput, Moments, _labels, blanks, case_count, column_moments, frequencies,
+                                item_categories)
 from skipwise.io.meta import normalize_value
 from skipwise.pipeline.render import Block, to_html, to_markdown
 from skipwise.questionnaire.model import STUDY_KEYS, ItemType
@@ -98,7 +99,7 @@ def codebook_blocks(inp: CodebookInput, extra: list[Block] | None = None) -> lis
         extra_blocks.append(block)
     b: list[Block] = [
         ("h", 1, f"Codebook: {title}"),
-        ("p", f"Data file `{inp.file_name}` ({inp.file_format}): {len(frame):,} cases, {frame.shape[1]:,} "
+        ("p", f"Data file `{inp.file_name}` ({inp.file_format}): {case_count(inp):,} cases, {frame.shape[1]:,} "
               f"variables. Written by skipwise {__version__}"
               + (f" on {inp.produced.isoformat()}" if inp.produced else "") + "."),
         ("h", 2, "Contents"), ("links", toc),
@@ -158,7 +159,7 @@ def _overview_row(inp: CodebookInput, col: str) -> list[str]:
 
 def _freq_table(inp: CodebookInput, col: str, values: dict, missing: dict) -> Block:
     w = _weights(inp)
-    counts, wsum = _frequencies(inp.frame[col], w)
+    counts, wsum = frequencies(inp, col, w)
     head = ["value", "label", "kind", "cases"] + (["weighted"] if w is not None else [])
     rows = []
     for v, label in values.items():
@@ -171,11 +172,10 @@ def _freq_table(inp: CodebookInput, col: str, values: dict, missing: dict) -> Bl
         if w is not None:
             row.append(fmt_sum(wsum.get(v, 0.0)))
         rows.append(row)
-    blank = int(inp.frame[col].isna().sum())
+    blank, blank_w = blanks(inp, col, w)
     if blank:
         rows.append(["(blank)", "", "no value stored", fmt_number(blank)]
-                    + ([fmt_sum(np.nansum(np.where(inp.frame[col].isna(), w, 0)))]
-                       if w is not None else []))
+                    + ([fmt_sum(blank_w)] if w is not None else []))
     return ("table", head, rows)
 
 
@@ -185,13 +185,12 @@ def _weights(inp: CodebookInput) -> np.ndarray | None:
     return pd.to_numeric(inp.frame[inp.weight], errors="coerce").to_numpy(float)
 
 
-def _stats_table(values: np.ndarray, n: int) -> Block:
-    valid = values[np.isfinite(values)]
-    rows = [["valid cases", fmt_number(len(valid))], ["other cases", fmt_number(n - len(valid))]]
-    if len(valid):
-        rows += [["mean", fmt_number(valid.mean())],
-                 ["standard deviation", fmt_number(valid.std(ddof=1)) if len(valid) > 1 else ""],
-                 ["minimum", fmt_number(valid.min())], ["maximum", fmt_number(valid.max())]]
+def _stats_table(m: Moments, n: int) -> Block:
+    rows = [["valid cases", fmt_number(m.n)], ["other cases", fmt_number(n - m.n)]]
+    if m.n:
+        rows += [["mean", fmt_number(m.mean)],
+                 ["standard deviation", fmt_number(m.sd) if m.n > 1 else ""],
+                 ["minimum", fmt_number(m.min)], ["maximum", fmt_number(m.max)]]
     return ("table", ["statistic", "value"], rows)
 
 
@@ -218,7 +217,7 @@ def _item_blocks(inp: CodebookInput, col: str) -> list[Block]:
     values, missing = item_categories(it)
     if it.type in (ItemType.INTEGER, ItemType.NUMBER):
         out += [("p", "Summary of the answered values:"),
-                _stats_table(answered_values(inp, it.name, col), len(inp.frame))]
+                _stats_table(column_moments(inp, col, it.name), case_count(inp))]
     if values:
         out += [("p", "Stored values over all cases:"), _freq_table(inp, col, values, missing)]
     return out
@@ -264,10 +263,10 @@ def _other_blocks(inp: CodebookInput, col: str) -> list[Block]:
         missing = {normalize_value(v): ("declared missing", "missing") for v in meta.missing_values.get(col, [])}
         out.append(_freq_table(inp, col, labels, missing))
     elif col != q.case_id and pd.api.types.is_numeric_dtype(frame[col]) and not pd.api.types.is_bool_dtype(frame[col]):
-        x = pd.to_numeric(frame[col], errors="coerce").to_numpy(float)
-        out.append(_stats_table(x, len(frame)))
+        m = column_moments(inp, col)
+        out.append(_stats_table(m, case_count(inp)))
         if col in inp.weight_columns:
-            out.append(("p", f"Sum of the weights: {fmt_sum(np.nansum(x))}."))
+            out.append(("p", f"Sum of the weights: {fmt_sum(m.total)}."))
     return out
 
 

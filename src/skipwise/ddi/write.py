@@ -37,7 +37,8 @@ from skipwise.questionnaire.model import STUDY_KEYS, CodeKind, ItemType, Questio
 from skipwise.rules.words import universe_words
 
 __all__ = ["DDI_NAMESPACE", "CodebookInput", "ReplicateGroup", "STUDY_KEYS", "ddi_document", "ddi_bytes",
-           "clean_xml_text", "replicate_formula", "study_metadata"]
+           "clean_xml_text", "replicate_formula", "study_metadata", "Moments", "ColumnSummary", "moments_of",
+           "case_count", "frequencies", "blanks", "column_moments"]
 
 #: The namespace of DDI-Codebook 2.5 documents.
 DDI_NAMESPACE = "ddi:codebook:2_5"
@@ -59,6 +60,46 @@ class ReplicateGroup:
     columns: tuple[str, ...]
     method: str
     formula: str          # the variance formula in words, with its scale factors
+
+
+@dataclass(frozen=True)
+class Moments:
+    """Summary statistics of a column's valid (finite) values: count, mean, sample standard
+    deviation (n - 1 in the denominator; NaN under 2 values), minimum, maximum and sum."""
+
+    n: int
+    mean: float
+    sd: float
+    min: float
+    max: float
+    total: float
+
+
+def moments_of(values: np.ndarray) -> Moments:
+    """The :class:`Moments` of ``values`` in memory (NaN and infinite values are not valid)."""
+    valid = values[np.isfinite(values)]
+    if not len(valid):
+        return Moments(0, np.nan, np.nan, np.nan, np.nan, float(np.nansum(values)))
+    return Moments(len(valid), float(valid.mean()), float(valid.std(ddof=1)) if len(valid) > 1 else np.nan,
+                   float(valid.min()), float(valid.max()), float(np.nansum(values)))
+
+
+@dataclass(frozen=True, kw_only=True)
+class ColumnSummary:
+    """What a codebook says about one column when the data are not in memory (the dask engine
+    merges these from per-partition partial sums, :mod:`skipwise.scale.colstats`).
+
+    ``counts`` and ``wsum`` hold the cases and the summed weight of each listed stored value,
+    ``blank``/``blank_w`` those of the blank cells, ``values`` the moments of the column's finite
+    values (numeric columns), ``answered`` those of an item's answered cells.
+    """
+
+    counts: Mapping[object, int]
+    wsum: Mapping[object, float]
+    blank: int
+    blank_w: float
+    values: Moments | None = None
+    answered: Moments | None = None
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -84,6 +125,43 @@ class CodebookInput:
     study: Mapping[str, str] = field(default_factory=dict)
     produced: date | None = None
     rates: Any = None     # skipwise.rates.ItemRates of the classification (weighted with ``weight`` if given)
+    #: With ``summaries`` (the dask engine), ``frame`` holds no rows, only the columns and their types;
+    #: ``rows`` is the number of cases and every figure comes from the column's summary.
+    rows: int | None = None
+    summaries: Mapping[str, ColumnSummary] | None = None
+
+
+def case_count(inp: CodebookInput) -> int:
+    """Cases of the described file."""
+    return inp.rows if inp.rows is not None else len(inp.frame)
+
+
+def frequencies(inp: CodebookInput, col: str, w: np.ndarray | None) -> tuple[dict[object, int], dict[object, float]]:
+    """Unweighted and weighted counts of the stored values of ``col`` (from its summary, if given)."""
+    if inp.summaries is not None:
+        s = inp.summaries[col]
+        return dict(s.counts), (dict(s.wsum) if w is not None else {})
+    return _frequencies(inp.frame[col], w)
+
+
+def blanks(inp: CodebookInput, col: str, w: np.ndarray | None) -> tuple[int, float]:
+    """Blank cells of ``col`` and their summed weight (missing weights count 0)."""
+    if inp.summaries is not None:
+        s = inp.summaries[col]
+        return s.blank, s.blank_w
+    blank = inp.frame[col].isna()
+    return int(blank.sum()), float(np.nansum(np.where(blank, w, 0))) if w is not None else 0.0
+
+
+def column_moments(inp: CodebookInput, col: str, item: str | None = None) -> Moments:
+    """Moments of a column's finite values, or of an item's answered values when ``item`` is given."""
+    if inp.summaries is not None:
+        s = inp.summaries[col]
+        m = s.answered if item is not None else s.values
+        return m if m is not None else Moments(0, np.nan, np.nan, np.nan, np.nan, 0.0)
+    if item is not None:
+        return moments_of(answered_values(inp, item, col))
+    return moments_of(pd.to_numeric(inp.frame[col], errors="coerce").to_numpy(float))
 
 
 def _sub(parent: ET.Element, tag: str, text: object = None, **attrs: str) -> ET.Element:
@@ -171,7 +249,7 @@ def _file_dscr(root: ET.Element, inp: CodebookInput) -> None:
     ft = _sub(_sub(root, "fileDscr", ID="F1"), "fileTxt")
     _sub(ft, "fileName", inp.file_name)
     dim = _sub(ft, "dimensns")
-    _sub(dim, "caseQnty", len(inp.frame))
+    _sub(dim, "caseQnty", case_count(inp))
     _sub(dim, "varQnty", inp.frame.shape[1])
     _sub(ft, "fileType", inp.file_format)
 
@@ -198,7 +276,7 @@ def _data_dscr(root: ET.Element, inp: CodebookInput) -> None:
         _sub(g, "labl", f"Replicate weights ({rep.method}, {len(rep.columns)} replicates)")
         _sub(g, "txt", rep.formula)
     weight = inp.weight if inp.weight in ids else None
-    w = pd.to_numeric(frame[weight], errors="coerce").to_numpy(float) if weight else None
+    w = (pd.to_numeric(frame[weight], errors="coerce").to_numpy(float) if weight else None)
     owner = q.column_owner
     status_of = {f"{name}_status": name for name in (inp.statuses.columns if inp.statuses is not None else ())}
     rep_cols = set(rep.columns) if rep is not None else set()
@@ -230,9 +308,9 @@ def _frequencies(x: pd.Series, w: np.ndarray | None) -> tuple[dict[object, int],
     return counts, wsum
 
 
-def _categories(var: ET.Element, values: Mapping[object, str], x: pd.Series, w: np.ndarray | None,
+def _categories(var: ET.Element, values: Mapping[object, str], freq: tuple[dict, dict], w: np.ndarray | None,
                 wid: str | None, missing: Mapping[object, tuple[str, str]] = {}) -> None:
-    counts, wsum = _frequencies(x, w)
+    counts, wsum = freq
     for value, label in values.items():
         miss = missing.get(value)
         cat = _sub(var, "catgry", missing="Y" if miss else None, missType=miss[0] if miss else None)
@@ -245,16 +323,15 @@ def _categories(var: ET.Element, values: Mapping[object, str], x: pd.Series, w: 
             _sub(cat, "catStat", _num(round(wsum.get(value, 0.0), 6)), type="freq", wgtd="wgtd", wgt_var=wid)
 
 
-def _sum_stats(var: ET.Element, values: np.ndarray, n: int) -> None:
-    valid = values[np.isfinite(values)]
-    _sub(var, "sumStat", len(valid), type="vald")
-    _sub(var, "sumStat", n - len(valid), type="invd")
-    if len(valid):
-        _sub(var, "sumStat", _num(round(float(valid.mean()), 6)), type="mean")
-        if len(valid) > 1:
-            _sub(var, "sumStat", _num(round(float(valid.std(ddof=1)), 6)), type="stdev")
-        _sub(var, "sumStat", _num(valid.min()), type="min")
-        _sub(var, "sumStat", _num(valid.max()), type="max")
+def _sum_stats(var: ET.Element, m: Moments, n: int) -> None:
+    _sub(var, "sumStat", m.n, type="vald")
+    _sub(var, "sumStat", n - m.n, type="invd")
+    if m.n:
+        _sub(var, "sumStat", _num(round(float(m.mean), 6)), type="mean")
+        if m.n > 1:
+            _sub(var, "sumStat", _num(round(float(m.sd), 6)), type="stdev")
+        _sub(var, "sumStat", _num(m.min), type="min")
+        _sub(var, "sumStat", _num(m.max), type="max")
 
 
 #: The package's item rates, written as ``sumStat type="other"`` (shares of D, docs/contract.md §2).
@@ -329,12 +406,12 @@ def _item_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | Non
     x = frame[col]
     numeric = it.type in (ItemType.INTEGER, ItemType.NUMBER)
     if numeric:
-        _sum_stats(var, answered_values(inp, it.name, col), len(frame))
+        _sum_stats(var, column_moments(inp, col, it.name), case_count(inp))
     _rate_stats(var, inp, it.name, wid)
     if not numeric:
         _sub(var, "txt", f"Type: {it.type.value}.")
     values, missing = item_categories(it, _labels(inp.meta, col))
-    _categories(var, values, x, w, wid, missing)
+    _categories(var, values, frequencies(inp, col, w), w, wid, missing)
     _sub(var, "varFormat", type="numeric" if pd.api.types.is_numeric_dtype(x) else "character",
          schema="other", otherSchema="pandas", formatname=str(x.dtype))
     if it.rule_text:
@@ -349,7 +426,7 @@ def _status_var(var: ET.Element, inp: CodebookInput, col: str, item: str, w: np.
                      "of the answers.")
     values = {n: inp.status_labels.get(s, s.replace("_", " ")) for s, n in inp.status_numbers.items()}
     values.update(_labels(inp.meta, col))   # the delivered file's own value labels win
-    _categories(var, dict(sorted(values.items(), key=lambda kv: float(kv[0]))), inp.frame[col], w, wid)
+    _categories(var, dict(sorted(values.items(), key=lambda kv: float(kv[0]))), frequencies(inp, col, w), w, wid)
     _sub(var, "varFormat", type="numeric", schema="other", otherSchema="pandas",
          formatname=str(inp.frame[col].dtype))
 
@@ -363,7 +440,7 @@ def _other_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | No
     numeric = pd.api.types.is_numeric_dtype(x) and not pd.api.types.is_bool_dtype(x)
     labels = _labels(meta, col)
     if numeric and not labels and col != q.case_id:
-        _sum_stats(var, pd.to_numeric(x, errors="coerce").to_numpy(float), len(frame))
+        _sum_stats(var, column_moments(inp, col), case_count(inp))
     if col == q.case_id:
         _sub(var, "txt", "Case identifier.")
     elif col in q.context:
@@ -373,7 +450,7 @@ def _other_var(var: ET.Element, inp: CodebookInput, col: str, w: np.ndarray | No
     if labels:
         missing = {normalize_value(v): ("declared missing", "missing")
                    for v in meta.missing_values.get(col, [])}
-        _categories(var, labels, x, w, wid, missing)
+        _categories(var, labels, frequencies(inp, col, w), w, wid, missing)
     _sub(var, "varFormat", type="numeric" if numeric else "character", schema="other", otherSchema="pandas",
          formatname=str(x.dtype))
 

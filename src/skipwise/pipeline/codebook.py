@@ -32,7 +32,7 @@ def _fmt(v: object) -> str:
 
 
 def package_input(st, frame: pd.DataFrame, meta: SurveyMeta, data_name: str | None,
-                  weight_name: str | None) -> CodebookInput:
+                  weight_name: str | None, *, rows: int | None = None, summaries=None, rates=None) -> CodebookInput:
     """What the package's codebooks (md, html, DDI) describe: the final data file, rates weighted by the final weight."""
     res = st.weigh
     min_base = st.plan.min_base
@@ -40,7 +40,8 @@ def package_input(st, frame: pd.DataFrame, meta: SurveyMeta, data_name: str | No
                           weight_prefix=res.plan.prefix if res is not None else None, weight=weight_name,
                           weight_labels=weight_labels(res) if res is not None else None,
                           design=res.design if res is not None else None, study=st.plan.study,
-                          produced=file_date(st.plan.data), min_base=min_base)
+                          produced=file_date(st.plan.data), min_base=min_base, rows=rows, summaries=summaries,
+                          rates=rates)
 
 
 def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[tuple[str, str]],
@@ -73,11 +74,11 @@ def codebook_blocks(st, frame: pd.DataFrame, meta: SurveyMeta, files: Sequence[t
                                         "every input and output with its SHA-256."),
              ("table", ["file", "what it holds"], [list(f) for f in files]),
              ("h", 2, "Item rates"), ("p", rates)]
-    extra += _weight_blocks(st, frame) + _impute_blocks(st)
+    extra += _weight_blocks(st, frame, inp.summaries) + _impute_blocks(st)
     return human_blocks(inp, extra)
 
 
-def _weight_blocks(st, frame: pd.DataFrame) -> list[Block]:
+def _weight_blocks(st, frame: pd.DataFrame, summaries=None) -> list[Block]:
     res = st.weigh
     if res is None:
         return [("h", 2, "Weights"), ("p", "No weighting plan was given: the file has no weight columns.")]
@@ -125,9 +126,14 @@ def _weight_blocks(st, frame: pd.DataFrame) -> list[Block]:
     for col in res.weight_columns:
         if col in replicates:
             continue
-        x = pd.to_numeric(frame[col], errors="coerce") if col in frame.columns else pd.Series(dtype=float)
-        stats = ("", "", "", "") if col.endswith("outcome") or x.empty else (
-            _fmt(x.min()), _fmt(x.mean()), _fmt(x.max()), fmt_sum(x.sum()))
+        if summaries is not None and col in summaries and summaries[col].values is not None:
+            m = summaries[col].values  # merged partial sums (dask engine): min, mean, max, sum of the valid weights
+            stats = ("", "", "", "") if col.endswith("outcome") else (
+                _fmt(m.min), _fmt(m.mean), _fmt(m.max), fmt_sum(m.total))
+        else:
+            x = pd.to_numeric(frame[col], errors="coerce") if col in frame.columns else pd.Series(dtype=float)
+            stats = ("", "", "", "") if col.endswith("outcome") or x.empty else (
+                _fmt(x.min()), _fmt(x.mean()), _fmt(x.max()), fmt_sum(x.sum()))
         rows.append([f"`{col}`", labels[col], *stats])
     if replicates:
         rows.append([f"`{replicates[0]}` to `{replicates[-1]}`", f"{len(replicates):,} replicate weights "

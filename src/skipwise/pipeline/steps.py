@@ -23,7 +23,7 @@ from skipwise.pipeline.reporting import Reporter, SilentReporter, classify_progr
 
 __all__ = ["RunState", "weigh_with_progress", "weight_meta", "weight_labels", "imputation_paths",
            "imputed_frames", "imputation_meta", "read_step", "check_step", "classify_step", "join_step", "report_step",
-           "weigh_step", "report_weight", "impute_step", "final_frame", "write_data"]
+           "weigh_step", "report_weight", "impute_step", "final_frame", "write_data", "check_outcome"]
 
 
 @dataclass
@@ -47,6 +47,7 @@ class RunState:
     impute: Any = None                    # SkipAwareResult
     diagnostics: Any = None               # DiagnosticsReport
     notes: list[str] = field(default_factory=list)
+    dask: Any = None                      # skipwise.pipeline.dask_run.DaskSession with engine: dask
 
 
 # --- glue shared with the single commands -------------------------------------------------------
@@ -163,6 +164,11 @@ def check_step(st: RunState, reporter: Reporter) -> None:
     from skipwise.checkdata import check_data
 
     st.check = check_data(st.data, st.q, top=st.plan.check_top)
+    check_outcome(st, reporter)
+
+
+def check_outcome(st: RunState, reporter: Reporter) -> None:
+    """Show the check's findings and stop the run when they say so (both engines)."""
     for row in st.check.to_rows():
         reporter.info(f"  {row['kind']:<5} {row['item'] or '-':<18} {row['finding']:<18} {row['detail']}")
     reporter.info(f"{len(st.check.errors)} error(s), {len(st.check.notes)} note(s)")
