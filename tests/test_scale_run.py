@@ -41,12 +41,42 @@ def inputs(tmp_path_factory):
     q = load_questionnaire(DEMO_Q)
     write_survey(frame, root / "in" / "survey.sav", delivery_meta(get_meta(frame), q, frame))
     (root / "in" / "q.yaml").write_text(DEMO_Q.read_text(encoding="utf-8"), encoding="utf-8")
+    (root / "in" / "weights.yaml").write_text(WEIGHTS, encoding="utf-8")
+    (root / "in" / "impute.yaml").write_text(IMPUTE, encoding="utf-8")
     return root
 
 
-def _plan(root: Path, name: str, engine: str, extra: str = "") -> Path:
+WEIGHTS = """\
+format: 1
+case_id: case_id
+dispositions:
+  column: disposition
+  categories: {I: [110], P: [120], R: [212]}
+base: {probability: sel_prob}
+nonresponse: {method: classes, classes: [district], min_respondents: 5}
+calibration:
+  method: rake
+  margins:
+    district: {1: 4200, 2: 6100, 3: 6400, 4: 5800}
+trimming: {median_multiple: 3.5}
+replicates: {method: bootstrap, psu: psu, strata: stratum, count: 6, seed: 7}
+output: {prefix: wt_}
+"""
+
+
+IMPUTE = """\
+format: 1
+imputations: 2
+seed: 11
+default: {method: hotdeck, classes: [district]}
+output: {form: stacked}
+"""
+
+
+def _plan(root: Path, name: str, engine: str, extra: str = "",
+          report: str = "{by: [district], weight: wt, fault_rows: 50}", diagnose: str = "false") -> Path:
     text = (f"format: 1\ndata: in/survey.sav\nquestionnaire: in/q.yaml\n"
-            "report: {by: [district], weight: wt, fault_rows: 50}\ndiagnose: false\n"
+            f"report: {report}\ndiagnose: {diagnose}\n"
             f"output: {{folder: {name}, name: survey, status_columns: [parquet, csv], timestamp: '2026-06-30T12:00:00'}}\n"
             f"{engine}{extra}")
     path = root / f"{name}.yaml"
@@ -157,3 +187,89 @@ def test_pairwise_merge_of_moments_equals_numpy_on_the_whole_column():
     assert got.mean == pytest.approx(valid.mean(), rel=1e-12)
     assert got.sd == pytest.approx(valid.std(ddof=1), rel=1e-9)
     assert (got.min, got.max) == (valid.min(), valid.max())
+
+
+# --- stage 2: the weighting step -------------------------------------------------------------------
+
+@pytest.fixture(scope="module")
+def weighted(inputs, client):
+    extra = "weighting: {plan: in/weights.yaml}\n"
+    report = "{by: [district], fault_rows: 50}"  # the report's weight: the run's final weight
+    mem = run_plan(_plan(inputs, "wmem", "", extra, report=report))
+    dask = run_plan(_plan(inputs, "wdsk", _engine(client), extra, report=report))
+    return mem, dask
+
+
+def test_weights_within_1e_9_and_every_other_cell_equal(weighted):
+    mem, dask = weighted
+    ref = pd.read_parquet(mem.files["data_parquet"])
+    got = pd.read_parquet(dask.files["data_parquet"])
+    assert list(got.columns) == list(ref.columns)
+    weights = [c for c in ref.columns if c.startswith("wt_")]
+    assert "wt_final" in weights and "wt_rep001" in weights and "wt_outcome" in weights
+    for col in weights:
+        np.testing.assert_allclose(got[col].to_numpy(float), ref[col].to_numpy(float), rtol=1e-9, atol=1e-9,
+                                   err_msg=col)
+    pd.testing.assert_frame_equal(got.drop(columns=weights), ref.drop(columns=weights))
+    assert dask.manifest["summary"]["respondents"] == mem.manifest["summary"]["respondents"]
+    assert dask.manifest["summary"]["RR3"] == pytest.approx(mem.manifest["summary"]["RR3"], abs=1e-12)
+
+
+@pytest.mark.parametrize("role", ["weighting_workbook", "item_report"])
+def test_weighted_workbooks_cells_equal(weighted, role):
+    mem, dask = weighted
+    ref, got = _cells(mem.files[role]), _cells(dask.files[role])
+    assert ref.keys() == got.keys()
+    for key, (value, fmt) in ref.items():
+        other, other_fmt = got[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
+        else:
+            assert other == value, key
+
+
+@pytest.mark.parametrize("role", ["codebook_md", "codebook_html", "codebook_xml"])
+def test_weighted_codebook_text_equal(weighted, role):
+    mem, dask = weighted
+    ref = mem.files[role].read_text(encoding="utf-8")
+    assert "wt_final" in ref
+    got = dask.files[role].read_text(encoding="utf-8").replace("wdsk.yaml", "wmem.yaml")
+    if role != "codebook_xml":
+        assert got == ref
+        return
+    # The DDI XML writes a weight's minimum and maximum with 12 significant digits, and the two
+    # engines' weights agree within 1e-9 (DESIGN section 7), not bit for bit: the text is compared
+    # with every number within 1e-9 (relative), everything else character for character.
+    import re
+
+    split = re.compile(r"(-?\d+(?:\.\d+)?)")
+    a, b = split.split(ref), split.split(got)
+    assert len(a) == len(b)
+    assert a[0::2] == b[0::2]
+    for x, y in zip(a[1::2], b[1::2]):
+        assert float(y) == pytest.approx(float(x), rel=1e-9, abs=1e-9), (x, y)
+    assert sum(x != y for x, y in zip(a[1::2], b[1::2])) < 10  # only a few weight figures differ at all
+
+
+def test_weighted_manifest_lists_every_file(weighted):
+    _, dask = weighted
+    listed = {o["file"] for o in dask.manifest["outputs"]}
+    assert "weighting.xlsx" in listed
+    assert {p.name for p in dask.folder.iterdir()} == listed | {"manifest.json"}
+
+
+def test_a_weighting_file_and_estimates_are_refused_with_their_lines(inputs, client):
+    from skipwise.errors import SkipwiseError
+    from skipwise.pipeline.plan import load_run_plan
+
+    with pytest.raises(SkipwiseError) as err:
+        load_run_plan(_plan(inputs, "wfile", _engine(client), "weighting: {plan: in/weights.yaml, data: in/survey.sav}\n"))
+    text = str(err.value)
+    assert "wfile.yaml:" in text and "weighting.data" in text
+    (inputs / "in" / "west.yaml").write_text(WEIGHTS + "estimates: {means: [hh_size]}\n", encoding="utf-8")
+    with pytest.raises(SkipwiseError) as err:
+        run_plan(_plan(inputs, "west", _engine(client), "weighting: {plan: in/west.yaml}\n"))
+    text = str(err.value)
+    assert "west.yaml:" in text and "estimates" in text and "engine: memory" in text
+    assert not (inputs / "west").exists()

@@ -23,9 +23,11 @@ ENGINE_KINDS = ("memory", "dask", "auto")
 ENGINE_KEYS: Mapping[str, str] = {"kind": "str", "scheduler": "str", "partition_rows": "int"}
 #: Rows a partition holds at most (consecutive row groups of a Parquet file are joined up to it).
 DEFAULT_PARTITION_ROWS = 250_000
-#: Steps (commands) that have the dask engine; the others run in memory only.  Engineers who add
-#: the engine to a step add its name here.
-DASK_STEPS: frozenset[str] = frozenset({"classify", "check", "report"})
+#: Steps of a run plan that run with ``engine: dask`` (skipwise.pipeline.dask_run): classify, check,
+#: report and weigh on the cluster; diagnose and impute on the client, on the columns they need gathered
+#: when these fit the gather budget (refused at run time with the plan's line otherwise).  A step not
+#: named here is refused when the plan is loaded.  Engineers who add the engine to a step add its name here.
+DASK_STEPS: frozenset[str] = frozenset({"classify", "check", "report", "weigh"})
 #: Environment variable with the memory budget of ``--engine auto`` (bytes, or e.g. "8GB").
 MEMORY_BUDGET_ENV = "SKIPWISE_MEMORY_BUDGET"
 

@@ -37,6 +37,8 @@ class DaskSession:
     dtypes: dict | None = None
     rows: int = 0
     classified: Any = None           # skipwise.scale.classify.DaskClassification (counts merged)
+    weighted: list = field(default_factory=list)   # the weighted parts, one per partition (same rows)
+    head: Any = None                 # the data's columns, their types and metadata (no rows)
     report: Any = None               # skipwise.scale.report.ClusterReport
     notes: list[str] = field(default_factory=list)
 
@@ -66,6 +68,8 @@ def read_step(st, reporter: Reporter) -> None:
 
     s = _session(st)
     plan = st.plan
+    if st.weighting_plan is not None:
+        _weighting_problems(st)
     if needs_conversion(plan.data):
         reporter.info(f"converting {plan.data.name} to Parquet parts of {plan.engine.partition_rows:,} rows "
                       "(one sequential pass)")
@@ -79,14 +83,9 @@ def read_step(st, reporter: Reporter) -> None:
         s.parts = parquet_parts(plan.data, plan.engine.partition_rows)
     s.rows = int(sum(p.rows for p in s.parts))
     # No rows: the columns, their types and the metadata; the in-memory steps' name checks read these.
-    st.data = read_part(Part(s.parts[0].path, (), 0), s.meta, s.dtypes)
+    st.data = s.head = read_part(Part(s.parts[0].path, (), 0), s.meta, s.dtypes)
     reporter.info(f"{plan.data.name}: {s.rows:,} cases, {st.data.shape[1]:,} columns "
                   f"({len(s.parts):,} partitions on the dask engine)")
-    if plan.weighting_data is not None:
-        from skipwise.io import read_survey
-
-        st.weighting_data = read_survey(plan.weighting_data)
-        reporter.info(f"{plan.weighting_data.name} (weighting): {len(st.weighting_data):,} cases")
     if st.imputation_plan is not None:
         from skipwise.impute.plan import check_plan
 
@@ -144,9 +143,15 @@ def report_step(st, reporter: Reporter) -> None:
     s = _session(st)
     o = st.plan.report
     name, _ = report_weight(st)
+    parts = s.parts
+    if s.weighted and name in st.weigh.weight_columns:
+        # a weight the run made: read from the weighted parts (the data's columns and the weights, same rows)
+        from skipwise.scale.sources import parquet_parts
+
+        parts = [q for w in s.weighted for q in parquet_parts(w, 1 << 62)]  # one partition per weighted part
     with _bar(reporter, "counting", s.rows) as advance:
         s.report = res = report_on_cluster(
-            s.parts, st.q, st.targets["item_report"], client=s.client, meta=s.meta, dtypes=s.dtypes, weight=name,
+            parts, st.q, st.targets["item_report"], client=s.client, meta=s.meta, dtypes=s.dtypes, weight=name,
             by=tuple(o.by), case_ids=o.case_ids, top_items=o.top_items, top_patterns=o.top_patterns,
             fault_rows=o.fault_rows, min_base=st.plan.min_base, input_path=st.plan.data, overwrite=True,
             written=fixed_time(st.plan), progress=advance)
@@ -173,7 +178,8 @@ class _FinalPart:
 
 
 def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[str, ...], weight: str | None,
-               min_base: int) -> _FinalPart:
+               min_base: int, weights_part: str | None = None, weight_columns: tuple[str, ...] = (),
+               weight_meta=None) -> _FinalPart:
     """On a worker: one partition of the final data file (data + status columns), written in each
     format, with its codebook partial sums and item rates (weighted by ``weight`` when given)."""
     from skipwise.classify import classify
@@ -187,6 +193,16 @@ def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[st
     frame = read_part(part, meta, dtypes)
     cl = classify(frame, q)
     out, out_meta = with_status_columns(frame, cl, delivery_meta(get_meta(frame), q, frame))
+    if weights_part is not None:
+        # the weighted part holds this partition's rows in the same order: its weight columns join by
+        # position (the in-memory run joins by case id, which the check step found unique)
+        import pyarrow.parquet as pq
+
+        weights = pq.read_table(weights_part, columns=list(weight_columns)).to_pandas()
+        if len(weights) != len(out):
+            raise RuntimeError(f"weighted part {weights_part} holds {len(weights)} rows, the partition {len(out)}")
+        out = pd.concat([out, weights.set_axis(out.index)], axis=1)
+        out_meta = out_meta.merged(weight_meta)
     out.attrs = {}
     for fmt in formats:
         write_survey(out, Path(folder) / fmt / f"part-{index:05d}.{fmt}", out_meta, overwrite=True)
@@ -200,7 +216,8 @@ def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[st
 def _final_columns(st) -> list[str]:
     from skipwise.classify.export import STATUS_SUFFIX
 
-    return [*map(str, st.data.columns), *(f"{n}{STATUS_SUFFIX}" for n in st.q.item_names)]
+    weights = list(st.weigh.weight_columns) if st.weigh is not None else []
+    return [*map(str, _session(st).head.columns), *(f"{n}{STATUS_SUFFIX}" for n in st.q.item_names), *weights]
 
 
 def export_step(st, reporter: Reporter) -> None:
@@ -223,8 +240,10 @@ def export_step(st, reporter: Reporter) -> None:
     columns = _final_columns(st)
     weight = weight_name if weight_name in columns else None
     q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True)
+    wcols = tuple(st.weigh.weight_columns) if st.weigh is not None else ()
     futures = [s.client.submit(final_part, p, q_f, meta_f, s.dtypes, i, str(folder), formats, weight,
-                               st.plan.min_base, key=f"skipwise-run-final-{i}-{id(s)}", pure=False)
+                               st.plan.min_base, str(s.weighted[i]) if s.weighted else None, wcols, st.weight_meta,
+                               key=f"skipwise-run-final-{i}-{id(s)}", pure=False)
                for i, p in enumerate(s.parts)]
     from distributed import as_completed
 
@@ -267,6 +286,9 @@ def summary(st) -> dict:
     out: dict = {"cases": s.rows, "items": len(st.q.items), "file_timestamp": fixed_time(st.plan).isoformat(),
                  "engine": "dask", "partitions": len(s.parts), "check_errors": len(st.check.errors), "check_notes": len(st.check.notes),
                  "routing_faults": int(s.classified.faults)}
+    if st.weigh is not None:
+        out["respondents"] = int(st.weigh.totals["respondents"])
+        out["RR3"] = st.weigh.rates.get("RR3")
     return out
 
 
@@ -278,15 +300,159 @@ def refuse(message: str, hint: str, st, key: tuple[str, ...]) -> SkipwiseError:
 
 
 
-def join_step(st, reporter: Reporter) -> None:  # stage 2
-    raise refuse("the weighting step has no dask engine in this version", "turn weighting off", st, ("weighting",))
 
 
-weigh_step = join_step
+# --- weighting -----------------------------------------------------------------------------------
+
+def _weighting_problems(st) -> None:
+    """What the weighting step cannot do on the dask engine, refused right after the plan is loaded."""
+    from skipwise.errors import Category, Problem, ProblemCode
+    from skipwise.scale.weigh_replicates import refuse_unsupported
+
+    refuse_unsupported(st.weighting_plan)  # the engine's own refusals (e.g. interview_split), with their lines
+    plan, spec = st.plan, st.weighting_plan
+    problems = []
+    est = spec.estimates
+    if est is not None and (est.means or est.proportions):
+        problems.append(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(spec.file),
+            line=spec.line("estimates"),
+            message="'engine: dask' in the run plan: the weighting plan's estimates would be computed from every "
+                    "stored value (codes included), not from the answered cells as the in-memory run does",
+            hint=f"remove 'estimates' from {Path(str(spec.file)).name} for the dask run (run skipwise weigh for "
+                 "them), or use engine: memory in the run plan"))
+    if problems:
+        raise SkipwiseError(problems)
 
 
-def diagnose_step(st, reporter: Reporter) -> None:  # stage 3
-    raise refuse("the diagnose step has no dask engine in this version", "turn diagnose off", st, ("diagnose",))
+def join_step(st, reporter: Reporter) -> None:
+    """Nothing to join: the dask run weighs the data file itself (weighting.data is refused)."""
+    reporter.info("the data file is weighted itself: nothing to join")
 
 
-impute_step = diagnose_step
+def weigh_step(st, reporter: Reporter) -> None:
+    """``weigh --engine dask`` on the run's partitions; the workbook on the client, the weights in parts."""
+    from skipwise.io import SurveyMeta
+    from skipwise.pipeline.steps import weight_meta
+    from skipwise.scale.weigh_replicates import weigh_on_cluster
+    from skipwise.weighting.workbook import summary_rows, write_workbook
+
+    s = _session(st)
+    spec = st.weighting_plan
+    out = s.scratch / "weighted"
+    with contextlib.ExitStack() as stack:
+        bar: dict = {}
+
+        def on_design(count: int) -> None:
+            bar["advance"] = stack.enter_context(reporter.progress("replicates", count))
+
+        st.weigh = res = weigh_on_cluster(st.plan.data, spec, out, client=s.client, parts=s.parts, meta=s.meta,
+                                          dtypes=s.dtypes, note=lambda text: reporter.info(f"note: {text}"),
+                                          on_design=on_design, progress=lambda _done: bar["advance"](1))
+    s.weighted = [out / f"part-{i:05d}.parquet" for i in range(len(s.parts))]
+    missing = [p for p in s.weighted if not p.exists()]
+    if missing:
+        raise RuntimeError(f"the weighted parts are not where expected: {missing[0]}")
+    write_workbook(res, st.targets["weighting_workbook"], overwrite=True)
+    cols = list(res.weight_columns)
+    st.weights = pd.DataFrame(columns=cols, dtype=float)  # names only: the weights stay in the parts
+    st.weight_meta = weight_meta(res, SurveyMeta())
+    for name, value in summary_rows(res):
+        if name in ("respondents (weighted cases)", "sum of final weights", "Kish design effect (final)",
+                    "response rate RR3 (unweighted)"):
+            reporter.info(f"{name}: {value:,.4f}" if isinstance(value, float) else f"{name}: {value}")
+    for note in res.chain.notes:
+        reporter.info(f"note: {note}")
+
+
+
+
+# --- diagnose and impute: the columns they need, gathered when they fit the budget ---------------
+
+def _diagnose_columns(st) -> list[str]:
+    """The data columns the diagnostics read: the classification's (case id, context, items) and the
+    plan's weight, response and auxiliaries; every column when the auxiliaries are chosen from the file."""
+    q, o = st.q, st.plan.diagnose
+    names = [str(c) for c in _session(st).head.columns]
+    if o.aux is None:
+        return names  # the diagnostics choose their auxiliaries among every column
+    wanted = {q.case_id, *q.context, *(c for it in q.items for c in it.columns),
+              *(c for c in (o.weight, o.response) if c), *(o.aux or ()), *(o.add_aux or ())}
+    return [c for c in names if c in wanted]
+
+
+def _gathered(st, columns: list[str], weights: bool, step: str, key: str):
+    """``columns`` of every partition (and the run's weights) as one frame on the client, or a refusal
+    naming the plan's line when they would exceed the gather budget."""
+    from skipwise.errors import Category, Problem, ProblemCode
+    from skipwise.io.meta import get_meta, set_meta
+    from skipwise.scale.sources import read_part
+    from skipwise.scale.weigh import GATHER_BUDGET_ENV, gather_budget, refuse_gather
+
+    s = _session(st)
+    wcols = list(st.weigh.weight_columns) if weights and st.weigh is not None else []
+    need = 8 * s.rows * (len(columns) + len(wcols))  # 8 bytes a cell (text columns take more)
+    budget = gather_budget()
+    if need > budget:
+        err = refuse_gather(f"the {step} step", need, budget).problems[0]
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(st.plan.file),
+            line=st.plan.line(key) or st.plan.line("engine"), item=key,
+            message=f"'engine: dask': {err.message}: it works on the whole file in memory and would gather "
+                    f"{len(columns) + len(wcols):,} column(s) of {s.rows:,} cases to the client",
+            hint=f"raise {GATHER_BUDGET_ENV} (bytes) if the client has the memory"
+                 + (", name fewer columns (diagnose.items, diagnose.aux)" if step == "diagnose" else "")
+                 + f", turn the step off ({key}: false, or leave the key out), or use engine: memory"))
+    frames = [read_part(p, s.meta, s.dtypes)[columns] for p in s.parts]  # one partition read at a time
+    meta = get_meta(frames[0]) if frames else None
+    data = pd.concat(frames, ignore_index=True)
+    del frames
+    if meta is not None:
+        set_meta(data, meta.subset(data.columns))
+    made = None
+    if wcols:
+        import pyarrow.parquet as pq
+
+        made = pd.concat([pq.read_table(w, columns=wcols).to_pandas() for w in s.weighted], ignore_index=True)
+    return data, made, need, budget
+
+
+@contextlib.contextmanager
+def _in_memory(st, reporter: Reporter, columns: list[str], weights: bool, step: str, key: str):
+    """The in-memory step's view of the run: the gathered columns as ``st.data`` (classified on the
+    client), the run's weights as ``st.weights``; the names-only view is put back afterwards."""
+    from skipwise.classify import classify
+
+    data, made, need, budget = _gathered(st, columns, weights, step, key)
+    shown = ", ".join(columns[:8]) + (f" and {len(columns) - 8:,} more" if len(columns) > 8 else "")
+    reporter.info(f"note: {step} runs in memory on the client: gathered {len(columns):,} column(s) of "
+                  f"{len(data):,} cases ({shown})" + (f" and {made.shape[1]:,} weight column(s)" if made is not None
+                                                      else "")
+                  + f", about {need / 1e6:,.1f} MB of the gather budget of {budget / 1e6:,.1f} MB")
+    head, old_weights, old_cl = st.data, st.weights, st.cl
+    st.data = data
+    if made is not None:
+        st.weights = made
+    st.cl = classify(data, st.q)
+    try:
+        yield
+    finally:
+        st.data, st.weights, st.cl = head, old_weights, old_cl
+
+
+def diagnose_step(st, reporter: Reporter) -> None:
+    """The in-memory diagnostics on the columns they need, gathered to the client (within the budget)."""
+    from skipwise.pipeline.diagnose import diagnose_step as diagnose
+
+    with _in_memory(st, reporter, _diagnose_columns(st), False, "diagnose", "diagnose"):
+        st.diagnostics = diagnose(st.data, st.q, st.cl, st.plan, st.targets["diagnostics"], reporter)
+
+
+def impute_step(st, reporter: Reporter) -> None:
+    """The in-memory imputation on the whole data (its completed files hold every column) and the
+    run's weights, gathered to the client (within the budget)."""
+    from skipwise.pipeline.steps import impute_step as impute
+
+    columns = [str(c) for c in _session(st).head.columns]
+    with _in_memory(st, reporter, columns, True, "impute", "imputation"):
+        impute(st, reporter)

@@ -392,6 +392,11 @@ def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weigh
         r.add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}': the step '{step}' has no dask engine in this "
               "version", r.lines.get((key,)) or line,
               f"turn it off ({key}: false, or leave the key out) or use engine: memory")
+    if weighting.get("plan") is not None and weighting.get("data") is not None:
+        r.add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}' weighs the data file itself in this version: the "
+              "weights of a separate weighting file are not joined by case id across partitions",
+              r.lines.get(("weighting", "data")) or r.lines.get(("weighting",)) or line,
+              "leave out weighting.data (the interview file is weighted), or use engine: memory")
     own = data.suffix.lower().lstrip(".") if data is not None else "parquet"
     chosen = [own if f == "input" else f for f in out.get("status_columns", ("input", "parquet"))]
     formats = [f for f in dict.fromkeys(chosen) if f not in ("parquet", "csv")]
