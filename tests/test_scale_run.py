@@ -273,3 +273,86 @@ def test_a_weighting_file_and_estimates_are_refused_with_their_lines(inputs, cli
     text = str(err.value)
     assert "west.yaml:" in text and "estimates" in text and "engine: memory" in text
     assert not (inputs / "west").exists()
+
+
+# --- stage 3: diagnose and impute on gathered columns ----------------------------------------------
+
+class _Recorder:
+    def __init__(self):
+        self.lines: list[str] = []
+
+    def step(self, name, text):
+        pass
+
+    def info(self, text):
+        self.lines.append(text)
+
+    def progress(self, label, length):
+        import contextlib
+
+        return contextlib.nullcontext(lambda n: None)
+
+
+@pytest.fixture(scope="module")
+def gathered(inputs, client):
+    extra = "weighting: {plan: in/weights.yaml}\nimputation: {plan: in/impute.yaml}\n"
+    diagnose = "{aux: [district, stratum, interview_mode]}"
+    mem = run_plan(_plan(inputs, "gmem", "", extra, diagnose=diagnose))
+    rec = _Recorder()
+    dask = run_plan(_plan(inputs, "gdsk", _engine(client), extra, diagnose=diagnose), reporter=rec)
+    return mem, dask, rec.lines
+
+
+def test_diagnostics_and_imputed_file_equal_the_in_memory_run(gathered):
+    mem, dask, lines = gathered
+    ref, got = _cells(mem.files["diagnostics"]), _cells(dask.files["diagnostics"])
+    assert ref.keys() == got.keys()
+    for key, (value, fmt) in ref.items():
+        other, other_fmt = got[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-12), key
+        else:
+            assert other == value, key
+    from skipwise.io import read_survey
+
+    assert mem.files["imputed_1"].suffix == ".sav"  # the input's format: written on the client
+    ref = read_survey(mem.files["imputed_1"])
+    got = read_survey(dask.files["imputed_1"])
+    weights = [c for c in ref.columns if c.startswith("wt_")]
+    assert weights and list(got.columns) == list(ref.columns) and len(got) == 2 * 2249
+    pd.testing.assert_frame_equal(got.drop(columns=weights), ref.drop(columns=weights))
+    np.testing.assert_allclose(got[weights].to_numpy(float), ref[weights].to_numpy(float), rtol=1e-9, atol=1e-9)
+    # the console says what was gathered: only the diagnostics' columns, the whole file for imputation
+    notes = [x for x in lines if "gathered" in x]
+    assert any(x.startswith("note: diagnose runs in memory") and "interview_mode" in x for x in notes)
+    assert any(x.startswith("note: impute runs in memory") and "weight column(s)" in x for x in notes)
+
+
+def test_a_gather_over_the_budget_is_refused_with_the_plan_line(inputs, client, monkeypatch):
+    from skipwise.pipeline.run import StepFailed
+
+    monkeypatch.setenv("SKIPWISE_GATHER_BUDGET", "1000")
+    path = _plan(inputs, "gbig", _engine(client), diagnose="{aux: [district]}")
+    with pytest.raises(StepFailed) as err:
+        run_plan(path)
+    text = str(err.value)
+    line = next(i + 1 for i, t in enumerate(path.read_text().splitlines()) if t.startswith("diagnose:"))
+    assert err.value.step == "diagnose"
+    assert f"gbig.yaml:{line}" in text and "SKIPWISE_GATHER_BUDGET" in text and "diagnose: false" in text
+    assert not (inputs / "gbig").exists()
+
+
+def test_inputs_the_dask_engine_cannot_read_and_auto_are_refused(inputs, client):
+    from skipwise.errors import SkipwiseError
+    from skipwise.pipeline.plan import load_run_plan
+
+    (inputs / "in" / "book.xlsx").write_bytes(b"")  # only its name is looked at
+    path = _plan(inputs, "xl", _engine(client))
+    path.write_text(path.read_text().replace("in/survey.sav", "in/book.xlsx"))
+    with pytest.raises(SkipwiseError) as err:
+        load_run_plan(path)
+    assert "xl.yaml:2" in str(err.value) and ".xlsx" in str(err.value)
+    with pytest.raises(SkipwiseError) as err:
+        run_plan(_plan(inputs, "auto", "engine: auto\n"))
+    assert "engine: dask" in str(err.value) and not (inputs / "auto").exists()

@@ -27,7 +27,7 @@ DEFAULT_PARTITION_ROWS = 250_000
 #: report and weigh on the cluster; diagnose and impute on the client, on the columns they need gathered
 #: when these fit the gather budget (refused at run time with the plan's line otherwise).  A step not
 #: named here is refused when the plan is loaded.  Engineers who add the engine to a step add its name here.
-DASK_STEPS: frozenset[str] = frozenset({"classify", "check", "report", "weigh"})
+DASK_STEPS: frozenset[str] = frozenset({"classify", "check", "report", "weigh", "diagnose", "impute"})
 #: Environment variable with the memory budget of ``--engine auto`` (bytes, or e.g. "8GB").
 MEMORY_BUDGET_ENV = "SKIPWISE_MEMORY_BUDGET"
 

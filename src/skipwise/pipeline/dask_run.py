@@ -75,9 +75,7 @@ def read_step(st, reporter: Reporter) -> None:
                       "(one sequential pass)")
         folder = s.scratch / "input"
         folder.mkdir()
-        with _bar(reporter, "converting", 0) as advance:
-            conv = convert_to_parts(plan.data, folder, partition_rows=plan.engine.partition_rows,
-                                    progress=lambda rows: advance(0))
+        conv = convert_to_parts(plan.data, folder, partition_rows=plan.engine.partition_rows)
         s.parts, s.meta, s.dtypes = conv.parts, conv.meta, conv.dtypes
     else:
         s.parts = parquet_parts(plan.data, plan.engine.partition_rows)
@@ -239,7 +237,7 @@ def export_step(st, reporter: Reporter) -> None:
     weight_name, _ = report_weight(st)
     columns = _final_columns(st)
     weight = weight_name if weight_name in columns else None
-    q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True)
+    q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True, hash=False)
     wcols = tuple(st.weigh.weight_columns) if st.weigh is not None else ()
     futures = [s.client.submit(final_part, p, q_f, meta_f, s.dtypes, i, str(folder), formats, weight,
                                st.plan.min_base, str(s.weighted[i]) if s.weighted else None, wcols, st.weight_meta,

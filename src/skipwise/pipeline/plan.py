@@ -397,6 +397,11 @@ def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weigh
               "weights of a separate weighting file are not joined by case id across partitions",
               r.lines.get(("weighting", "data")) or r.lines.get(("weighting",)) or line,
               "leave out weighting.data (the interview file is weighted), or use engine: memory")
+    readable = (".parquet", ".sav", ".zsav", ".dta", ".sas7bdat", ".csv")  # skipwise.cli.engine.DASK_INPUTS
+    if data is not None and data.suffix.lower() not in readable:
+        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' reads {', '.join(readable)} data, not "
+              f"{data.suffix or 'a file without a suffix'}", r.lines.get(("data",)) or line,
+              "convert the file to Parquet first, or use engine: memory")
     own = data.suffix.lower().lstrip(".") if data is not None else "parquet"
     chosen = [own if f == "input" else f for f in out.get("status_columns", ("input", "parquet"))]
     formats = [f for f in dict.fromkeys(chosen) if f not in ("parquet", "csv")]

@@ -60,7 +60,7 @@ def check_on_cluster(parts: list[Part], q, *, client, meta=None, dtypes=None, to
     head = read_part(Part(parts[0].path, (), 0), meta, dtypes)
     starts = np.concatenate([[0], np.cumsum([p.rows for p in parts])[:-1]]).astype(int)
     buckets = max(1, len(parts))
-    q_f, meta_f = client.scatter([q, meta], broadcast=True)
+    q_f, meta_f = client.scatter([q, meta], broadcast=True, hash=False)
     tag = id(parts)
     kept = [client.submit(_count, p, q_f, meta_f, dtypes, top, int(s), buckets, key=f"skipwise-check-{i}-{tag}",
                           pure=False) for i, (p, s) in enumerate(zip(parts, starts))]

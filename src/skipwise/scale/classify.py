@@ -188,7 +188,9 @@ def run_parts(client, parts: list[Part], q, staging: Path, faults_staging: Path,
     """One :func:`classify_part` task per partition; the summaries in partition order."""
     from distributed import as_completed
 
-    q_future, meta_future = client.scatter([q, meta], broadcast=True)  # shipped to every worker once
+    # shipped to every worker once; random keys (hash=False): a run's next step scattering the same
+    # questionnaire on the same cluster never meets the release of the last step's copy
+    q_future, meta_future = client.scatter([q, meta], broadcast=True, hash=False)
     futures = [client.submit(classify_part, p, q_future, str(staging), str(faults_staging), i, meta_future,
                              dtypes, part_format, fault_format, key=f"skipwise-classify-{i}-{id(parts)}", pure=False)
                for i, p in enumerate(parts)]

@@ -147,7 +147,7 @@ def report_on_cluster(parts: list[Part], q, out: Path, *, client, meta=None, dty
     check_columns(head, q)
     _check_options(head, weight, by, top_items, top_patterns, fault_rows, file, min_base)  # names and numbers
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
-    q_f, meta_f = client.scatter([q, meta], broadcast=True)  # shipped to every worker once
+    q_f, meta_f = client.scatter([q, meta], broadcast=True, hash=False)  # shipped to every worker once
     tag = id(parts)
     kept = [client.submit(_first, p, q_f, meta_f, dtypes, weight, by, limit, key=f"skipwise-report1-{i}-{tag}",
                           pure=False) for i, p in enumerate(parts)]
