@@ -107,9 +107,7 @@ def check_step(st, reporter: Reporter) -> None:
 def classify_step(st, reporter: Reporter) -> None:
     """Classify every partition on the workers; the fault listing joined on the client, counts merged."""
     from skipwise.classify.hints import invalid_hint_of_counts
-    from skipwise.pipeline.steps import _atomic
     from skipwise.scale.classify import merged, run_parts
-    from skipwise.scale.single import join_csv
 
     s = _session(st)
     data_dir, fault_dir = s.scratch / "classified", s.scratch / "faults"
@@ -119,10 +117,11 @@ def classify_step(st, reporter: Reporter) -> None:
         ordered = run_parts(s.client, s.parts, st.q, data_dir, fault_dir, meta=s.meta, dtypes=s.dtypes,
                             part_format="parquet", fault_format="csv", progress=advance)
     s.classified = res = merged(ordered)
-    with _atomic(st.targets["faults"]) as tmp:  # the in-memory listing's bytes, partition after partition
-        join_csv([fault_dir / o.faults_file for o in ordered], tmp)
-    for o in ordered:  # the classified parts are rewritten at export with the weights; not kept here
+    # The parts are not kept: the export writes the final data (with the weights) and the fault
+    # listing (in the in-memory order, item by item over the whole file) from the partitions again.
+    for o in ordered:
         (data_dir / o.file).unlink(missing_ok=True)
+        (fault_dir / o.faults_file).unlink(missing_ok=True)
     shares = res.counts.sum(axis=0)
     total = max(int(shares.sum()), 1)
     reporter.info(f"{s.rows:,} cases x {len(st.q.items)} items; "
@@ -177,7 +176,7 @@ class _FinalPart:
 
 def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[str, ...], weight: str | None,
                min_base: int, weights_part: str | None = None, weight_columns: tuple[str, ...] = (),
-               weight_meta=None) -> _FinalPart:
+               weight_meta=None, fault_folder: str | None = None) -> _FinalPart:
     """On a worker: one partition of the final data file (data + status columns), written in each
     format, with its codebook partial sums and item rates (weighted by ``weight`` when given)."""
     from skipwise.classify import classify
@@ -190,6 +189,8 @@ def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[st
 
     frame = read_part(part, meta, dtypes)
     cl = classify(frame, q)
+    if fault_folder is not None:
+        write_fault_chunks(cl, Path(fault_folder), index)
     out, out_meta = with_status_columns(frame, cl, delivery_meta(get_meta(frame), q, frame))
     if weights_part is not None:
         # the weighted part holds this partition's rows in the same order: its weight columns join by
@@ -209,6 +210,50 @@ def final_part(part, q, meta, dtypes, index: int, folder: str, formats: tuple[st
     rates = item_rates(cl, w, min_base=min_base)
     partial = column_partials(out, q, listed_values(out, q, out_meta), w)
     return _FinalPart(rows=len(out), head=out.head(0), meta=out_meta, rates=rates, partial=partial)
+
+
+def write_fault_chunks(cl, folder: Path, index: int) -> None:
+    """This partition's routing faults, one CSV file per item (``<item number>-<partition>.csv``),
+    each by the in-memory listing's own writer and header; the client joins them item by item."""
+    import numpy as np
+
+    from skipwise.classify.export import _fault_counts, _listing_columns
+    from skipwise.classify.faultlist import FAULT_COLUMNS
+    from skipwise.io.writers_table import write_csv_frames
+
+    header = [_listing_columns(cl, FAULT_COLUMNS).get(c, c) for c in FAULT_COLUMNS]
+    for j in np.flatnonzero(_fault_counts(cl)):  # as skipwise.classify.export.fault_listing_parts, one item each
+        rows = cl.fault_listing_of(np.array([j]))
+        write_csv_frames([rows.rename(columns=_listing_columns(cl, list(rows.columns)))],
+                         folder / f"{j:05d}-{index:05d}.csv", header)
+
+
+def join_fault_chunks(folder: Path, items: int, parts: int, target: Path, header: bytes) -> None:
+    """The chunks of :func:`write_fault_chunks` as one listing: item by item, partitions in file order
+    (the order of the in-memory listing), each chunk's header left out."""
+    import shutil
+
+    with open(target, "wb") as out:
+        out.write(header)
+        for j in range(items):
+            for i in range(parts):
+                chunk = folder / f"{j:05d}-{i:05d}.csv"
+                if not chunk.exists():
+                    continue
+                with open(chunk, "rb") as src:
+                    src.readline()  # the header (field names hold no line breaks)
+                    shutil.copyfileobj(src, out, 1 << 20)
+                chunk.unlink()
+
+
+def _fault_header(st) -> bytes:
+    from skipwise.classify.faultlist import FAULT_COLUMNS
+    from skipwise.io.writers_table import _csv_line
+
+    cid = st.q.case_id
+    names = [cid if c == "case_id" and cid and cid != "case_id" and cid not in FAULT_COLUMNS else c
+             for c in FAULT_COLUMNS]
+    return _csv_line(names).encode("utf-8")
 
 
 def _final_columns(st) -> list[str]:
@@ -239,9 +284,11 @@ def export_step(st, reporter: Reporter) -> None:
     weight = weight_name if weight_name in columns else None
     q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True, hash=False)
     wcols = tuple(st.weigh.weight_columns) if st.weigh is not None else ()
+    faults = s.scratch / "fault-chunks"
+    faults.mkdir()
     futures = [s.client.submit(final_part, p, q_f, meta_f, s.dtypes, i, str(folder), formats, weight,
                                st.plan.min_base, str(s.weighted[i]) if s.weighted else None, wcols, st.weight_meta,
-                               key=f"skipwise-run-final-{i}-{id(s)}", pure=False)
+                               str(faults), key=f"skipwise-run-final-{i}-{id(s)}", pure=False)
                for i, p in enumerate(s.parts)]
     from distributed import as_completed
 
@@ -251,6 +298,8 @@ def export_step(st, reporter: Reporter) -> None:
             done[fut.key] = fut.result()
             advance(done[fut.key].rows)
     ordered = [done[f.key] for f in futures]
+    with _atomic(st.targets["faults"]) as tmp:  # the in-memory listing's bytes and order
+        join_fault_chunks(faults, len(st.q.items), len(ordered), tmp, _fault_header(st))
     for role, fmt in zip(roles, formats):
         parts = [folder / fmt / f"part-{i:05d}.{fmt}" for i in range(len(ordered))]
         with _atomic(st.targets[role]) as tmp:  # one part at a time through the client
@@ -288,16 +337,6 @@ def summary(st) -> dict:
         out["respondents"] = int(st.weigh.totals["respondents"])
         out["RR3"] = st.weigh.rates.get("RR3")
     return out
-
-
-def refuse(message: str, hint: str, st, key: tuple[str, ...]) -> SkipwiseError:
-    from skipwise.errors import Category, Problem, ProblemCode
-
-    return SkipwiseError(Problem(code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(st.plan.file),
-                                 line=st.plan.line(*key) or st.plan.line("engine"), message=message, hint=hint))
-
-
-
 
 
 # --- weighting -----------------------------------------------------------------------------------
