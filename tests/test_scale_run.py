@@ -256,7 +256,7 @@ def test_weighted_manifest_lists_every_file(weighted):
     assert {p.name for p in dask.folder.iterdir()} == listed | {"manifest.json"}
 
 
-def test_a_weighting_file_and_estimates_are_refused_with_their_lines(inputs, client):
+def test_a_weighting_file_is_refused_with_its_line(inputs, client):
     from skipwise.errors import SkipwiseError
     from skipwise.pipeline.plan import load_run_plan
 
@@ -264,12 +264,44 @@ def test_a_weighting_file_and_estimates_are_refused_with_their_lines(inputs, cli
         load_run_plan(_plan(inputs, "wfile", _engine(client), "weighting: {plan: in/weights.yaml, data: in/survey.sav}\n"))
     text = str(err.value)
     assert "wfile.yaml:" in text and "weighting.data" in text
-    (inputs / "in" / "west.yaml").write_text(WEIGHTS + "estimates: {means: [hh_size]}\n", encoding="utf-8")
-    with pytest.raises(SkipwiseError) as err:
-        run_plan(_plan(inputs, "west", _engine(client), "weighting: {plan: in/west.yaml}\n"))
-    text = str(err.value)
-    assert "west.yaml:" in text and "estimates" in text and "engine: memory" in text
-    assert not (inputs / "west").exists()
+
+
+#: The interview split (share of the questionnaire's applicable items answered) and estimates from
+#: the answered cells only: both need the run's questionnaire, which the dask run passes to weigh.
+SPLIT_ESTIMATES = WEIGHTS.replace(
+    "  categories: {I: [110], P: [120], R: [212]}\n",
+    "  categories: {I: [110], P: [120], R: [212]}\n"
+    "  interview_split: {applies_to: [I, P], breakoff_below: 0.5, complete_above: 0.95, breakoff_to: R}\n",
+) + "estimates: {means: [hh_size, income], proportions: [tenure]}\n"
+
+
+def test_interview_split_and_estimates_equal_the_in_memory_run(inputs, client):
+    assert "interview_split" in SPLIT_ESTIMATES
+    (inputs / "in" / "split.yaml").write_text(SPLIT_ESTIMATES, encoding="utf-8")
+    extra = "weighting: {plan: in/split.yaml}\n"
+    report = "{by: [district], fault_rows: 50}"
+    mem = run_plan(_plan(inputs, "smem", "", extra, report=report))
+    dask = run_plan(_plan(inputs, "sdsk", _engine(client), extra, report=report))
+    ref = pd.read_parquet(mem.files["data_parquet"])
+    got = pd.read_parquet(dask.files["data_parquet"])
+    # the split moved completes (disposition 110) with under 95% of their items answered to partial
+    assert ref.loc[ref["disposition"] == 110, "wt_outcome"].nunique() == 2
+    pd.testing.assert_series_equal(got["wt_outcome"], ref["wt_outcome"])
+    for col in [c for c in ref.columns if c.startswith("wt_") and c != "wt_outcome"]:
+        np.testing.assert_allclose(got[col].to_numpy(float), ref[col].to_numpy(float), rtol=1e-9, atol=1e-9,
+                                   err_msg=col)
+    assert dask.manifest["summary"]["RR3"] == pytest.approx(mem.manifest["summary"]["RR3"], abs=1e-12)
+    ref_cells, got_cells = _cells(mem.files["weighting_workbook"]), _cells(dask.files["weighting_workbook"])
+    estimates = {k: v for k, v in ref_cells.items() if k[0] == "Estimates"}
+    assert any(v[0] == "income" for v in estimates.values())  # the estimates sheet is there, with income
+    assert ref_cells.keys() == got_cells.keys()
+    for key, (value, fmt) in ref_cells.items():
+        other, other_fmt = got_cells[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
+        else:
+            assert other == value, key
 
 
 # --- stage 3: diagnose and impute on gathered columns ----------------------------------------------

@@ -342,24 +342,14 @@ def summary(st) -> dict:
 # --- weighting -----------------------------------------------------------------------------------
 
 def _weighting_problems(st) -> None:
-    """What the weighting step cannot do on the dask engine, refused right after the plan is loaded."""
-    from skipwise.errors import Category, Problem, ProblemCode
+    """What the weighting step cannot do on the dask engine, refused right after the plan is loaded.
+
+    The run always has its questionnaire, so the interview split (share answered) and the estimates
+    (answered cells only) run on the partitions as in memory; what is left are the engine's own refusals.
+    """
     from skipwise.scale.weigh_replicates import refuse_unsupported
 
-    refuse_unsupported(st.weighting_plan)  # the engine's own refusals (e.g. interview_split), with their lines
-    plan, spec = st.plan, st.weighting_plan
-    problems = []
-    est = spec.estimates
-    if est is not None and (est.means or est.proportions):
-        problems.append(Problem(
-            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(spec.file),
-            line=spec.line("estimates"),
-            message="'engine: dask' in the run plan: the weighting plan's estimates would be computed from every "
-                    "stored value (codes included), not from the answered cells as the in-memory run does",
-            hint=f"remove 'estimates' from {Path(str(spec.file)).name} for the dask run (run skipwise weigh for "
-                 "them), or use engine: memory in the run plan"))
-    if problems:
-        raise SkipwiseError(problems)
+    refuse_unsupported(st.weighting_plan, st.q)
 
 
 def join_step(st, reporter: Reporter) -> None:
@@ -385,7 +375,8 @@ def weigh_step(st, reporter: Reporter) -> None:
 
         st.weigh = res = weigh_on_cluster(st.plan.data, spec, out, client=s.client, parts=s.parts, meta=s.meta,
                                           dtypes=s.dtypes, note=lambda text: reporter.info(f"note: {text}"),
-                                          on_design=on_design, progress=lambda _done: bar["advance"](1))
+                                          on_design=on_design, progress=lambda _done: bar["advance"](1),
+                                          questionnaire=st.q)  # the split's shares, answered cells for estimates
     s.weighted = [out / f"part-{i:05d}.parquet" for i in range(len(s.parts))]
     missing = [p for p in s.weighted if not p.exists()]
     if missing:
