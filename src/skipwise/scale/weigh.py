@@ -149,7 +149,7 @@ class ClusterChain:
             w = cal.logit_weights(dd, x, self.enc.t, lower=c.bounds[0], upper=c.bounds[1], tol=c.tolerance,
                                   max_iter=min(c.max_iterations, 200), enc=None)[0]
         bounds = np.concatenate([[0], np.cumsum(self.enc.resp_rows)])
-        scattered = self.d.client.scatter(w)
+        scattered = self.d.client.scatter(w, hash=False)
         return [self.d.client.submit(wp.take, scattered, int(bounds[i]), int(bounds[i + 1]), pure=False)
                 for i in range(len(self.d.states))]
 

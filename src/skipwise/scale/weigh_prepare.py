@@ -99,7 +99,7 @@ def prepare_on_cluster(client, parts: list, plan: WeightingPlan, dtypes: dict[st
     from skipwise.weighting.outcomes import bad_share_problem
 
     offsets = np.concatenate([[0], np.cumsum([p.rows for p in parts])])
-    plan_future, q_future, meta_future = client.scatter([plan, questionnaire, meta], broadcast=True)
+    plan_future, q_future, meta_future = client.scatter([plan, questionnaire, meta], broadcast=True, hash=False)
     pairs = [client.submit(wp.prepare_part, p, plan_future, int(offsets[i]), dtypes, q_future, meta_future,
                            pure=False) for i, p in enumerate(parts)]
     census = client.gather([client.submit(wp.census_of, f, pure=False) for f in pairs])

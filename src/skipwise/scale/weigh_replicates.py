@@ -178,7 +178,7 @@ def _estimates(client, parts: list, dist, plan, final: list, reps: list, design,
     """:func:`skipwise.weighting.replicates.replicate_standard_errors` from merged weighted sums."""
     from skipwise.weighting.replicates import replicate_variance
 
-    plan_future = client.scatter(plan, broadcast=True)
+    plan_future = client.scatter(plan, broadcast=True, hash=False)
     found = client.gather([client.submit(_estimate_sums, part, dist.states[i], plan_future, final[i],
                                          [r[i] for r in reps], dtypes, pure=False) for i, part in enumerate(parts)])
     merged: dict = {}
@@ -388,7 +388,7 @@ def weigh_on_cluster(source, plan, out: Path, *, client, parts: list, overwrite:
         estimates = _estimates(client, parts, dist, plan, stages["final"], reps, design, dtypes)
     res = chain.result(stages, result, design, tuple(columns), estimates)
     labels = weight_labels(res)
-    meta_future = client.scatter(meta, broadcast=True) if meta is not None else None
+    meta_future = client.scatter(meta, broadcast=True, hash=False) if meta is not None else None
 
     def submit(staging: str, forms: tuple[str, ...]) -> list:
         return [client.submit(_write_part, part, dist.states[i], i, staging,
