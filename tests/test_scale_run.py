@@ -372,7 +372,7 @@ def test_a_gather_over_the_budget_is_refused_with_the_plan_line(inputs, client, 
     assert not (inputs / "gbig").exists()
 
 
-def test_inputs_the_dask_engine_cannot_read_and_auto_are_refused(inputs, client):
+def test_inputs_the_dask_engine_cannot_read_are_refused(inputs, client):
     from skipwise.errors import SkipwiseError
     from skipwise.pipeline.plan import load_run_plan
 
@@ -382,6 +382,50 @@ def test_inputs_the_dask_engine_cannot_read_and_auto_are_refused(inputs, client)
     with pytest.raises(SkipwiseError) as err:
         load_run_plan(path)
     assert "xl.yaml:2" in str(err.value) and ".xlsx" in str(err.value)
-    with pytest.raises(SkipwiseError) as err:
-        run_plan(_plan(inputs, "auto", "engine: auto\n"))
-    assert "engine: dask" in str(err.value) and not (inputs / "auto").exists()
+
+
+class _Said:
+    """A reporter that keeps what the run says."""
+
+    def __init__(self):
+        self.lines: list[str] = []
+
+    def step(self, name, text):
+        pass
+
+    def info(self, text):
+        self.lines.append(text)
+
+    def progress(self, label, length):
+        import contextlib
+
+        return contextlib.nullcontext(lambda k: None)
+
+
+def test_engine_auto_picks_dask_only_over_the_budget_and_for_outputs_it_writes_alike(inputs, client, packages,
+                                                                                   monkeypatch):
+    """DESIGN section 7: auto chooses dask above the memory budget for outputs that allow it, says so,
+    and never changes the form of the output (a .sav status file keeps the run in memory)."""
+    from skipwise.engine_spec import MEMORY_BUDGET_ENV
+
+    auto = f"engine: {{kind: auto, scheduler: '{client.scheduler.address}', partition_rows: 800}}\n"
+    said = _Said()
+    fits = run_plan(_plan(inputs, "afit", auto), reporter=said)  # a 2,400-case file fits any machine
+    assert fits.manifest["plan"]["engine"]["kind"] == "memory"
+    assert not any("engine: auto" in line for line in said.lines)
+    monkeypatch.setenv(MEMORY_BUDGET_ENV, "1000")  # 1 kB: over the budget
+    said = _Said()
+    over = run_plan(_plan(inputs, "aover", auto), reporter=said)  # status_columns: parquet and csv
+    assert over.manifest["plan"]["engine"]["kind"] == "dask"
+    assert any("engine: auto" in line and "using the dask engine" in line for line in said.lines), said.lines
+    _, dask = packages  # the same plan run with engine: dask
+    pd.testing.assert_frame_equal(pd.read_parquet(over.files["data_parquet"]),
+                                  pd.read_parquet(dask.files["data_parquet"]))
+    said = _Said()
+    path = _plan(inputs, "asav", auto)
+    path.write_text(path.read_text().replace("status_columns: [parquet, csv]", "status_columns: [input]"))
+    kept = run_plan(path, reporter=said)  # a .sav status file: the dask engine does not write it
+    assert kept.manifest["plan"]["engine"]["kind"] == "memory"
+    assert any("writes Parquet or CSV only" in line and "in-memory engine" in line for line in said.lines), \
+        said.lines
+    assert (kept.folder / "survey.sav").exists()

@@ -109,6 +109,8 @@ class RunPlan:
     min_base: int = 30   # minimum unweighted D for a rate to be ranked (common practice, no source)
     study: Mapping[str, str] = field(default_factory=dict)   # overrides the questionnaire's study block key by key
     engine: EngineSpec = field(default_factory=EngineSpec)   # where classify, check and report compute
+    #: With ``engine: auto``: why this plan cannot run on the dask engine (its outputs or inputs), if so.
+    engine_blockers: tuple[str, ...] = ()
     lines: Mapping[tuple, int] = field(default_factory=dict)
 
     def line(self, *path: str) -> int | None:
@@ -348,7 +350,7 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
                       f"{SAS_OUTPUT_REASON}", r.lines.get(("output", key)) or (out_raw.line if out_raw else doc.line),
                       f"name the formats, e.g. output: {{{key}: " + ("dta}" if key == "imputed_format"
                                                                     else "[dta, parquet]}"))
-    engine = _engine(r, doc, report_on, diagnose_on, weighting, imputation, out, data)
+    engine, blockers = _engine(r, doc, report_on, diagnose_on, weighting, imputation, out, data)
     r.problems.raise_if_any(headline=f"{len(r.problems)} problem(s) in run plan {file}")
 
     assert data is not None and questionnaire is not None
@@ -363,15 +365,20 @@ def loads_run_plan(text: str, file: str | Path) -> RunPlan:
         diagnose=DiagnoseOptionsSpec(**diagnose) if diagnose_on else None,
         weighting_plan=weighting.get("plan"), weighting_data=weighting.get("data"),
         imputation_plan=imputation.get("plan"), min_base=min_base, study=study, lines=dict(r.lines),
-        engine=engine,
+        engine=engine, engine_blockers=blockers,
     )
 
 
 def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weighting: dict, imputation: dict,
-            out: dict, data: Path | None) -> EngineSpec:
-    """The ``engine`` key (skipwise.engine_spec), and the steps and outputs the chosen engine cannot do."""
+            out: dict, data: Path | None) -> tuple[EngineSpec, tuple[str, ...]]:
+    """The ``engine`` key (skipwise.engine_spec), and the steps and outputs the dask engine cannot do.
+
+    With ``engine: dask`` these are problems of the plan; with ``engine: auto`` they are returned
+    (the reasons the run stays in memory whatever the data's size: auto never changes the form of
+    the output, DESIGN section 7).
+    """
     if "engine" not in doc:
-        return EngineSpec()
+        return EngineSpec(), ()
     raw = doc["engine"]
     line = doc.key_line("engine")
     r.lines[("engine",)] = line
@@ -383,36 +390,44 @@ def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weigh
     spec = parse_engine(raw, line=line, key_line=key_line,
                         add=lambda code, message, at, hint=None: r.add(code, message, at, hint))
     if spec.kind == "memory":
-        return spec
+        return spec, ()
+    found: list[tuple] = []
+
+    def add(code, message: str, at, hint=None) -> None:
+        found.append((code, message, at, hint))
     steps = ["classify", "check"] + (["report"] if report_on else []) + (["diagnose"] if diagnose_on else [])
     steps += (["weigh"] if weighting.get("plan") is not None else []) + \
         (["impute"] if imputation.get("plan") is not None else [])
     for step in unsupported_steps(spec, steps):
         key = {"weigh": "weighting", "impute": "imputation"}.get(step, step)
-        r.add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}': the step '{step}' has no dask engine in this "
+        add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}': the step '{step}' has no dask engine in this "
               "version", r.lines.get((key,)) or line,
               f"turn it off ({key}: false, or leave the key out) or use engine: memory")
     if weighting.get("plan") is not None and weighting.get("data") is not None:
-        r.add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}' weighs the data file itself in this version: the "
+        add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}' weighs the data file itself in this version: the "
               "weights of a separate weighting file are not joined by case id across partitions",
               r.lines.get(("weighting", "data")) or r.lines.get(("weighting",)) or line,
               "leave out weighting.data (the interview file is weighted), or use engine: memory")
     readable = (".parquet", ".sav", ".zsav", ".dta", ".sas7bdat", ".csv")  # skipwise.cli.engine.DASK_INPUTS
     if data is not None and data.suffix.lower() not in readable:
-        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' reads {', '.join(readable)} data, not "
+        add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' reads {', '.join(readable)} data, not "
               f"{data.suffix or 'a file without a suffix'}", r.lines.get(("data",)) or line,
               "convert the file to Parquet first, or use engine: memory")
     own = data.suffix.lower().lstrip(".") if data is not None else "parquet"
     chosen = [own if f == "input" else f for f in out.get("status_columns", ("input", "parquet"))]
     formats = [f for f in dict.fromkeys(chosen) if f not in ("parquet", "csv")]
     if formats:
-        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes Parquet or CSV only, and "
+        add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes Parquet or CSV only, and "
               f"'output.status_columns' names {', '.join(formats)}",
               r.lines.get(("output", "status_columns")) or line, "e.g. status_columns: [parquet]")
     if out.get("recoded"):
-        r.add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes the columns form only",
+        add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' writes the columns form only",
               r.lines.get(("output", "recoded")) or line, "leave out 'output.recoded'")
-    return spec
+    if spec.kind == "auto":
+        return spec, tuple(message.replace("'engine: auto'", "the dask engine") for _, message, _, _ in found)
+    for problem in found:
+        r.add(*problem)
+    return spec, ()
 
 
 def load_run_plan(path: str | Path) -> RunPlan:

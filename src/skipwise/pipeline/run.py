@@ -237,11 +237,7 @@ def run_plan(plan: RunPlan | str | Path, *, overwrite: bool = False, reporter: R
     if not isinstance(plan, RunPlan):
         plan = load_run_plan(plan)
     if plan.engine.kind == "auto":
-        raise SkipwiseError(Problem(
-            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file), line=plan.line("engine"),
-            message="'engine: auto': skipwise run needs the engine named, since the two write the package's "
-                    "data file in different forms (one Parquet or CSV file on the dask engine)",
-            hint="write engine: dask (docs/scale.md) or engine: memory"))
+        plan = resolve_auto_engine(plan, reporter)
     started = _now()
     records: list[StepRecord] = []
     st = S.RunState(plan=plan, targets={})
@@ -310,6 +306,30 @@ def _memory_steps(st: S.RunState) -> list[tuple[str, Callable | None]]:
         ("impute", S.impute_step if st.imputation_plan is not None else None),
         ("export", _export),
     ]
+
+
+def resolve_auto_engine(plan: RunPlan, reporter: Reporter) -> RunPlan:
+    """``engine: auto``: the dask engine when the data would not fit the memory budget and the plan's
+    outputs and inputs are ones the dask engine handles in the same form, else in memory; said on the
+    console when the data are over the budget (as ``--engine auto`` does for the commands).
+
+    The memory need is the commands' estimate (:func:`skipwise.cli.engine.data_size`, times their
+    working factor) against ``$SKIPWISE_MEMORY_BUDGET`` or the memory available.
+    """
+    from dataclasses import replace
+
+    from skipwise.cli.engine import WORKING_FACTOR, data_size, memory_budget
+
+    need, budget = WORKING_FACTOR * data_size(plan.data), memory_budget()
+    kind = "memory"
+    if need > budget:
+        size = f"the data need about {need / 1e9:,.1f} GB in memory (budget {budget / 1e9:,.1f} GB)"
+        if plan.engine_blockers:
+            reporter.info(f"engine: auto: {size}, but {plan.engine_blockers[0]}; using the in-memory engine")
+        else:
+            kind = "dask"
+            reporter.info(f"engine: auto: {size}; using the dask engine (partitions on a Dask cluster)")
+    return replace(plan, engine=replace(plan.engine, kind=kind), engine_blockers=())
 
 
 def _dask_steps(st: S.RunState) -> list[tuple[str, Callable | None]]:
