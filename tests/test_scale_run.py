@@ -256,16 +256,6 @@ def test_weighted_manifest_lists_every_file(weighted):
     assert {p.name for p in dask.folder.iterdir()} == listed | {"manifest.json"}
 
 
-def test_a_weighting_file_is_refused_with_its_line(inputs, client):
-    from skipwise.errors import SkipwiseError
-    from skipwise.pipeline.plan import load_run_plan
-
-    with pytest.raises(SkipwiseError) as err:
-        load_run_plan(_plan(inputs, "wfile", _engine(client), "weighting: {plan: in/weights.yaml, data: in/survey.sav}\n"))
-    text = str(err.value)
-    assert "wfile.yaml:" in text and "weighting.data" in text
-
-
 #: The interview split (share of the questionnaire's applicable items answered) and estimates from
 #: the answered cells only: both need the run's questionnaire, which the dask run passes to weigh.
 SPLIT_ESTIMATES = WEIGHTS.replace(
@@ -429,3 +419,90 @@ def test_engine_auto_picks_dask_only_over_the_budget_and_for_outputs_it_writes_a
     assert any("writes Parquet or CSV only" in line and "in-memory engine" in line for line in said.lines), \
         said.lines
     assert (kept.folder / "survey.sav").exists()
+
+
+# --- a separate weighting file: the demo scenario's sample file --------------------------------------
+
+@pytest.fixture(scope="module")
+def sampled(tmp_path_factory, client):
+    """The demo's own plan (interviews .sav, every sampled address in sample_with_answers.parquet as the
+    weighting file), run in memory and on the dask engine with the outputs both engines write."""
+    import yaml
+
+    from skipwise.demo import generate
+    from skipwise.demo.plan import write_demo_plans
+
+    root = tmp_path_factory.mktemp("run-dask-sample")
+    scenario = generate()
+    scenario.write(root / "data")
+    doc = yaml.safe_load(write_demo_plans(scenario, root).read_text(encoding="utf-8"))
+    doc["output"] = {"folder": "mem", "name": "survey", "status_columns": ["parquet", "csv"],
+                     "timestamp": "2026-06-30T12:00:00"}
+    doc["diagnose"] = False
+    doc.pop("imputation")
+    doc["report"]["fault_rows"] = 50
+    (root / "mem.yaml").write_text(yaml.safe_dump(doc), encoding="utf-8")
+    doc["output"]["folder"] = "dsk"
+    doc["engine"] = {"kind": "dask", "scheduler": client.scheduler.address, "partition_rows": 800}
+    (root / "dsk.yaml").write_text(yaml.safe_dump(doc), encoding="utf-8")
+    said = _Said()
+    dask = run_plan(root / "dsk.yaml", reporter=said)
+    return run_plan(root / "mem.yaml"), dask, said
+
+
+def test_a_separate_weighting_file_gives_the_in_memory_weights(sampled):
+    mem, dask, said = sampled
+    assert dask.manifest["engine"]["partitions"] == 3  # 2,249 interviews in parts of 800
+    assert any("read on the client" in line for line in said.lines), said.lines
+    ref, got = pd.read_parquet(mem.files["data_parquet"]), pd.read_parquet(dask.files["data_parquet"])
+    assert list(got.columns) == list(ref.columns)
+    made = [c for c in ref.columns if c.startswith("wt_")]
+    assert {"wt_final", "wt_rep001", "age_band"} <= set(ref.columns)  # weights and a derived margin variable
+    for col in made:
+        np.testing.assert_allclose(got[col].to_numpy(float), ref[col].to_numpy(float), rtol=1e-9, atol=1e-9,
+                                   err_msg=col)
+    pd.testing.assert_frame_equal(got.drop(columns=made), ref.drop(columns=made))
+    # the weighted weighting file (every sampled address), as in memory
+    w_ref = pd.read_parquet(mem.files["weighted_frame"])
+    w_got = pd.read_parquet(dask.files["weighted_frame"])
+    assert len(w_ref) == 5000 and list(w_got.columns) == list(w_ref.columns)
+    pd.testing.assert_frame_equal(w_got, w_ref, check_exact=False, rtol=1e-9, atol=1e-9)
+    assert dask.manifest["summary"]["RR3"] == pytest.approx(mem.manifest["summary"]["RR3"], abs=1e-12)
+
+
+@pytest.mark.parametrize("role", ["weighting_workbook", "item_report"])
+def test_a_separate_weighting_file_gives_the_in_memory_workbooks(sampled, role):
+    mem, dask, _ = sampled
+    ref, got = _cells(mem.files[role]), _cells(dask.files[role])
+    assert ref.keys() == got.keys()
+    for key, (value, fmt) in ref.items():
+        other, other_fmt = got[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
+        else:
+            assert other == value, key
+
+
+def test_a_weighting_file_over_the_gather_budget_is_refused_with_its_line(sampled, monkeypatch):
+    from skipwise.errors import SkipwiseError
+    from skipwise.scale.weigh import GATHER_BUDGET_ENV
+
+    mem, dask, _ = sampled
+    plan = Path(dask.manifest["plan"]["file"])
+    monkeypatch.setenv(GATHER_BUDGET_ENV, "1000")
+    doc = plan.read_text(encoding="utf-8").replace("folder: dsk", "folder: over")
+    (plan.parent / "over.yaml").write_text(doc, encoding="utf-8")
+    with pytest.raises(SkipwiseError) as err:
+        run_plan(plan.parent / "over.yaml")
+    text = str(err.value)
+    assert "over.yaml:" in text and "weighting.data" in text and GATHER_BUDGET_ENV in text
+    assert not (plan.parent / "over").exists()
+
+
+@pytest.mark.parametrize("role", ["codebook_md", "codebook_html"])
+def test_a_separate_weighting_file_gives_the_in_memory_codebook(sampled, role):
+    mem, dask, _ = sampled
+    ref = mem.files[role].read_text(encoding="utf-8")
+    assert "wt_final" in ref and "age_band" in ref
+    assert dask.files[role].read_text(encoding="utf-8").replace("dsk.yaml", "mem.yaml") == ref

@@ -18,6 +18,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any, Iterator
 
+import numpy as np
 import pandas as pd
 
 from skipwise.errors import SkipwiseError
@@ -41,6 +42,7 @@ class DaskSession:
     head: Any = None                 # the data's columns, their types and metadata (no rows)
     report: Any = None               # skipwise.scale.report.ClusterReport
     notes: list[str] = field(default_factory=list)
+    facts: Any = None                # with a separate weighting file: the interviews' ids, shares, answers
 
 
 @contextlib.contextmanager
@@ -84,6 +86,8 @@ def read_step(st, reporter: Reporter) -> None:
     st.data = s.head = read_part(Part(s.parts[0].path, (), 0), s.meta, s.dtypes)
     reporter.info(f"{plan.data.name}: {s.rows:,} cases, {st.data.shape[1]:,} columns "
                   f"({len(s.parts):,} partitions on the dask engine)")
+    if plan.weighting_data is not None:
+        _read_weighting_file(st, reporter)
     if st.imputation_plan is not None:
         from skipwise.impute.plan import check_plan
 
@@ -141,7 +145,7 @@ def report_step(st, reporter: Reporter) -> None:
     o = st.plan.report
     name, _ = report_weight(st)
     parts = s.parts
-    if s.weighted and name in st.weigh.weight_columns:
+    if s.weighted and name in st.weights.columns:
         # a weight the run made: read from the weighted parts (the data's columns and the weights, same rows)
         from skipwise.scale.sources import parquet_parts
 
@@ -259,7 +263,7 @@ def _fault_header(st) -> bytes:
 def _final_columns(st) -> list[str]:
     from skipwise.classify.export import STATUS_SUFFIX
 
-    weights = list(st.weigh.weight_columns) if st.weigh is not None else []
+    weights = list(st.weights.columns) if st.weights is not None else []
     return [*map(str, _session(st).head.columns), *(f"{n}{STATUS_SUFFIX}" for n in st.q.item_names), *weights]
 
 
@@ -283,7 +287,7 @@ def export_step(st, reporter: Reporter) -> None:
     columns = _final_columns(st)
     weight = weight_name if weight_name in columns else None
     q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True, hash=False)
-    wcols = tuple(st.weigh.weight_columns) if st.weigh is not None else ()
+    wcols = tuple(st.weights.columns) if st.weights is not None else ()
     faults = s.scratch / "fault-chunks"
     faults.mkdir()
     futures = [s.client.submit(final_part, p, q_f, meta_f, s.dtypes, i, str(folder), formats, weight,
@@ -353,16 +357,105 @@ def _weighting_problems(st) -> None:
 
 
 def join_step(st, reporter: Reporter) -> None:
-    """Nothing to join: the dask run weighs the data file itself (weighting.data is refused)."""
-    reporter.info("the data file is weighted itself: nothing to join")
+    """With a separate weighting file: the interviews' case ids, shares answered and estimate values
+    gathered from the partitions, and the estimate variables the weighting file lacks joined to it
+    on the client by case id (as in memory); else nothing to join."""
+    from skipwise.pipeline.join import estimate_columns
+    from skipwise.pipeline.steps import join_interviews
+
+    if st.weighting_data is None:
+        reporter.info("the data file is weighted itself: nothing to join")
+        return
+    s = _session(st)
+    spec = st.weighting_plan
+    case_id = spec.case_id or st.q.case_id
+    names = set(map(str, s.head.columns))
+    wanted = [c for c in estimate_columns(spec) if c in names]
+    raw = [c for c in wanted if c not in st.weighting_data.columns]  # what join_answers takes from the data
+    q_f, meta_f = s.client.scatter([st.q, s.meta], broadcast=True, hash=False)
+    futures = [s.client.submit(interview_facts, p, q_f, meta_f, s.dtypes, case_id if case_id in names else None,
+                               raw, wanted, pure=False) for p in s.parts]
+    facts = s.client.gather(futures)  # partitions in file order
+    s.facts = _Facts(ids=pd.concat([f.ids for f in facts], ignore_index=True),
+                     share=pd.concat([f.share for f in facts], ignore_index=True),
+                     answered=pd.concat([f.answered for f in facts], ignore_index=True))
+    if case_id in names:
+        join_interviews(st, pd.concat([f.ids for f in facts], ignore_index=True), reporter)
+    else:
+        st.joined, st.joined_columns = st.weighting_data, []
+
+
+@dataclass(frozen=True)
+class _Facts:
+    """What the in-memory weigh step reads of the interviews, gathered: case ids (with the raw
+    estimate columns the weighting file lacks), shares answered and answered estimate values."""
+
+    ids: pd.DataFrame
+    share: pd.Series
+    answered: pd.DataFrame
+
+
+class _Answered:
+    """The part of a Classification that :func:`skipwise.pipeline.steps.answered_values` reads."""
+
+    def __init__(self, values: pd.DataFrame):
+        self.values = values
+
+    def analysis_values(self, source=None) -> pd.DataFrame:
+        return self.values
+
+
+def interview_facts(part, q, meta, dtypes, case_id: str | None, raw: list[str], wanted: list[str]) -> _Facts:
+    """On a worker, row-local: a partition's case ids with ``raw``, its cases' shares answered and the
+    answered values of the estimate items ``wanted`` (NaN for every other status)."""
+    from skipwise.classify import classify
+    from skipwise.scale.sources import read_part
+
+    frame = read_part(part, meta, dtypes)
+    cl = classify(frame, q)
+    values = cl.analysis_values(frame)
+    ids = frame[[case_id, *raw]].reset_index(drop=True) if case_id else pd.DataFrame(index=range(len(frame)))
+    return _Facts(ids=ids, share=cl.cases["share_answered"].reset_index(drop=True),
+                  answered=values[[c for c in wanted if c in values.columns]].reset_index(drop=True))
+
+
+def _read_weighting_file(st, reporter: Reporter) -> None:
+    """The weighting file (every sampled case) read on the client, as the in-memory run reads it,
+    when it and the gathered interview facts fit the gather budget; else a refusal with its line."""
+    from skipwise.cli.engine import data_size
+    from skipwise.errors import Category, Problem, ProblemCode
+    from skipwise.io import read_survey
+    from skipwise.pipeline.join import estimate_columns
+    from skipwise.scale.weigh import GATHER_BUDGET_ENV, gather_budget
+
+    s, plan = _session(st), st.plan
+    need = data_size(plan.weighting_data) + 8 * s.rows * (2 + 2 * len(estimate_columns(st.weighting_plan)))
+    budget = gather_budget()
+    if need > budget:
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_VALUE, category=Category.USAGE, file=str(plan.file),
+            line=plan.line("weighting", "data"), item="weighting.data",
+            message=f"'engine: dask': the weighting file {plan.weighting_data.name} is weighed on the client, with "
+                    f"the interviews' case ids, shares answered and estimate values: about {need / 1e6:,.1f} MB, "
+                    f"more than the gather budget of {budget / 1e6:,.1f} MB",
+            hint=f"raise {GATHER_BUDGET_ENV} (bytes) if the client has the memory, weigh the data file itself "
+                 "(leave out weighting.data), or use engine: memory"))
+    st.weighting_data = read_survey(plan.weighting_data)
+    reporter.info(f"{plan.weighting_data.name} (weighting): {len(st.weighting_data):,} cases, read on the client "
+                  f"(about {need / 1e6:,.1f} MB of the gather budget of {budget / 1e6:,.1f} MB with the "
+                  "interviews' ids, shares and estimate values)")
 
 
 def weigh_step(st, reporter: Reporter) -> None:
-    """``weigh --engine dask`` on the run's partitions; the workbook on the client, the weights in parts."""
+    """``weigh --engine dask`` on the run's partitions (the workbook on the client, the weights in
+    parts); with a separate weighting file, the in-memory weighting of that file on the client."""
+    if st.weighting_data is not None:
+        _weigh_weighting_file(st, reporter)
+        return
     from skipwise.io import SurveyMeta
-    from skipwise.pipeline.steps import weight_meta
+    from skipwise.pipeline.steps import weigh_summary, weight_meta
     from skipwise.scale.weigh_replicates import weigh_on_cluster
-    from skipwise.weighting.workbook import summary_rows, write_workbook
+    from skipwise.weighting.workbook import write_workbook
 
     s = _session(st)
     spec = st.weighting_plan
@@ -385,14 +478,45 @@ def weigh_step(st, reporter: Reporter) -> None:
     cols = list(res.weight_columns)
     st.weights = pd.DataFrame(columns=cols, dtype=float)  # names only: the weights stay in the parts
     st.weight_meta = weight_meta(res, SurveyMeta())
-    for name, value in summary_rows(res):
-        if name in ("respondents (weighted cases)", "sum of final weights", "Kish design effect (final)",
-                    "response rate RR3 (unweighted)"):
-            reporter.info(f"{name}: {value:,.4f}" if isinstance(value, float) else f"{name}: {value}")
-    for note in res.chain.notes:
-        reporter.info(f"note: {note}")
+    weigh_summary(res, reporter)
 
 
+def _weigh_weighting_file(st, reporter: Reporter) -> None:
+    """The weighting file weighed on the client by the in-memory engine (the same function as the
+    in-memory run), its weights matched to the interviews by case id there, then handed to each
+    partition's worker, which writes the partition with its weights as a weighted part."""
+    from skipwise.pipeline.steps import weigh_summary, weigh_weighting_file
+
+    s = _session(st)
+    f = s.facts
+    weights = weigh_weighting_file(st, _Answered(f.answered), f.ids, f.share, s.head.columns, reporter)
+    out = s.scratch / "weighted"
+    out.mkdir()
+    bounds = np.concatenate([[0], np.cumsum([p.rows for p in s.parts])])
+    futures = []
+    for i, p in enumerate(s.parts):  # partitions in file order: the gathered rows' order
+        chunk = s.client.scatter(weights.iloc[bounds[i]:bounds[i + 1]].reset_index(drop=True), hash=False)
+        futures.append(s.client.submit(weighted_part, p, s.meta, s.dtypes, chunk, str(out / f"part-{i:05d}.parquet"),
+                                       pure=False))
+    s.client.gather(futures)
+    s.weighted = [out / f"part-{i:05d}.parquet" for i in range(len(s.parts))]
+    st.weights = pd.DataFrame(columns=list(weights.columns), dtype=float)  # names only: the weights are in the parts
+    weigh_summary(st.weigh, reporter)
+
+
+def weighted_part(part, meta, dtypes, weights: pd.DataFrame, path: str) -> int:
+    """On a worker: one partition with its weights (the same rows, in order) written as a Parquet part."""
+    from skipwise.io import get_meta, write_survey
+    from skipwise.scale.sources import read_part
+
+    frame = read_part(part, meta, dtypes)
+    if len(weights) != len(frame):
+        raise RuntimeError(f"{len(weights)} rows of weights for a partition of {len(frame)} rows")
+    own = get_meta(frame)
+    out = pd.concat([frame, weights.set_axis(frame.index)], axis=1)
+    out.attrs = {}
+    write_survey(out, Path(path), own, overwrite=True)
+    return len(out)
 
 
 # --- diagnose and impute: the columns they need, gathered when they fit the budget ---------------
@@ -418,7 +542,7 @@ def _gathered(st, columns: list[str], weights: bool, step: str, key: str):
     from skipwise.scale.weigh import GATHER_BUDGET_ENV, gather_budget, refuse_gather
 
     s = _session(st)
-    wcols = list(st.weigh.weight_columns) if weights and st.weigh is not None else []
+    wcols = list(st.weights.columns) if weights and st.weights is not None else []
     need = 8 * s.rows * (len(columns) + len(wcols))  # 8 bytes a cell (text columns take more)
     budget = gather_budget()
     if need > budget:

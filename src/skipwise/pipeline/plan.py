@@ -403,11 +403,6 @@ def _engine(r: _Reader, doc: LineDict, report_on: bool, diagnose_on: bool, weigh
         add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}': the step '{step}' has no dask engine in this "
               "version", r.lines.get((key,)) or line,
               f"turn it off ({key}: false, or leave the key out) or use engine: memory")
-    if weighting.get("plan") is not None and weighting.get("data") is not None:
-        add(ProblemCode.BAD_VALUE, f"'engine: {spec.kind}' weighs the data file itself in this version: the "
-              "weights of a separate weighting file are not joined by case id across partitions",
-              r.lines.get(("weighting", "data")) or r.lines.get(("weighting",)) or line,
-              "leave out weighting.data (the interview file is weighted), or use engine: memory")
     readable = (".parquet", ".sav", ".zsav", ".dta", ".sas7bdat", ".csv")  # skipwise.cli.engine.DASK_INPUTS
     if data is not None and data.suffix.lower() not in readable:
         add(ProblemCode.FILE_FORMAT, f"'engine: {spec.kind}' reads {', '.join(readable)} data, not "

@@ -255,17 +255,23 @@ def report_step(st: RunState, reporter: Reporter) -> None:
 
 def join_step(st: RunState, reporter: Reporter) -> None:
     """Join the estimate variables the weighting file lacks from the interviews, by case id."""
-    from skipwise.pipeline.join import join_answers
-
-    spec = st.weighting_plan
     if st.weighting_data is None:
         st.joined = st.data
         return
+    join_interviews(st, st.data, reporter)
+
+
+def join_interviews(st: RunState, data: pd.DataFrame, reporter: Reporter) -> None:
+    """``st.joined``: the weighting file with the estimate variables it lacks from ``data`` (the
+    interviews, or on the dask engine their case ids and those columns), by case id; both engines."""
+    from skipwise.pipeline.join import join_answers
+
+    spec = st.weighting_plan
     case_id = spec.case_id or st.q.case_id
-    st.joined, st.joined_columns = join_answers(st.weighting_data, st.data, spec, case_id,
+    st.joined, st.joined_columns = join_answers(st.weighting_data, data, spec, case_id,
                                                 weighting_file=str(st.plan.weighting_data))
     if st.joined_columns:
-        matched = int(st.weighting_data[case_id].isin(st.data[case_id]).sum())
+        matched = int(st.weighting_data[case_id].isin(data[case_id]).sum())
         reporter.info(f"joined {', '.join(st.joined_columns)} from {st.plan.data.name} to "
                       f"{st.plan.weighting_data.name} by {case_id}: {matched:,} of {len(st.joined):,} cases matched")
     else:
@@ -273,53 +279,94 @@ def join_step(st: RunState, reporter: Reporter) -> None:
 
 
 def weigh_step(st: RunState, reporter: Reporter) -> None:
-    from skipwise.pipeline.derived import derived_columns, derived_meta
-    from skipwise.weighting.workbook import summary_rows, write_workbook
+    from skipwise.weighting.workbook import write_workbook
 
     spec = st.weighting_plan
-    own = st.weighting_data is not None
-    frame = st.joined if st.joined is not None else (st.weighting_data if own else st.data)
-    share = st.cl.cases["share_answered"]
-    case_id = spec.case_id or st.q.case_id
-    if own:
-        if case_id not in frame.columns or case_id not in st.data.columns:
-            raise SkipwiseError(Problem(
-                code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=case_id, file=str(spec.file),
-                message="the case id column must be in both the data file and the weighting file",
-                hint="set case_id in the weighting plan to the id the two files share"))
-        share = frame[case_id].map(pd.Series(share.to_numpy(), index=st.data[case_id].to_numpy()))
+    if st.weighting_data is not None:
+        st.weights = weigh_weighting_file(st, st.cl, st.data, st.cl.cases["share_answered"], st.data.columns,
+                                          reporter).set_axis(st.data.index)
+        weigh_summary(st.weigh, reporter)
+        return
     # Estimates use answered cells only: never invalid values, off-route answers or codes.
-    values = answered_values(st.cl, frame, spec, case_id=case_id, source=st.data if own else None)
-    st.weigh = res = weigh_with_progress(frame, spec, share_answered=share, reporter=reporter,
+    values = answered_values(st.cl, st.data, spec)
+    st.weigh = res = weigh_with_progress(st.data, spec, share_answered=st.cl.cases["share_answered"],
+                                         reporter=reporter, estimate_values=values)
+    write_workbook(res, st.targets["weighting_workbook"], overwrite=True)
+    st.weights = res.data[list(res.weight_columns)]
+    st.weight_meta = weight_meta(res, SurveyMeta())
+    weigh_summary(res, reporter)
+
+
+def weigh_weighting_file(st: RunState, cl, source: pd.DataFrame, share: pd.Series, data_columns,
+                         reporter: Reporter) -> pd.DataFrame:
+    """Weigh a separate weighting file (``st.joined``: every sampled case) and return its weights for
+    the data file's cases (:func:`sample_weights`); both engines.
+
+    ``source`` holds the data file's case ids (and, in memory, every column), ``share`` each of its
+    cases' share of applicable items answered (same rows), ``cl`` the classification whose
+    ``analysis_values(source)`` gives the answered values of the estimate items.
+    """
+    from skipwise.weighting.workbook import write_workbook
+
+    spec = st.weighting_plan
+    frame = st.joined
+    case_id = spec.case_id or st.q.case_id
+    if case_id not in frame.columns or case_id not in set(map(str, data_columns)):
+        raise SkipwiseError(Problem(
+            code=ProblemCode.MISSING_COLUMN, category=Category.DATA, item=case_id, file=str(spec.file),
+            message="the case id column must be in both the data file and the weighting file",
+            hint="set case_id in the weighting plan to the id the two files share"))
+    shares = frame[case_id].map(pd.Series(np.asarray(share), index=source[case_id].to_numpy()))
+    # Estimates use answered cells only: never invalid values, off-route answers or codes.
+    values = answered_values(cl, frame, spec, case_id=case_id, source=source)
+    st.weigh = res = weigh_with_progress(frame, spec, share_answered=shares, reporter=reporter,
                                          estimate_values=values)
     write_workbook(res, st.targets["weighting_workbook"], overwrite=True)
+    return sample_weights(st, res, case_id, source[case_id], data_columns, reporter)
+
+
+def sample_weights(st: RunState, res, case_id: str, data_ids: pd.Series, data_columns, reporter: Reporter
+                   ) -> pd.DataFrame:
+    """A separate weighting file's weights for the data file's cases, matched by case id.
+
+    Writes the weighted weighting file (as given, plus its weights) where the plan asks for it,
+    sets ``st.weight_meta`` and returns the weight columns and the weighting variables the data
+    file lacks (e.g. an age band made for a margin), one row per id of ``data_ids`` (blank where
+    the weighting file lacks the case).  Used by both engines.
+    """
+    from skipwise.pipeline.derived import derived_columns, derived_meta
+
+    spec = st.weighting_plan
     cols = list(res.weight_columns)
-    if own:
-        meta = weight_meta(res)
-        written = res.data.drop(columns=st.joined_columns, errors="ignore")  # the weighting file as given, plus its weights
-        for role in ("weighted_frame", "weighted_frame_parquet"):
-            if role in st.targets:
-                write_data(written, st.targets[role], meta, reporter)
-        extra = derived_columns(spec, res.data, st.data.columns)  # e.g. an age band made for a margin
-        by_id = res.data.set_index(case_id)[cols + extra]
-        if by_id.index.has_duplicates:
-            raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,
-                                        file=str(st.plan.weighting_data),
-                                        message="case ids repeat in the weighting file: weights cannot be joined"))
-        st.weights = by_id.reindex(st.data[case_id].to_numpy()).set_axis(st.data.index)
-        missing = int(st.weights[cols[-1]].isna().sum())
-        if missing and missing == len(st.data):
-            raise SkipwiseError(Problem(
-                code=ProblemCode.BAD_DATA, category=Category.DATA, item=case_id, file=str(st.plan.weighting_data),
-                message="no case id of the data file is in the weighting file",
-                hint="both files must hold the same ids, stored the same way (numbers or text)"))
-        if missing:
-            st.notes.append(f"{missing:,} case(s) of the data file are not in the weighting file: their weights are blank")
-    else:
-        st.weights = res.data[cols]
+    written = res.data.drop(columns=st.joined_columns, errors="ignore")  # the weighting file as given, plus its weights
+    for role in ("weighted_frame", "weighted_frame_parquet"):
+        if role in st.targets:
+            write_data(written, st.targets[role], weight_meta(res), reporter)
+    extra = derived_columns(spec, res.data, data_columns)
+    by_id = res.data.set_index(case_id)[cols + extra]
+    if by_id.index.has_duplicates:
+        raise SkipwiseError(Problem(code=ProblemCode.DUPLICATE_CASE_ID, category=Category.DATA, item=case_id,
+                                    file=str(st.plan.weighting_data),
+                                    message="case ids repeat in the weighting file: weights cannot be joined"))
+    weights = by_id.reindex(data_ids.to_numpy()).reset_index(drop=True)
+    missing = int(weights[cols[-1]].isna().sum())
+    if missing and missing == len(weights):
+        raise SkipwiseError(Problem(
+            code=ProblemCode.BAD_DATA, category=Category.DATA, item=case_id, file=str(st.plan.weighting_data),
+            message="no case id of the data file is in the weighting file",
+            hint="both files must hold the same ids, stored the same way (numbers or text)"))
+    if missing:
+        st.notes.append(f"{missing:,} case(s) of the data file are not in the weighting file: their weights are blank")
     st.weight_meta = weight_meta(res, SurveyMeta())
-    if own and extra:
+    if extra:
         st.weight_meta = st.weight_meta.merged(derived_meta(spec, res.data, extra, st.plan.weighting_data.name))
+    return weights
+
+
+def weigh_summary(res, reporter: Reporter) -> None:
+    """The weighting step's console lines (both engines)."""
+    from skipwise.weighting.workbook import summary_rows
+
     for name, value in summary_rows(res):
         if name in ("respondents (weighted cases)", "sum of final weights", "Kish design effect (final)",
                     "response rate RR3 (unweighted)"):
