@@ -506,3 +506,43 @@ def test_a_separate_weighting_file_gives_the_in_memory_codebook(sampled, role):
     ref = mem.files[role].read_text(encoding="utf-8")
     assert "wt_final" in ref and "age_band" in ref
     assert dask.files[role].read_text(encoding="utf-8").replace("dsk.yaml", "mem.yaml") == ref
+
+
+def test_the_manifest_summary_has_the_in_memory_keys(gathered):
+    mem, dask, _ = gathered
+    ref, got = mem.manifest["summary"], dask.manifest["summary"]
+    assert ref["imputations"] == got["imputations"] == 2
+    assert set(got) - set(ref) == {"engine", "partitions"}  # the dask run also names its engine
+    assert set(ref) <= set(got)
+
+
+def test_interviews_missing_from_the_weighting_file_get_blank_weights_as_in_memory(sampled):
+    """Interviews the weighting file lacks get blank weights (a note); the report counts them as weight 0,
+    as the in-memory run does, instead of refusing the run's own weight."""
+    mem, dask, _ = sampled
+    root = Path(dask.manifest["plan"]["file"]).parent
+    sample = pd.read_parquet(root / "data" / "sample_with_answers.parquet")
+    interviews = pd.read_parquet(mem.files["data_parquet"])["case_id"]
+    short = sample[~sample["case_id"].isin(interviews.iloc[[3, 900, 1700, 2100]])]
+    assert len(short) == len(sample) - 4
+    short.to_parquet(root / "data" / "sample_short.parquet", index=False)
+    runs = {}
+    for name in ("mem", "dsk"):
+        text = (root / f"{name}.yaml").read_text(encoding="utf-8")
+        text = text.replace("sample_with_answers.parquet", "sample_short.parquet").replace(
+            f"folder: {name}", f"folder: short_{name}")
+        (root / f"short_{name}.yaml").write_text(text, encoding="utf-8")
+        runs[name] = run_plan(root / f"short_{name}.yaml")
+    got = pd.read_parquet(runs["dsk"].files["data_parquet"])
+    ref = pd.read_parquet(runs["mem"].files["data_parquet"])
+    assert int(got["wt_final"].isna().sum()) == int(ref["wt_final"].isna().sum()) == 4
+    np.testing.assert_allclose(got["wt_final"].to_numpy(float), ref["wt_final"].to_numpy(float), rtol=1e-9,
+                               atol=1e-9)
+    ref_cells, got_cells = _cells(runs["mem"].files["item_report"]), _cells(runs["dsk"].files["item_report"])
+    assert ref_cells.keys() == got_cells.keys()
+    for key, (value, fmt) in ref_cells.items():
+        other, other_fmt = got_cells[key]
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
+        else:
+            assert other == value, key

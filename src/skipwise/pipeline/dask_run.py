@@ -145,7 +145,8 @@ def report_step(st, reporter: Reporter) -> None:
     o = st.plan.report
     name, _ = report_weight(st)
     parts = s.parts
-    if s.weighted and name in st.weights.columns:
+    made = bool(s.weighted) and name in st.weights.columns
+    if made:
         # a weight the run made: read from the weighted parts (the data's columns and the weights, same rows)
         from skipwise.scale.sources import parquet_parts
 
@@ -155,7 +156,8 @@ def report_step(st, reporter: Reporter) -> None:
             parts, st.q, st.targets["item_report"], client=s.client, meta=s.meta, dtypes=s.dtypes, weight=name,
             by=tuple(o.by), case_ids=o.case_ids, top_items=o.top_items, top_patterns=o.top_patterns,
             fault_rows=o.fault_rows, min_base=st.plan.min_base, input_path=st.plan.data, overwrite=True,
-            written=fixed_time(st.plan), progress=advance)
+            written=fixed_time(st.plan), progress=advance,
+            blank_weight_zero=made)  # as the in-memory run: blank run-made weights count as 0
     first = res.counts
     weighted = first.wcounts is not None
     rates = first.rates.with_min_base(st.plan.min_base)
@@ -340,6 +342,8 @@ def summary(st) -> dict:
     if st.weigh is not None:
         out["respondents"] = int(st.weigh.totals["respondents"])
         out["RR3"] = st.weigh.rates.get("RR3")
+    if st.impute is not None:
+        out["imputations"] = st.impute.m
     return out
 
 

@@ -48,7 +48,8 @@ class _Kept:
     weight: np.ndarray | None
 
 
-def _first(part: Part, q, meta, dtypes, weight: str | None, by: tuple[str, ...], limit: int):
+def _first(part: Part, q, meta, dtypes, weight: str | None, by: tuple[str, ...], limit: int,
+           blank_weight_zero: bool = False):
     from skipwise.classify import classify
     from skipwise.report.counts import count_first
 
@@ -57,6 +58,8 @@ def _first(part: Part, q, meta, dtypes, weight: str | None, by: tuple[str, ...],
     w, bad = None, 0
     if weight is not None:
         w = pd.to_numeric(frame[weight], errors="coerce").to_numpy(dtype=np.float64, na_value=np.nan)
+        if blank_weight_zero:  # a weight the run made: a case outside the weighting file carries weight 0
+            w = np.where(np.isnan(w), 0.0, w)
         bad_mask = ~np.isfinite(w) | (w < 0)
         bad = int(bad_mask.sum())
         w = np.where(bad_mask, 0.0, w)
@@ -122,12 +125,14 @@ def report_on_cluster(parts: list[Part], q, out: Path, *, client, meta=None, dty
                       by: tuple[str, ...] = (), case_ids: bool = True, top_items: int = 12, top_patterns: int = 20,
                       fault_rows: int = 100_000, min_base: int = 30, input_path: str | Path | None = None,
                       overwrite: bool = False, written=None,
-                      progress: Callable[[int], None] | None = None) -> ClusterReport:
+                      progress: Callable[[int], None] | None = None,
+                      blank_weight_zero: bool = False) -> ClusterReport:
     """Write the item report of the partitions ``parts`` from counts computed on the cluster.
 
     Parameters are those of :func:`skipwise.report.write_item_report`; ``meta`` and ``dtypes``
     come with converted input (:mod:`skipwise.scale.convert`); ``progress`` is called with the
-    rows of each partition as its first pass finishes.
+    rows of each partition as its first pass finishes; ``blank_weight_zero``: blank weights count
+    as 0 (a weight ``run`` made, blank for a case outside its weighting file) instead of being refused.
 
     Raises
     ------
@@ -149,7 +154,7 @@ def report_on_cluster(parts: list[Part], q, out: Path, *, client, meta=None, dty
     limit = min(fault_rows, EXCEL_MAX_ROWS - FAULTS_HEADER_ROW)
     q_f, meta_f = client.scatter([q, meta], broadcast=True, hash=False)  # shipped to every worker once
     tag = id(parts)
-    kept = [client.submit(_first, p, q_f, meta_f, dtypes, weight, by, limit, key=f"skipwise-report1-{i}-{tag}",
+    kept = [client.submit(_first, p, q_f, meta_f, dtypes, weight, by, limit, blank_weight_zero, key=f"skipwise-report1-{i}-{tag}",
                           pure=False) for i, p in enumerate(parts)]
     try:
         small = [client.submit(_counts_of, k, key=f"skipwise-report1c-{i}-{tag}") for i, k in enumerate(kept)]
