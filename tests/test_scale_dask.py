@@ -441,3 +441,48 @@ def test_the_conversion_says_what_a_sas_file_costs_in_chunks(tmp_path, capsys):
             assert len(parts) >= 1
         err = capsys.readouterr().err
         assert said in err and not_said not in err, err
+
+
+def _arrow_file(frame: pd.DataFrame, path: Path, **opts) -> None:
+    """``frame`` written by pyarrow itself (no pandas metadata, small row groups), as other tools write."""
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    pq.write_table(pa.Table.from_pandas(frame, preserve_index=False).replace_schema_metadata(None), path,
+                   row_group_size=800, **opts)
+
+
+@pytest.mark.parametrize("stats", [True, False], ids=["statistics", "no-statistics"])
+def test_whole_file_types_of_integer_and_boolean_columns_with_blanks_in_some_row_groups(tmp_path, stats):
+    # pandas' own reader of the whole file is the reference for the types: int with blanks -> float64,
+    # bool with blanks -> object
+    from skipwise.scale.sources import parquet_dtypes, parquet_parts, read_part
+
+    n = 2400
+    frame = pd.DataFrame({"id": np.arange(n), "late": pd.array([*range(1000), *[None] * (n - 1000)], "Int64"),
+                          "flag": pd.array([True] * 1000 + [None] * (n - 1000), "boolean"),
+                          "full": np.arange(n) % 7})
+    _arrow_file(frame, tmp_path / "f.parquet", write_statistics=stats)
+    parts = parquet_parts(tmp_path / "f.parquet", 800)
+    assert parquet_dtypes(parts) == {"late": "float64", "flag": "object"}
+    ref = pd.read_parquet(tmp_path / "f.parquet")  # pandas/pyarrow's whole-file types
+    got = pd.concat([read_part(p, None, parquet_dtypes(parts)) for p in parts], ignore_index=True)
+    assert list(got.dtypes) == list(ref.dtypes)
+    assert str(ref["late"].dtype) == "float64" and str(ref["flag"].dtype) == "object"
+    assert str(read_part(parts[0], None, parquet_dtypes(parts))["late"].dtype) == "float64"
+
+
+def test_a_csv_out_from_arrow_written_parquet_equals_the_in_memory_csv(survey, client, tmp_path):
+    """An integer column blank only in later partitions: every partition takes the whole file's type, so
+    the CSV text is the in-memory engine's (3.0, not 3, in the rows before the first blank)."""
+    _, frame, _ = survey
+    frame = frame.assign(extra_int=pd.array([*range(1000), *[None] * (len(frame) - 1000)], "Int64"))
+    src = tmp_path / "arrow.parquet"
+    _arrow_file(frame, src)
+    runner = CliRunner()
+    mem = runner.invoke(app, ["classify", str(src), "-q", str(DEMO_Q), "-o", str(tmp_path / "m.csv")])
+    assert mem.exit_code == 0, mem.output
+    dsk = runner.invoke(app, ["classify", str(src), "-q", str(DEMO_Q), "-o", str(tmp_path / "d.csv"),
+                              "--engine", "dask", "--scheduler", client.scheduler.address, "--partition-rows", "800"])
+    assert dsk.exit_code == 0, dsk.output
+    assert (tmp_path / "d.csv").read_bytes() == (tmp_path / "m.csv").read_bytes()

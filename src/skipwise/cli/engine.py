@@ -142,10 +142,11 @@ def dask_parts(data: Path, out: Path, partition_rows: int):
     Yields ``(parts, meta, dtypes)``; a conversion's scratch folder is removed at the end.
     """
     from skipwise.scale.convert import convert_to_parts, needs_conversion, sav_compression, scratch_folder
-    from skipwise.scale.sources import parquet_parts
+    from skipwise.scale.sources import parquet_dtypes, parquet_parts
 
     if not needs_conversion(data):
-        yield parquet_parts(data, partition_rows), None, None
+        parts = parquet_parts(data, partition_rows)
+        yield parts, None, parquet_dtypes(parts)  # the whole data's types in every partition
         return
     with scratch_folder(out) as scratch:
         size = data.stat().st_size

@@ -66,7 +66,7 @@ def _bar(reporter: Reporter, label: str, rows: int):
 def read_step(st, reporter: Reporter) -> None:
     """The partitions of the data (a Parquet file, or one pass converting a .sav/.dta/.sas7bdat/.csv file)."""
     from skipwise.scale.convert import convert_to_parts, needs_conversion
-    from skipwise.scale.sources import Part, parquet_parts, read_part
+    from skipwise.scale.sources import Part, parquet_dtypes, parquet_parts, read_part
 
     s = _session(st)
     plan = st.plan
@@ -81,6 +81,7 @@ def read_step(st, reporter: Reporter) -> None:
         s.parts, s.meta, s.dtypes = conv.parts, conv.meta, conv.dtypes
     else:
         s.parts = parquet_parts(plan.data, plan.engine.partition_rows)
+        s.dtypes = parquet_dtypes(s.parts)  # the whole file's types in every partition, as read in memory
     s.rows = int(sum(p.rows for p in s.parts))
     # No rows: the columns, their types and the metadata; the in-memory steps' name checks read these.
     st.data = s.head = read_part(Part(s.parts[0].path, (), 0), s.meta, s.dtypes)

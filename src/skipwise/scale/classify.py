@@ -25,7 +25,7 @@ from typing import Callable
 import pandas as pd
 
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
-from skipwise.scale.sources import DEFAULT_PARTITION_ROWS, Part, parquet_parts, read_part
+from skipwise.scale.sources import DEFAULT_PARTITION_ROWS, Part, parquet_dtypes, parquet_parts, read_part
 
 __all__ = ["DaskClassification", "classify_on_cluster", "faults_folder", "PART_MANIFEST"]
 
@@ -157,7 +157,9 @@ def classify_on_cluster(source: str | Path, q, out: Path, *, client, overwrite: 
     from skipwise.classify import check_columns
 
     out = Path(out)
-    parts = parquet_parts(source, partition_rows) if parts is None else parts
+    if parts is None:
+        parts = parquet_parts(source, partition_rows)
+        dtypes = parquet_dtypes(parts) if dtypes is None and meta is None else dtypes
     check_columns(read_part(Part(parts[0].path, (), 0), meta, dtypes), q)  # the columns only: no rows read
     if out.suffix.lower() in (".parquet", ".csv"):
         from skipwise.scale.single import classify_to_one_file

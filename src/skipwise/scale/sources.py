@@ -18,7 +18,7 @@ from skipwise.engine_spec import DEFAULT_PARTITION_ROWS  # rows a partition hold
 from skipwise.errors import Category, Problem, ProblemCode, SkipwiseError
 from skipwise.publish import clean_message
 
-__all__ = ["Part", "parquet_parts", "read_part", "DEFAULT_PARTITION_ROWS"]
+__all__ = ["Part", "parquet_parts", "parquet_dtypes", "read_part", "DEFAULT_PARTITION_ROWS"]
 
 
 
@@ -90,6 +90,42 @@ def parquet_parts(source: str | Path, partition_rows: int = DEFAULT_PARTITION_RO
         if groups or info.num_row_groups == 0:
             parts.append(Part(str(f), tuple(groups), rows))
     return parts
+
+
+def parquet_dtypes(parts: list[Part]) -> dict[str, str] | None:
+    """The pandas types the whole data would have, where a partition read alone would differ.
+
+    pyarrow gives an integer column holding a blank anywhere as float64 and a boolean one as
+    object, but as int64 (bool) in a partition without blanks: the in-memory engine reads the
+    whole file, so every partition is given the whole data's type (:func:`read_part`).  Blanks
+    are counted from the row groups' statistics, else by reading that one column.  None: no
+    column differs.
+    """
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    blanks: dict[str, bool] = {}
+    kinds: dict[str, str] = {}
+    for path in dict.fromkeys(p.path for p in parts):
+        pf = pq.ParquetFile(path)
+        schema = pf.schema_arrow
+        for j, field in enumerate(schema):
+            if not (pa.types.is_integer(field.type) or pa.types.is_boolean(field.type)) or blanks.get(field.name):
+                continue
+            kinds[field.name] = "object" if pa.types.is_boolean(field.type) else "float64"
+            known = True
+            for g in range(pf.num_row_groups):
+                stats = pf.metadata.row_group(g).column(j).statistics
+                if stats is None or not stats.has_null_count:
+                    known = False
+                    break
+                if stats.null_count:
+                    blanks[field.name] = True
+                    break
+            if not known and not blanks.get(field.name):
+                blanks[field.name] = pf.read(columns=[field.name]).column(0).null_count > 0
+    out = {c: kinds[c] for c, b in blanks.items() if b}
+    return out or None
 
 
 def read_part(part: Part, meta=None, dtypes: dict[str, str] | None = None) -> pd.DataFrame:
