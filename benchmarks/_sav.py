@@ -3,8 +3,8 @@
 pyreadstat writes a .sav cell by cell (about 120 s for 1,000,000 x 200 on the project's machine),
 which is set-up time for a benchmark whose input is such a file.  An uncompressed .sav of numeric
 columns is a dictionary followed by the cases as rows of little-endian doubles, the system-missing
-value being -DBL_MAX (IBM, "SPSS Statistics Command Syntax Reference", Appendix: SAV file format;
-also the layout ReadStat writes).  So the file is written as pyreadstat's own header for a few
+value being -DBL_MAX (the system file layout as the PSPP developers' guide describes it, from
+memory; what matters is that it is what ReadStat writes, which the check below proves).  So the file is written as pyreadstat's own header for a few
 rows, its two case counts set to the frame's, then the frame's rows as raw doubles.  Before
 writing, `write_numeric_sav` checks the method against pyreadstat on a small slice of the same
 frame: the two files must be byte for byte equal (the header's date and time masked).

@@ -179,3 +179,16 @@ def codebook_markdown(blocks: list[Block]) -> str:
 
 def codebook_html(blocks: list[Block], title: str) -> str:
     return to_html(blocks, title)
+
+
+def publish_codebooks(st, blocks, inp) -> None:
+    """Write the package's three codebooks (Markdown, HTML, DDI XML) into their targets; both engines."""
+    from skipwise.ddi import ddi_bytes
+    from skipwise.publish import publish_file
+
+    with publish_file(st.targets["codebook_md"], overwrite=True) as tmp:
+        tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
+    with publish_file(st.targets["codebook_html"], overwrite=True) as tmp:
+        tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
+    with publish_file(st.targets["codebook_xml"], overwrite=True) as tmp:
+        tmp.write_bytes(ddi_bytes(inp))

@@ -112,6 +112,7 @@ def check_step(st, reporter: Reporter) -> None:
 def classify_step(st, reporter: Reporter) -> None:
     """Classify every partition on the workers; the fault listing joined on the client, counts merged."""
     from skipwise.classify.hints import invalid_hint_of_counts
+    from skipwise.pipeline.steps import classified_lines
     from skipwise.scale.classify import merged, run_parts
 
     s = _session(st)
@@ -127,14 +128,8 @@ def classify_step(st, reporter: Reporter) -> None:
     for o in ordered:
         (data_dir / o.file).unlink(missing_ok=True)
         (fault_dir / o.faults_file).unlink(missing_ok=True)
-    shares = res.counts.sum(axis=0)
-    total = max(int(shares.sum()), 1)
-    reporter.info(f"{s.rows:,} cases x {len(st.q.items)} items; "
-                  + ", ".join(f"{k} {100 * c / total:.1f}%" for k, c in shares.items() if c))
-    reporter.info(f"{res.faults:,} routing faults (the fault list names case ids)")
     hint = invalid_hint_of_counts(res.counts, data=str(st.plan.data), questionnaire=str(st.plan.questionnaire))
-    if hint:
-        reporter.info(hint)
+    classified_lines(reporter, s.rows, len(st.q.items), res.counts.sum(axis=0), res.faults, hint)
 
 
 def report_step(st, reporter: Reporter) -> None:
@@ -271,11 +266,9 @@ def _final_columns(st) -> list[str]:
 
 
 def export_step(st, reporter: Reporter) -> None:
-    from skipwise.ddi import ddi_bytes
-    from skipwise.pipeline.codebook import codebook_blocks, codebook_html, codebook_markdown, package_input
+    from skipwise.pipeline.codebook import codebook_blocks, package_input, publish_codebooks
     from skipwise.pipeline.run import _describe
     from skipwise.pipeline.steps import _atomic, report_weight
-    from skipwise.publish import publish_file
     from skipwise.scale.colstats import merge_partials, summaries
     from skipwise.scale.single import join_csv, join_parquet
 
@@ -324,12 +317,7 @@ def export_step(st, reporter: Reporter) -> None:
     inp = package_input(st, head, meta, data_name, weight, rows=s.rows, summaries=summaries(partial),
                         rates=rates.with_min_base(st.plan.min_base))
     blocks = codebook_blocks(st, head, meta, files, None, weight_name, inp=inp)
-    with publish_file(st.targets["codebook_md"], overwrite=True) as tmp:
-        tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
-    with publish_file(st.targets["codebook_html"], overwrite=True) as tmp:
-        tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
-    with publish_file(st.targets["codebook_xml"], overwrite=True) as tmp:
-        tmp.write_bytes(ddi_bytes(inp))
+    publish_codebooks(st, blocks, inp)
 
 
 def summary(st) -> dict:
@@ -385,7 +373,7 @@ def join_step(st, reporter: Reporter) -> None:
                      share=pd.concat([f.share for f in facts], ignore_index=True),
                      answered=pd.concat([f.answered for f in facts], ignore_index=True))
     if case_id in names:
-        join_interviews(st, pd.concat([f.ids for f in facts], ignore_index=True), reporter)
+        join_interviews(st, s.facts.ids, reporter)
     else:
         st.joined, st.joined_columns = st.weighting_data, []
 

@@ -371,7 +371,7 @@ def _diagnose(st: S.RunState, reporter: Reporter) -> None:
 
 
 def _export(st: S.RunState, reporter: Reporter) -> None:
-    from skipwise.pipeline.codebook import codebook_blocks, codebook_html, codebook_markdown
+    from skipwise.pipeline.codebook import codebook_blocks, publish_codebooks
 
     frame = meta = data_name = None
     for form, roles in (("columns", "data_"), ("recoded", "coded_")):
@@ -387,17 +387,11 @@ def _export(st: S.RunState, reporter: Reporter) -> None:
     if weight_name is not None and weight is None:
         weight = S.nan_to_zero(st.data[weight_name])
     files = [(st.targets[r].name, _describe(r)) for r in st.targets]
-    from skipwise.ddi import ddi_bytes
     from skipwise.pipeline.codebook import package_input
 
     inp = package_input(st, frame, meta, data_name, weight_name if weight_name in frame.columns else None)
     blocks = codebook_blocks(st, frame, meta, files, weight, weight_name, inp=inp)
-    with publish_file(st.targets["codebook_md"], overwrite=True) as tmp:
-        tmp.write_text(codebook_markdown(blocks), encoding="utf-8")
-    with publish_file(st.targets["codebook_html"], overwrite=True) as tmp:
-        tmp.write_text(codebook_html(blocks, f"Codebook: {st.q.title or st.q.name}"), encoding="utf-8")
-    with publish_file(st.targets["codebook_xml"], overwrite=True) as tmp:
-        tmp.write_bytes(ddi_bytes(inp))
+    publish_codebooks(st, blocks, inp)
 
 
 def _summary(st: S.RunState) -> dict:

@@ -197,14 +197,19 @@ def classify_step(st: RunState, reporter: Reporter) -> None:
 
     with _atomic(st.targets["faults"]) as tmp:  # the same writer (and bytes) as `skipwise classify`
         n_faults = write_fault_listing(st.cl, tmp)
-    shares = st.cl.counts().sum(axis=0)
-    total = max(int(shares.sum()), 1)
-    reporter.info(f"{len(st.data):,} cases x {len(st.q.items)} items; "
-                  + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
-    reporter.info(f"{n_faults:,} routing faults (the fault list names case ids)")
     from skipwise.classify.hints import invalid_hint
 
     hint = invalid_hint(st.cl, data=str(st.plan.data), questionnaire=str(st.plan.questionnaire))
+    classified_lines(reporter, len(st.data), len(st.q.items), st.cl.counts().sum(axis=0), n_faults, hint)
+
+
+def classified_lines(reporter: Reporter, cases: int, items: int, shares: pd.Series, faults: int,
+                     hint: str | None) -> None:
+    """The classify step's console lines: the statuses' shares, the faults, the invalid-value hint (both engines)."""
+    total = max(int(shares.sum()), 1)
+    reporter.info(f"{cases:,} cases x {items} items; "
+                  + ", ".join(f"{s} {100 * c / total:.1f}%" for s, c in shares.items() if c))
+    reporter.info(f"{faults:,} routing faults (the fault list names case ids)")
     if hint:
         reporter.info(hint)
 
