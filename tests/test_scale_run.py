@@ -112,6 +112,19 @@ def _cells(path: Path) -> dict:
             for ws in wb.worksheets for row in ws.iter_rows() for cell in row if cell.value is not None}
 
 
+def _same_cells(ref: dict, got: dict, abs_tol: float = 1e-9) -> None:
+    """Two workbooks' cells (from :func:`_cells`): the same places, number formats and values, numbers
+    within 1e-9 relative (DESIGN section 7), ``abs_tol`` absolute."""
+    assert ref.keys() == got.keys()
+    for key, (value, fmt) in ref.items():
+        other, other_fmt = got[key]
+        assert fmt == other_fmt, key
+        if isinstance(value, float) and isinstance(other, (int, float)):
+            assert other == pytest.approx(value, rel=1e-9, abs=abs_tol), key
+        else:
+            assert other == value, key
+
+
 def test_the_dask_run_used_three_partitions(packages):
     _, dask = packages
     assert dask.manifest["engine"] == {"kind": "dask", "partitions": 3, "partition_rows": 800}
@@ -137,14 +150,7 @@ def test_fault_listing_equal(packages):
 def test_report_workbook_cells_equal(packages):
     mem, dask = packages
     ref, got = _cells(mem.files["item_report"]), _cells(dask.files["item_report"])
-    assert ref.keys() == got.keys()
-    for key, (value, fmt) in ref.items():
-        other, other_fmt = got[key]
-        assert fmt == other_fmt, key
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-12), key
-        else:
-            assert other == value, key
+    _same_cells(ref, got, abs_tol=1e-12)
 
 
 @pytest.mark.parametrize("role", ["codebook_md", "codebook_html", "codebook_xml"])
@@ -216,14 +222,7 @@ def test_weights_within_1e_9_and_every_other_cell_equal(weighted):
 def test_weighted_workbooks_cells_equal(weighted, role):
     mem, dask = weighted
     ref, got = _cells(mem.files[role]), _cells(dask.files[role])
-    assert ref.keys() == got.keys()
-    for key, (value, fmt) in ref.items():
-        other, other_fmt = got[key]
-        assert fmt == other_fmt, key
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
-        else:
-            assert other == value, key
+    _same_cells(ref, got)
 
 
 @pytest.mark.parametrize("role", ["codebook_md", "codebook_html", "codebook_xml"])
@@ -284,14 +283,7 @@ def test_interview_split_and_estimates_equal_the_in_memory_run(inputs, client):
     ref_cells, got_cells = _cells(mem.files["weighting_workbook"]), _cells(dask.files["weighting_workbook"])
     estimates = {k: v for k, v in ref_cells.items() if k[0] == "Estimates"}
     assert any(v[0] == "income" for v in estimates.values())  # the estimates sheet is there, with income
-    assert ref_cells.keys() == got_cells.keys()
-    for key, (value, fmt) in ref_cells.items():
-        other, other_fmt = got_cells[key]
-        assert fmt == other_fmt, key
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
-        else:
-            assert other == value, key
+    _same_cells(ref_cells, got_cells)
 
 
 # --- stage 3: diagnose and impute on gathered columns ----------------------------------------------
@@ -325,14 +317,7 @@ def gathered(inputs, client):
 def test_diagnostics_and_imputed_file_equal_the_in_memory_run(gathered):
     mem, dask, lines = gathered
     ref, got = _cells(mem.files["diagnostics"]), _cells(dask.files["diagnostics"])
-    assert ref.keys() == got.keys()
-    for key, (value, fmt) in ref.items():
-        other, other_fmt = got[key]
-        assert fmt == other_fmt, key
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-12), key
-        else:
-            assert other == value, key
+    _same_cells(ref, got, abs_tol=1e-12)
     from skipwise.io import read_survey
 
     assert mem.files["imputed_1"].suffix == ".sav"  # the input's format: written on the client
@@ -474,14 +459,7 @@ def test_a_separate_weighting_file_gives_the_in_memory_weights(sampled):
 def test_a_separate_weighting_file_gives_the_in_memory_workbooks(sampled, role):
     mem, dask, _ = sampled
     ref, got = _cells(mem.files[role]), _cells(dask.files[role])
-    assert ref.keys() == got.keys()
-    for key, (value, fmt) in ref.items():
-        other, other_fmt = got[key]
-        assert fmt == other_fmt, key
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
-        else:
-            assert other == value, key
+    _same_cells(ref, got)
 
 
 def test_a_weighting_file_over_the_gather_budget_is_refused_with_its_line(sampled, monkeypatch):
@@ -539,10 +517,4 @@ def test_interviews_missing_from_the_weighting_file_get_blank_weights_as_in_memo
     np.testing.assert_allclose(got["wt_final"].to_numpy(float), ref["wt_final"].to_numpy(float), rtol=1e-9,
                                atol=1e-9)
     ref_cells, got_cells = _cells(runs["mem"].files["item_report"]), _cells(runs["dsk"].files["item_report"])
-    assert ref_cells.keys() == got_cells.keys()
-    for key, (value, fmt) in ref_cells.items():
-        other, other_fmt = got_cells[key]
-        if isinstance(value, float) and isinstance(other, (int, float)):
-            assert other == pytest.approx(value, rel=1e-9, abs=1e-9), key
-        else:
-            assert other == value, key
+    _same_cells(ref_cells, got_cells)
